@@ -1,0 +1,1 @@
+"""marshmallow schemas of the /v1 API (request loading, reply documentation)."""

@@ -1,0 +1,11 @@
+"""The blueprints of the service, registered in one place."""
+
+from __future__ import annotations
+
+
+def register_views(api) -> None:
+    """Register every blueprint on the flask-smorest ``api``."""
+    from service.api.views import catalog, operations, values
+
+    for module in (operations, catalog, values):
+        api.register_blueprint(module.blp)

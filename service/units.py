@@ -1,0 +1,191 @@
+"""SI-prefixed quantities: parsing from text and formatting to engineering notation.
+
+Accepted spellings (all case-sensitive, since SI prefixes are: ``m`` is milli,
+``M`` is mega):
+
+- a plain number: ``"4700"``, ``"4.7e3"``, ``"-2.5"``;
+- a number with an SI prefix and/or a unit: ``"4.7k"``, ``"10n"``, ``"2.2u"``,
+  ``"2.2µ"``, ``"1.5M"``, ``"10kHz"``, ``"4.7 nF"``, ``"100 ohm"``, ``"1kΩ"``;
+- a letter code of IEC 60062 (resistors and capacitors), where the prefix
+  letter stands in place of the decimal point: ``"4k7"`` (4.7 k), ``"2R2"``
+  (2.2, with ``R`` as the decimal marker of a resistance), ``"R47"``,
+  ``"4n7"`` (4.7 n), ``"1M5"``. IEC 60062 writes kilo as ``K``; both ``k``
+  and ``K`` are read as kilo in a letter code and nowhere else.
+
+Prefixes: y z a f p n u µ m k M G T (10^-24 ... 10^12).
+Units: Hz, Ω or ohm, F, H, s, V — a unit written in the text must be the unit
+of the field being read.
+
+References
+----------
+.. [1] BIPM, "The International System of Units (SI)", 9th ed., 2019, sec. 3 (prefixes).
+.. [2] IEC 60062:2016, "Marking codes for resistors and capacitors", sec. 4.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+
+from service.errors import InvalidParameter
+
+PREFIXES: dict[str, int] = {
+    "y": -24, "z": -21, "a": -18, "f": -15, "p": -12, "n": -9, "u": -6, "µ": -6, "μ": -6,
+    "m": -3, "k": 3, "M": 6, "G": 9, "T": 12,
+}
+
+#: Canonical unit symbol -> accepted spellings.
+UNITS: dict[str, tuple[str, ...]] = {
+    "Hz": ("Hz",),
+    "ohm": ("Ω", "ohm", "Ohm", "ohms", "Ohms"),
+    "F": ("F",),
+    "H": ("H",),
+    "s": ("s",),
+    "V": ("V",),
+}
+_UNIT_OF_SPELLING = {sp: unit for unit, spellings in UNITS.items() for sp in spellings}
+_UNIT_NAMES = {"Hz": "frequency (Hz)", "ohm": "resistance (Ω)", "F": "capacitance (F)",
+               "H": "inductance (H)", "s": "time (s)", "V": "voltage (V)"}
+
+_NUMBER = r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?"
+_PREFIX_CHARS = "yzafpnuµμmkMGT"
+_UNIT_ALT = "|".join(sorted((re.escape(s) for s in _UNIT_OF_SPELLING), key=len, reverse=True))
+
+_DECIMAL_RE = re.compile(
+    rf"^(?P<num>{_NUMBER})\s?(?P<prefix>[{_PREFIX_CHARS}])?(?P<unit>{_UNIT_ALT})?$"
+)
+# IEC 60062 letter code: digits, one code letter in place of the decimal point, digits.
+_LETTER_RE = re.compile(
+    rf"^(?P<int>\d*)(?P<code>[RKk{_PREFIX_CHARS}])(?P<frac>\d+)\s?(?P<unit>{_UNIT_ALT})?$"
+)
+
+
+class QuantityError(InvalidParameter):
+    """A quantity string is malformed, ambiguous or of the wrong unit."""
+
+
+def _expected(unit: str | None) -> str:
+    what = f"a {_UNIT_NAMES[unit]}" if unit else "a quantity"
+    sym = "Ω" if unit == "ohm" else (unit or "")
+    return (f"expected {what}: a number, optionally with an SI prefix (y z a f p n u µ m k M G T, "
+            f"case-sensitive) and the unit{(' ' + sym) if sym else ''}, e.g. \"4.7k\", \"10n\""
+            + (", or an IEC 60062 code such as \"4k7\"" if unit in ("ohm", "F", None) else ""))
+
+
+def _check_unit(found: str | None, unit: str | None, text: str) -> None:
+    if found is None:
+        return
+    canonical = _UNIT_OF_SPELLING[found]
+    if unit is None or canonical != unit:
+        raise QuantityError(f"{text!r} has unit {found!r}, but {_expected(unit)}")
+
+
+def parse_quantity(text: str, unit: str | None = None) -> float:
+    """Parse one quantity string to a float in SI base units.
+
+    Parameters
+    ----------
+    text : str
+        See the module docstring for what is accepted.
+    unit : str, optional
+        Canonical unit of the field (``"Hz"``, ``"ohm"``, ``"F"``, ``"H"``,
+        ``"s"``, ``"V"``); a unit in ``text`` must equal it. ``None`` accepts
+        no unit in the text.
+
+    Returns
+    -------
+    float
+        Finite value in the base unit (``"4.7k"`` -> 4700.0).
+
+    Raises
+    ------
+    QuantityError
+        Malformed, ambiguous (``"10K"``: K is not an SI prefix; ``"1meg"``),
+        wrong-unit or non-finite input, with a message saying what was expected.
+    """
+    if not isinstance(text, str):
+        raise QuantityError(_expected(unit))
+    s = text.strip()
+    if unit is not None and unit not in UNITS:
+        raise ValueError(f"unknown unit {unit!r}")
+    m = _DECIMAL_RE.match(s)
+    if m:
+        _check_unit(m.group("unit"), unit, text)
+        prefix = m.group("prefix")
+        if prefix and m.group("unit") is None and unit is None:
+            pass
+        value = float(m.group("num"))
+        if prefix:
+            value = _scale(m.group("num"), PREFIXES[prefix])
+        return _finite(value, text, unit)
+    m = _LETTER_RE.match(s)
+    if m and (m.group("int") or m.group("frac")):
+        code = m.group("code")
+        _check_unit(m.group("unit"), unit, text)
+        if code == "R":
+            if unit not in (None, "ohm"):
+                raise QuantityError(f"{text!r}: the letter R marks the decimal point of a resistance only; "
+                                    + _expected(unit))
+            exponent = 0
+        elif code in ("k", "K"):
+            exponent = 3
+        else:
+            exponent = PREFIXES[code]
+        number = f"{m.group('int') or '0'}.{m.group('frac')}"
+        return _finite(_scale(number, exponent), text, unit)
+    hint = ""
+    if re.match(rf"^{_NUMBER}\s?K", s):
+        hint = " (K is not an SI prefix: write k for kilo)"
+    elif re.match(rf"^{_NUMBER}\s?(meg|Meg|MEG)", s):
+        hint = " (write M for mega)"
+    raise QuantityError(f"cannot read {text!r} as a quantity{hint}; {_expected(unit)}")
+
+
+def _scale(number: str, exponent: int) -> float:
+    """``float(number) * 10**exponent`` computed in decimal so "4.7k" is exactly 4700.0."""
+    return float(f"{number}e{exponent}") if "e" not in number.lower() else float(number) * 10.0 ** exponent
+
+
+def _finite(value: float, text: str, unit: str | None) -> float:
+    if not math.isfinite(value):
+        raise QuantityError(f"{text!r} is not a finite number; {_expected(unit)}")
+    return value
+
+
+_ENGINEERING = [(12, "T"), (9, "G"), (6, "M"), (3, "k"), (0, ""), (-3, "m"), (-6, "u"),
+                (-9, "n"), (-12, "p"), (-15, "f"), (-18, "a"), (-21, "z"), (-24, "y")]
+
+
+def format_quantity(value: float, unit: str = "", *, significant: int = 4, micro: str = "u") -> str:
+    """Engineering notation with an SI prefix: 4700 -> ``"4.7k"``, 1e-8 -> ``"10n"``.
+
+    Parameters
+    ----------
+    value : float
+        Finite value in the base unit.
+    unit : str
+        Appended after the prefix (``"Hz"``, ``"Ω"``, ``"F"``); empty for none.
+    significant : int
+        Significant digits kept (1-17); trailing zeros are dropped.
+    micro : str
+        Symbol used for 10^-6 (``"u"`` or ``"µ"``).
+
+    Returns
+    -------
+    str
+        ``parse_quantity(format_quantity(x, significant=17))`` returns ``x``.
+    """
+    if not math.isfinite(value):
+        raise ValueError("cannot format a non-finite value")
+    if value == 0:
+        return f"0{unit}"
+    digits = max(1, min(int(significant), 17))
+    rounded = float(f"{value:.{digits - 1}e}")
+    exponent3 = int(math.floor(math.log10(abs(rounded)) / 3) * 3)
+    if not -24 <= exponent3 <= 12:  # beyond the prefixes: plain scientific notation
+        return f"{rounded:.{digits}g}{unit}"
+    prefix = dict(_ENGINEERING)[exponent3]
+    if prefix == "u":
+        prefix = micro
+    mantissa = rounded / 10.0 ** exponent3 if exponent3 >= 0 else rounded * 10.0 ** (-exponent3)
+    return f"{mantissa:.{digits}g}{prefix}{unit}"
