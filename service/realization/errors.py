@@ -29,3 +29,23 @@ class UnknownStrategy(RealizationError):
 
 class RatioLimitViolated(RealizationError):
     """The chosen free components violate the ratio limit a design strategy implies."""
+
+
+class UnknownPartKind(RealizationError):
+    """A part kind other than resistor or capacitor (in a parts policy or a design document)."""
+
+
+class NoUsableParts(RealizationError):
+    """A stock list or series range leaves no value of a kind the design needs."""
+
+
+class InfeasibleStage(RealizationError):
+    """No candidate part set realizes a section with the chosen topology and parts."""
+
+
+class InvalidDocument(RealizationError):
+    """A design document that cannot be evaluated (repeated ref, missing or mistyped part)."""
+
+
+class WrongLength(RealizationError):
+    """A per-section list (topologies, strategies) whose length differs from the number of sections."""
