@@ -1,0 +1,327 @@
+"""Figures of merit of a frequency response and of a step response.
+
+Frequency metrics are taken on the dense internal grid of
+:func:`service.response.refine.analysis_grid_hz`, independent of the display
+grid; peaks and extremes are refined by golden-section search and every
+crossing by Brent's root finding on the exact response.
+
+Definitions (documented public behaviour)
+-----------------------------------------
+passband_gain_db
+    The largest gain inside the passband when passband edges are known; else
+    the DC gain (lowpass, bandstop), the high-frequency limit (highpass) or
+    the peak gain (bandpass).
+f3db_hz
+    Where the gain is 10*log10(2) = 3.0103 dB (half power) below
+    ``passband_gain_db``: one frequency (lowpass: first crossing above DC;
+    highpass: last crossing below the high-frequency passband) or
+    ``[low, high]`` (bandpass: either side of the peak; bandstop: either
+    side of the stopband).
+passband_ripple_db
+    Largest minus smallest gain over the passband (needs passband edges).
+group_delay_s
+    At DC (lowpass, bandstop), at the geometric band centre (bandpass) or at
+    the passband edge (highpass, whose delay tends to 0 as f -> inf).
+group_delay_variation_s
+    Largest minus smallest group delay over the passband (given edges, else
+    [0, f3db], [f3db, inf), [f3db_low, f3db_high], or both bandstop passbands).
+Step metrics
+    With a final value y_f = H(0) != 0 (lowpass, bandstop): overshoot
+    100*(max y/y_f - 1) (0 when there is none), rise time between the first
+    crossings of 10 % and 90 % of y_f (0 when the step jumps past 90 % at
+    t = 0), settling time as the last instant |y/y_f - 1| exceeds 1 % or
+    0.1 %. With y_f = 0 (highpass, bandpass) overshoot and rise time are
+    undefined (None, with a reason), and settling is the last instant |y|
+    exceeds 1 % (0.1 %) of the largest |y|.
+
+References
+----------
+.. [1] K. Ogata, *Modern Control Engineering*, 5th ed., Prentice Hall, 2010,
+   sec. 5-3 (transient-response specifications: rise, peak, overshoot,
+   settling).
+.. [2] A. B. Williams, F. J. Taylor, *Electronic Filter Design Handbook*,
+   4th ed., McGraw-Hill, 2006, sec. 2.1-2.3 (cutoff, ripple, group delay).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, fields
+from typing import Callable
+
+import numpy as np
+
+from service.approximation.types import ResponseType
+from service.response.refine import crossing, golden_minimize, refine_minimum
+
+HALF_POWER_DB = 10.0 * math.log10(2.0)
+#: A peak no higher than the DC (or high-frequency) gain by more than this is
+#: rounding of a maximally flat response and is reported at DC (or infinity).
+PEAK_FLATNESS_DB = 1e-9
+
+
+@dataclass
+class ResponseMetrics:
+    """Named figures of a response; a None value has its reason in ``unavailable``.
+
+    Units: dB, Hz, s, percent as the field names say.
+    """
+
+    passband_gain_db: float | None = None
+    f3db_hz: float | list[float] | None = None
+    passband_ripple_db: float | None = None
+    attenuation_db: list[dict] = field(default_factory=list)
+    peak_gain_db: float | None = None
+    peak_frequency_hz: float | None = None
+    group_delay_s: float | None = None
+    group_delay_variation_s: float | None = None
+    overshoot_pct: float | None = None
+    rise_time_s: float | None = None
+    settling_time_1pct_s: float | None = None
+    settling_time_01pct_s: float | None = None
+    unavailable: dict[str, str] = field(default_factory=dict)
+
+    def as_dict(self) -> dict:
+        return {f.name: getattr(self, f.name) for f in fields(self)}
+
+
+def _log_crossing(func: Callable[[np.ndarray], np.ndarray], level: float, a: float, b: float) -> float:
+    """Frequency in [a, b] (Hz, > 0) where func == level, in log-frequency."""
+    g = lambda u: float(func(np.array([math.exp(u)]))[0] - level)  # noqa: E731
+    return math.exp(crossing(g, math.log(a), math.log(b)))
+
+
+def infer_response_type(g0_db: float, ginf_db: float, peak_db: float) -> ResponseType:
+    """Response type from the DC, high-frequency and peak gains (dB).
+
+    Both ends within 3 dB of the peak: bandstop; both ends more than 3 dB
+    below: bandpass; otherwise whichever end is higher.
+    """
+    lo_pass = g0_db >= peak_db - HALF_POWER_DB
+    hi_pass = ginf_db >= peak_db - HALF_POWER_DB
+    if lo_pass and hi_pass:
+        return ResponseType.BANDSTOP
+    if not lo_pass and not hi_pass:
+        return ResponseType.BANDPASS
+    return ResponseType.LOWPASS if g0_db >= ginf_db else ResponseType.HIGHPASS
+
+
+def _extreme(func, a: float, b: float, grid: np.ndarray, maximum: bool) -> tuple[float, float]:
+    """Refined extreme (f, value) of func on [a, b] (b may exceed the grid)."""
+    g = grid[(grid > a) & (grid < b)]
+    g = np.concatenate([[a] if a > 0 else [], g, [b] if math.isfinite(b) else [grid[-1]]])
+    sign = -1.0 if maximum else 1.0
+    h = lambda f: sign * func(f)  # noqa: E731
+    f, v = refine_minimum(h, g, h(g), log_axis=True)
+    if a == 0.0:
+        v0 = float(h(np.zeros(1))[0])
+        if v0 < v:
+            f, v = 0.0, v0
+    return f, sign * v
+
+
+def frequency_metrics(gain_db: Callable, delay_s: Callable, grid: np.ndarray, g0_db: float, ginf_db: float,
+                      response_type: ResponseType | None, passbands: list[tuple[float, float]] | None,
+                      attenuation_at_hz=()) -> tuple[ResponseMetrics, ResponseType]:
+    """Frequency-domain metrics (see the module notes for the definitions).
+
+    Parameters
+    ----------
+    gain_db, delay_s : callable
+        Vectorised gain (dB) and group delay (s) of frequency (Hz, >= 0).
+    grid : ndarray (G,)
+        Dense internal analysis grid (Hz, sorted, > 0).
+    g0_db, ginf_db : float
+        Gains (dB) at DC and as f -> inf.
+    response_type : ResponseType or None
+        None: inferred (:func:`infer_response_type`).
+    passbands : list of (start_hz, stop_hz) or None
+        Passband intervals (stop may be inf).
+    attenuation_at_hz : sequence of float
+        Frequencies (Hz) where the loss below ``passband_gain_db`` is reported.
+
+    Returns
+    -------
+    (ResponseMetrics, ResponseType)
+    """
+    m = ResponseMetrics()
+    gdb = gain_db(grid)
+    top = grid[-1]
+    # peak
+    kp = int(np.argmax(gdb))
+    if g0_db >= gdb[kp] - PEAK_FLATNESS_DB:
+        # flat to rounding (a maximally flat response): the peak is at DC
+        m.peak_gain_db, m.peak_frequency_hz = max(g0_db, float(gdb[kp])), 0.0
+    elif ginf_db >= gdb[kp] - PEAK_FLATNESS_DB:
+        m.peak_gain_db = ginf_db
+        m.unavailable["peak_frequency_hz"] = "the gain is largest as the frequency tends to infinity"
+    else:
+        lo = grid[max(kp - 1, 0)]
+        hi = grid[min(kp + 1, grid.size - 1)]
+        neg = lambda u: -gain_db(np.exp(u))  # noqa: E731
+        x, v = golden_minimize(neg, np.array([math.log(lo)]), np.array([math.log(hi)]))
+        m.peak_gain_db, m.peak_frequency_hz = float(-v[0]), float(math.exp(x[0]))
+    rt = ResponseType(response_type) if response_type is not None else infer_response_type(
+        g0_db, ginf_db, m.peak_gain_db)
+
+    # passband reference gain
+    if passbands:
+        ref = max(_extreme(gain_db, a, b, grid, maximum=True)[1] for a, b in passbands)
+    elif rt in (ResponseType.LOWPASS, ResponseType.BANDSTOP):
+        ref = g0_db
+    elif rt is ResponseType.HIGHPASS:
+        ref = ginf_db
+    else:
+        ref = m.peak_gain_db
+    m.passband_gain_db = float(ref)
+
+    # half-power frequencies
+    level = ref - HALF_POWER_DB
+    below = gdb < level
+    f3: float | list[float] | None = None
+    reason = None
+    if rt is ResponseType.LOWPASS:
+        idx = np.nonzero(below)[0]
+        if idx.size == 0:
+            reason = "the gain never falls 3 dB below the passband gain"
+        elif idx[0] == 0:
+            reason = "the gain is already 3 dB down at the lowest analysed frequency"
+        else:
+            f3 = _log_crossing(gain_db, level, grid[idx[0] - 1], grid[idx[0]])
+    elif rt is ResponseType.HIGHPASS:
+        idx = np.nonzero(below)[0]
+        if idx.size == 0:
+            reason = "the gain never falls 3 dB below the passband gain"
+        elif idx[-1] == grid.size - 1:
+            reason = "the gain is still 3 dB down at the highest analysed frequency"
+        else:
+            f3 = _log_crossing(gain_db, level, grid[idx[-1]], grid[idx[-1] + 1])
+    elif rt is ResponseType.BANDPASS:
+        kc = kp if m.peak_frequency_hz else int(np.argmax(gdb))
+        lo_idx = np.nonzero(below[:kc])[0]
+        hi_idx = np.nonzero(below[kc:])[0] + kc
+        if lo_idx.size == 0 or hi_idx.size == 0:
+            reason = "the gain does not fall 3 dB below the passband gain on both sides of the peak"
+        else:
+            a = lo_idx[-1]
+            b = hi_idx[0]
+            f3 = [_log_crossing(gain_db, level, grid[a], grid[a + 1]),
+                  _log_crossing(gain_db, level, grid[b - 1], grid[b])]
+    else:
+        idx = np.nonzero(below)[0]
+        if idx.size == 0:
+            reason = "the gain never falls 3 dB below the passband gain"
+        elif idx[0] == 0 or idx[-1] == grid.size - 1:
+            reason = "the stopband reaches the end of the analysed frequencies"
+        else:
+            f3 = [_log_crossing(gain_db, level, grid[idx[0] - 1], grid[idx[0]]),
+                  _log_crossing(gain_db, level, grid[idx[-1]], grid[idx[-1] + 1])]
+    m.f3db_hz = f3
+    if reason:
+        m.unavailable["f3db_hz"] = reason
+
+    # passband intervals for ripple / delay variation
+    pbs = passbands
+    if pbs:
+        hi_ = max(_extreme(gain_db, a, b, grid, maximum=True)[1] for a, b in pbs)
+        lo_ = min(_extreme(gain_db, a, b, grid, maximum=False)[1] for a, b in pbs)
+        m.passband_ripple_db = float(hi_ - lo_)
+    else:
+        m.unavailable["passband_ripple_db"] = "needs the passband edges (passband_hz)"
+        if f3 is not None:
+            if rt is ResponseType.LOWPASS:
+                pbs = [(0.0, f3)]
+            elif rt is ResponseType.HIGHPASS:
+                pbs = [(f3, math.inf)]
+            elif rt is ResponseType.BANDPASS:
+                pbs = [(f3[0], f3[1])]
+            else:
+                pbs = [(0.0, f3[0]), (f3[1], math.inf)]
+
+    # attenuation at requested frequencies
+    att = np.asarray(list(attenuation_at_hz), dtype=float)
+    if att.size:
+        loss = ref - gain_db(att)
+        m.attenuation_db = [{"frequency_hz": float(f), "loss_db": float(v)} for f, v in zip(att, loss)]
+
+    # group delay
+    if rt in (ResponseType.LOWPASS, ResponseType.BANDSTOP):
+        f_gd = 0.0
+    elif rt is ResponseType.BANDPASS:
+        band = pbs[0] if pbs else None
+        f_gd = math.sqrt(band[0] * band[1]) if band else None
+    else:
+        f_gd = pbs[0][0] if pbs else None
+    if f_gd is None:
+        m.unavailable["group_delay_s"] = "needs the passband edges or a half-power frequency"
+    else:
+        m.group_delay_s = float(delay_s(np.array([f_gd]))[0])
+    if pbs:
+        dmax = max(_extreme(delay_s, a, min(b, top), grid, maximum=True)[1] for a, b in pbs)
+        dmin = min(_extreme(delay_s, a, min(b, top), grid, maximum=False)[1] for a, b in pbs)
+        m.group_delay_variation_s = float(dmax - dmin)
+    else:
+        m.unavailable["group_delay_variation_s"] = "needs the passband edges or a half-power frequency"
+    return m, rt
+
+
+def step_metrics(sim, m: ResponseMetrics) -> None:
+    """Fill the step-response metrics of ``m`` from a :class:`StateSpaceResponse`.
+
+    Every crossing is refined by Brent's method and the overshoot peak by
+    golden-section search on the exact continuous response
+    (``sim.step_at``), so they do not depend on the time step.
+    """
+    t, y = sim.time_s, sim.step
+    yf = sim.final_value
+    peak_abs = float(np.max(np.abs(y)))
+    has_final = abs(yf) > 1e-9 * max(peak_abs, 1e-300)
+    at = sim.step_at
+
+    def last_exit(err: np.ndarray, tol: float, efun) -> float | None:
+        out = np.nonzero(err > tol)[0]
+        if out.size == 0:
+            return 0.0
+        i = int(out[-1])
+        if i == t.size - 1:
+            return None
+        return crossing(lambda x: efun(x) - tol, float(t[i]), float(t[i + 1]))
+
+    if has_final:
+        r = y / yf
+        rn = lambda x: at(x) / yf  # noqa: E731
+        k = int(np.argmax(r))
+        if r[k] > 1.0:
+            a, b = t[max(k - 1, 0)], t[min(k + 1, t.size - 1)]
+            x, v = golden_minimize(lambda xs: -np.array([rn(float(s)) for s in xs]), np.array([a]),
+                                   np.array([b]), iterations=30)
+            m.overshoot_pct = float(max(-v[0], r[k]) - 1.0) * 100.0
+        else:
+            m.overshoot_pct = 0.0
+        times = []
+        for lev in (0.1, 0.9):
+            idx = np.nonzero(r >= lev)[0]
+            if idx.size == 0:
+                times.append(None)
+            elif idx[0] == 0:
+                times.append(0.0)
+            else:
+                i = int(idx[0])
+                times.append(crossing(lambda x, lev=lev: rn(x) - lev, float(t[i - 1]), float(t[i])))
+        if None in times:
+            m.unavailable["rise_time_s"] = "the step response does not reach 90 % within the time span"
+        else:
+            m.rise_time_s = float(times[1] - times[0])
+        err = np.abs(r - 1.0)
+        efun = lambda x: abs(rn(x) - 1.0)  # noqa: E731
+    else:
+        why = "the step response settles to 0 (no DC gain), so it has no final value to overshoot or rise to"
+        m.unavailable["overshoot_pct"] = why
+        m.unavailable["rise_time_s"] = why
+        err = np.abs(y) / peak_abs
+        efun = lambda x: abs(at(x)) / peak_abs  # noqa: E731
+    for name, tol in (("settling_time_1pct_s", 0.01), ("settling_time_01pct_s", 0.001)):
+        v = last_exit(err, tol, efun)
+        if v is None:
+            m.unavailable[name] = "the step response has not settled within the time span"
+        setattr(m, name, v)
