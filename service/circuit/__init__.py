@@ -1,0 +1,37 @@
+"""Circuit engine: netlist model, batched AC analysis, zeros/poles, SPICE export.
+
+Internal to the service (no endpoint takes a netlist): realization builds
+stage circuits with it, response and tolerance analyse them.
+
+Public surface
+--------------
+Circuit, OpAmpModel, Element, ElementKind
+    Netlist model; values are scalars or arrays of one value per trial.
+ac_response(circuit, frequency_hz, output="out", *, memory_limit_bytes, method)
+    Complex ``V(output)/V(input)``, shape (T, F).
+transfer_function_zpk(circuit, output="out")
+    Exact zeros, poles (rad/s) and gain of a single-trial circuit.
+to_spice(circuit, *, output, ac, trial, title)
+    ngspice-compatible netlist text.
+CircuitError
+    Every invalid circuit or request (an ``InvalidParameter``).
+"""
+
+from .ac import ac_response
+from .errors import CircuitError
+from .netlist import GROUND, Circuit, Element, ElementKind, OpAmpModel
+from .spice import format_value, to_spice
+from .zpk import transfer_function_zpk
+
+__all__ = [
+    "Circuit",
+    "CircuitError",
+    "Element",
+    "ElementKind",
+    "GROUND",
+    "OpAmpModel",
+    "ac_response",
+    "format_value",
+    "to_spice",
+    "transfer_function_zpk",
+]

@@ -1,0 +1,315 @@
+"""Stage-by-stage AC solution through transfer-function coefficients.
+
+For every block of the block-triangular MNA system (:mod:`.blocks`) the
+transfer function from each of its inputs to each needed unknown is a
+rational function of ``s`` whose numerator and denominator are determinants
+of the block's pencil ``G + s*C`` (Cramer's rule).  Both are polynomials of
+degree at most the block size, so they are recovered exactly from their
+values at ``P`` points on a circle of radius ``w_ref`` by a discrete Fourier
+transform (polynomial interpolation at roots of unity; see Vlach and
+Singhal, *Computer Methods for Circuit Analysis and Design*, 2nd ed., 1994,
+ch. 9, "Symbolic analysis by polynomial interpolation" and Singhal and Vlach,
+"Interpolation using the fast Fourier transform", Proc. IEEE 60(12), 1972).
+The variable is scaled, ``sigma = s / w_ref``, for conditioning.
+
+Coefficients cost a few tiny determinants per trial; the response on
+``(T, F)`` is then two real matrix products per rational function (Horner's
+scheme replaced by a Vandermonde product, one BLAS call) and one division.
+Stages in cascade are merged into one numerator and denominator by
+multiplying their coefficient rows per trial.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .blocks import RHS, Block, degree_bounds
+from .errors import CircuitError
+from .mna import MnaSystem
+
+THETA = 0.3183098861837907
+"""Rotation (rad) of the interpolation points off the real axis, so that a real pole never lands on one."""
+
+MAX_MERGE_DEGREE = 24
+"""Largest degree of a merged cascade numerator or denominator before switching to per-stage evaluation."""
+
+
+@dataclass
+class _Rational:
+    num: np.ndarray  # (Tc, dn+1) ascending powers of sigma, real
+    den: np.ndarray  # (Tc, dd+1)
+
+
+def _patterns(system: MnaSystem) -> tuple[np.ndarray, np.ndarray]:
+    g = np.zeros((system.size, system.size), dtype=bool)
+    c = np.zeros_like(g)
+    for m, r, col, v in system.entries:
+        if np.any(np.asarray(v) != 0):
+            (g if m == 0 else c)[r, col] = True
+    return g, c
+
+
+@dataclass
+class _BlockPlan:
+    block: Block
+    ext: list[int]               # external input unknowns (RHS excluded)
+    has_rhs: bool
+    rhs_pos: int                 # row position of the input source's row inside the block
+    inputs: list[int]            # ext + [RHS] if has_rhs; order of the coupling columns
+    den_bounds: tuple[int, int]
+    num_bounds: dict[tuple[int, int], tuple[int, int]]   # (k, c) -> (lo, hi)
+    points: int
+
+
+def plan_blocks(system: MnaSystem, blocks: list[Block]) -> list[_BlockPlan]:
+    """Structural degree bounds and interpolation sizes of each block."""
+    gpat, cpat = _patterns(system)
+    plans = []
+    for b in blocks:
+        rows, cols = b.rows, b.cols
+        g_bb = gpat[np.ix_(rows, cols)]
+        c_bb = cpat[np.ix_(rows, cols)]
+        ext = [c for c in b.inputs if c != RHS]
+        has_rhs = RHS in b.inputs
+        rhs_pos = rows.index(system.rhs_row) if has_rhs else -1
+        inputs = ext + ([RHS] if has_rhs else [])
+        dlo, dhi = degree_bounds(g_bb, c_bb)
+        if dhi < 0:
+            raise CircuitError("the circuit is singular: a stage has a structurally zero determinant "
+                               f"(unknowns {', '.join(system.unknowns[c] for c in cols)})")
+        nb = {}
+        hi_max = dhi
+        for k in b.needed:
+            kp = cols.index(k)
+            for c in inputs:
+                gk, ck = g_bb.copy(), c_bb.copy()
+                if c == RHS:
+                    gk[:, kp] = False
+                    gk[rhs_pos, kp] = True
+                    ck[:, kp] = False
+                else:
+                    gk[:, kp] = gpat[rows, c]
+                    ck[:, kp] = cpat[rows, c]
+                lo, hi = degree_bounds(gk, ck)
+                nb[(k, c)] = (lo, hi)
+                hi_max = max(hi_max, hi)
+        plans.append(_BlockPlan(b, ext, has_rhs, rhs_pos, inputs, (dlo, dhi), nb, hi_max + 1))
+    return plans
+
+
+def _coefficients(vals: np.ndarray, bounds: tuple[int, int]) -> np.ndarray:
+    """Polynomial coefficients (ascending) from values at the rotated roots of unity.
+
+    ``vals`` has shape (Tc, P); returns real (Tc, hi+1) with zeros below ``lo``
+    (an empty degree range gives a zero row of length 1).
+    """
+    lo, hi = bounds
+    p = vals.shape[-1]
+    if hi < 0:
+        return np.zeros((vals.shape[0], 1))
+    spec = np.fft.fft(vals, axis=-1) / p
+    j = np.arange(p)
+    spec *= np.exp(-1j * THETA * j)
+    coef = spec.real[:, : hi + 1].copy()
+    coef[:, :lo] = 0.0
+    return coef
+
+
+def _det(m: np.ndarray) -> np.ndarray:
+    """Determinants of a stack of square matrices (..., n, n); closed form up to n = 3."""
+    n = m.shape[-1]
+    if n == 1:
+        return m[..., 0, 0].copy()
+    if n == 2:
+        return m[..., 0, 0] * m[..., 1, 1] - m[..., 0, 1] * m[..., 1, 0]
+    if n == 3:
+        a, b, c = m[..., 0, 0], m[..., 0, 1], m[..., 0, 2]
+        d, e, f = m[..., 1, 0], m[..., 1, 1], m[..., 1, 2]
+        g, h, i = m[..., 2, 0], m[..., 2, 1], m[..., 2, 2]
+        return a * (e * i - f * h) - b * (d * i - f * g) + c * (d * h - e * g)
+    return np.linalg.det(m)
+
+
+def block_coefficients(system: MnaSystem, plan: _BlockPlan, w_ref: float, sl: slice):
+    """Denominator and numerator coefficients of one block for the trials in ``sl``.
+
+    Returns
+    -------
+    den : ndarray, shape (Tc, dd+1)
+        Coefficients of ``det(G + s*C)`` in ``sigma = s/w_ref``, ascending,
+        scaled per trial so the largest magnitude is 1.
+    nums : dict of (int, int) to ndarray, shape (Tc, dn+1)
+        Numerator of the transfer function from input ``c`` to unknown ``k``,
+        with the same per-trial scale.
+    """
+    b = plan.block
+    g_bb, c_bb = system.stamp(sl, rows=b.rows, cols=b.cols)
+    tc, nb, _ = g_bb.shape
+    p = plan.points
+    sig = np.exp(1j * (THETA + 2.0 * np.pi * np.arange(p) / p))            # (P,)
+    m = g_bb[:, None, :, :] + sig[None, :, None, None] * (w_ref * c_bb)[:, None, :, :]  # (Tc,P,nb,nb)
+    den_vals = _det(m)
+    cols = []
+    if plan.ext:
+        g_bw, c_bw = system.stamp(sl, rows=b.rows, cols=plan.ext)
+        w = -(g_bw[:, None, :, :] + sig[None, :, None, None] * (w_ref * c_bw)[:, None, :, :])  # (Tc,P,nb,m)
+        for i in range(len(plan.ext)):
+            cols.append(w[..., i])
+    if plan.has_rhs:
+        e = np.zeros((tc, p, nb), dtype=complex)
+        e[..., plan.rhs_pos] = 1.0
+        cols.append(e)
+    keys = []
+    mats = []
+    for k in b.needed:
+        kp = b.cols.index(k)
+        for ci, c in enumerate(plan.inputs):
+            mk = m.copy()
+            mk[..., :, kp] = cols[ci]
+            mats.append(mk)
+            keys.append((k, c))
+    num_vals = _det(np.stack(mats, axis=2)) if mats else np.zeros((tc, p, 0))
+    den = _coefficients(den_vals, plan.den_bounds)
+    scale = np.max(np.abs(den), axis=1)
+    if not np.all(scale > 0):
+        bad = int(np.flatnonzero(~(scale > 0))[0])
+        raise CircuitError(f"the circuit is singular in trial {bad + (sl.start or 0)}: a stage determinant "
+                           f"is zero (unknowns {', '.join(system.unknowns[c] for c in b.cols)})")
+    den /= scale[:, None]
+    nums = {}
+    for i, key in enumerate(keys):
+        coef = _coefficients(num_vals[:, :, i], plan.num_bounds[key])
+        coef /= scale[:, None]
+        nums[key] = coef
+    return den, nums
+
+
+def _polymul(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Per-row product of coefficient arrays (Tc, na) and (Tc, nb) -> (Tc, na+nb-1)."""
+    if a.shape[1] > b.shape[1]:
+        a, b = b, a
+    out = np.zeros((a.shape[0], a.shape[1] + b.shape[1] - 1))
+    for i in range(a.shape[1]):
+        out[:, i : i + b.shape[1]] += a[:, i : i + 1] * b
+    return out
+
+
+def _trim(c: np.ndarray) -> np.ndarray:
+    nz = np.flatnonzero(np.any(c != 0, axis=0))
+    return c[:, : (nz[-1] + 1 if nz.size else 1)]
+
+
+class _Evaluator:
+    """Evaluate real-coefficient polynomials in ``sigma = j*w/w_ref`` on a fixed grid."""
+
+    def __init__(self, omega: np.ndarray, w_ref: float):
+        self.sig = 1j * omega / w_ref
+        self._v = np.zeros((1, 2 * omega.size))
+        self._v[0, 0::2] = 1.0
+
+    def _vander(self, n: int) -> np.ndarray:
+        while self._v.shape[0] < n:
+            k = self._v.shape[0]
+            row = np.zeros((1, self._v.shape[1]))
+            pw = self.sig ** k
+            row[0, 0::2] = pw.real
+            row[0, 1::2] = pw.imag
+            self._v = np.vstack([self._v, row])
+        return self._v[:n]
+
+    def __call__(self, coef: np.ndarray) -> np.ndarray:
+        """Values (Tc, F) complex of the polynomials in the rows of ``coef`` (Tc, d+1)."""
+        v = self._vander(coef.shape[1])
+        return np.ascontiguousarray(coef @ v).view(np.complex128)
+
+
+@dataclass
+class _Numeric:
+    """An unknown evaluated on the grid: ``sum_c N_c/D * x_c`` (coefficients over all trials)."""
+
+    den: np.ndarray
+    terms: list[tuple[np.ndarray, int]]   # (numerator coefficients, input unknown or RHS)
+
+
+def stage_representations(system: MnaSystem, plans: list[_BlockPlan], w_ref: float,
+                          coef_chunk: int) -> dict[int, object]:
+    """Per-trial rational representation of every needed unknown.
+
+    Cascaded stages (one input each) are merged into one numerator and
+    denominator per trial; an unknown fed by several inputs is kept as a
+    sum (:class:`_Numeric`) to be evaluated on the frequency grid.
+
+    Returns
+    -------
+    dict of int to _Rational or _Numeric
+        Coefficient arrays have shape (T, d+1), ascending powers of
+        ``sigma = s / w_ref``.
+    """
+    t = system.trials
+    reps: dict[int, object] = {RHS: _Rational(np.ones((t, 1)), np.ones((t, 1)))}
+    for plan in plans:
+        parts = [block_coefficients(system, plan, w_ref, slice(t0, min(t, t0 + coef_chunk)))
+                 for t0 in range(0, t, coef_chunk)]
+        if len(parts) == 1:
+            den, nums = parts[0]
+        else:
+            den = np.concatenate([p[0] for p in parts])
+            nums = {key: np.concatenate([p[1][key] for p in parts]) for key in parts[0][1]}
+        for k in plan.block.needed:
+            terms = [(nums[(k, c)], c) for c in plan.inputs]
+            terms = [(n, c) for n, c in terms if np.any(n != 0)]
+            if len(terms) == 1 and isinstance(reps[terms[0][1]], _Rational):
+                n, c = terms[0]
+                r = reps[c]
+                num = _trim(_polymul(n, r.num))
+                dd = _trim(_polymul(den, r.den))
+                if max(num.shape[1], dd.shape[1]) - 1 <= MAX_MERGE_DEGREE:
+                    reps[k] = _Rational(num, dd)
+                    continue
+            reps[k] = _Numeric(den, terms)
+    return reps
+
+
+def evaluate_chunk(reps: dict[int, object], output_col: int, ev: "_Evaluator", sl: slice,
+                   out: np.ndarray) -> None:
+    """Write the response of unknown ``output_col`` for trials ``sl`` into ``out`` (Tc, F) complex."""
+    cache: dict[int, np.ndarray] = {}
+
+    def value(c: int) -> np.ndarray:
+        if c in cache:
+            return cache[c]
+        r = reps[c]
+        if isinstance(r, _Rational):
+            if r.num.shape[1] == 1 and r.den.shape[1] == 1:
+                v = (r.num[sl] / r.den[sl]).astype(complex)
+            else:
+                v = ev(r.num[sl]) / ev(r.den[sl])
+        else:
+            acc = None
+            for n, src in r.terms:
+                term = ev(n[sl]) * value(src)
+                acc = term if acc is None else acc + term
+            if acc is None:
+                acc = np.zeros((len(range(*sl.indices(r.den.shape[0]))), ev.sig.size), dtype=complex)
+            v = acc / ev(r.den[sl])
+        cache[c] = v
+        return v
+
+    r = reps[output_col]
+    if isinstance(r, _Rational) and (r.num.shape[1] > 1 or r.den.shape[1] > 1):
+        np.divide(ev(r.num[sl]), ev(r.den[sl]), out=out)
+    else:
+        out[...] = value(output_col)
+
+
+def bytes_per_trial(reps: dict[int, object], nfreq: int) -> int:
+    """Rough working memory of :func:`evaluate_chunk` per trial, bytes."""
+    numeric = sum(isinstance(r, _Numeric) for r in reps.values())
+    return 16 * nfreq * (3 + 2 * numeric)
+
+
+def coefficient_bytes_per_trial(plans: list[_BlockPlan]) -> int:
+    """Rough memory of :func:`block_coefficients` per trial, bytes (complex pencils at the interpolation points)."""
+    return max(16 * p.points * len(p.block.cols) ** 2 * (3 + len(p.num_bounds)) for p in plans)
