@@ -112,8 +112,9 @@ def parse_quantity(text: str, unit: str | None = None) -> float:
     if m:
         _check_unit(m.group("unit"), unit, text)
         prefix = m.group("prefix")
-        if prefix and m.group("unit") is None and unit is None:
-            pass
+        if prefix and "e" in m.group("num").lower():
+            raise QuantityError(f"cannot read {text!r}: use an exponent or an SI prefix, not both; "
+                                + _expected(unit))
         value = float(m.group("num"))
         if prefix:
             value = _scale(m.group("num"), PREFIXES[prefix])
@@ -143,7 +144,7 @@ def parse_quantity(text: str, unit: str | None = None) -> float:
 
 def _scale(number: str, exponent: int) -> float:
     """``float(number) * 10**exponent`` computed in decimal so "4.7k" is exactly 4700.0."""
-    return float(f"{number}e{exponent}") if "e" not in number.lower() else float(number) * 10.0 ** exponent
+    return float(f"{number}e{exponent}")
 
 
 def _finite(value: float, text: str, unit: str | None) -> float:
@@ -180,12 +181,20 @@ def format_quantity(value: float, unit: str = "", *, significant: int = 4, micro
     if value == 0:
         return f"0{unit}"
     digits = max(1, min(int(significant), 17))
-    rounded = float(f"{value:.{digits - 1}e}")
-    exponent3 = int(math.floor(math.log10(abs(rounded)) / 3) * 3)
+    sci = f"{abs(value):.{digits - 1}e}"          # "d.ddde+XX": the rounded value, exactly as text
+    mantissa_digits, exp_text = sci.split("e")
+    exponent = int(exp_text)
+    exponent3 = (exponent // 3) * 3
+    sign = "-" if value < 0 else ""
     if not -24 <= exponent3 <= 12:  # beyond the prefixes: plain scientific notation
-        return f"{rounded:.{digits}g}{unit}"
+        return f"{sign}{float(sci):.{digits}g}{unit}"
     prefix = dict(_ENGINEERING)[exponent3]
     if prefix == "u":
         prefix = micro
-    mantissa = rounded / 10.0 ** exponent3 if exponent3 >= 0 else rounded * 10.0 ** (-exponent3)
-    return f"{mantissa:.{digits}g}{prefix}{unit}"
+    ds = mantissa_digits.replace(".", "")
+    point = 1 + exponent - exponent3                # 1, 2 or 3 digits before the point
+    ds = ds.ljust(point, "0")
+    text = ds[:point] + ("." + ds[point:] if ds[point:] else "")
+    if "." in text:
+        text = text.rstrip("0").rstrip(".")
+    return f"{sign}{text}{prefix}{unit}"

@@ -65,12 +65,16 @@ def svg_response(svg: bytes) -> Response:
     return Response(svg, mimetype=SVG_MEDIA_TYPE)
 
 
-def alternative_content(*media_types: str, description: str) -> dict:
-    """OpenAPI ``responses`` fragment adding non-JSON media types to the 200 response."""
-    content = {}
+def alternative_content(*media_types: str, description: str, schema: str, example: Any = None) -> dict:
+    """OpenAPI ``responses`` fragment documenting the 200 response in JSON and other media types.
+
+    flask-smorest's ``@blp.doc`` replaces the 200's content when it merges, so
+    the JSON media type (with the component schema ``schema``) is restated here.
+    """
+    json_content: dict[str, Any] = {"schema": {"$ref": f"#/components/schemas/{schema}"}}
+    if example is not None:
+        json_content["example"] = example
+    content: dict[str, Any] = {"application/json": json_content}
     for mt in media_types:
-        if mt == SVG_MEDIA_TYPE:
-            content[mt] = {"schema": {"type": "string"}}
-        else:
-            content[mt] = {"schema": {"type": "string"}}
+        content[mt] = {"schema": {"type": "string", "format": "binary"} if mt == SVG_MEDIA_TYPE else {"type": "string"}}
     return {"responses": {"200": {"description": description, "content": content}}}

@@ -38,12 +38,27 @@ class JsonLineFormatter(logging.Formatter):
         return json.dumps(entry)
 
 
+class _StderrHandler(logging.StreamHandler):
+    """Writes to whatever ``sys.stderr`` is at the time of each record."""
+
+    def __init__(self):
+        super().__init__(sys.stderr)
+
+    @property
+    def stream(self):
+        return sys.stderr
+
+    @stream.setter
+    def stream(self, value):
+        pass
+
+
 def configure_logging(level: str) -> None:
     """Send the ``rolloff`` loggers to stderr as JSON lines (idempotent)."""
     root = logging.getLogger("rolloff")
     root.setLevel(level.upper())
     if not any(getattr(h, "_rolloff", False) for h in root.handlers):
-        handler = logging.StreamHandler(sys.stderr)
+        handler = _StderrHandler()
         handler.setFormatter(JsonLineFormatter())
         handler._rolloff = True  # type: ignore[attr-defined]
         root.addHandler(handler)

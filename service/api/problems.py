@@ -150,6 +150,14 @@ def handle_http_exception(error: HTTPException) -> Response:
         detail = f"The request has invalid fields: {fields_}." if fields_ else "The request is invalid."
         return problem_response(status, title="Validation failed", detail=detail, slug="validation",
                                 errors=errors, headers=headers | dict(data.get("headers") or {}))
+    if status == 413:
+        from flask import current_app
+
+        limit = current_app.config.get("MAX_CONTENT_LENGTH")
+        return problem_response(
+            413, title=title, slug="body-too-large", headers=headers,
+            detail=f"The request body exceeds the limit of {limit} bytes (set by ROLLOFF_MAX_BODY_BYTES).",
+            extra={"limit": "max_body_bytes", "limit_value": limit, "setting": "ROLLOFF_MAX_BODY_BYTES"})
     if status == 405:
         detail = f"{request.method} is not allowed here; allowed: {headers.get('Allow', '')}."
     elif status == 404:

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from service.components.series import normalize_series, scale_mantissas, series_mantissas
+from service.components.series import normalize_series, series_mantissas, series_value
 from service.errors import InvalidParameter
 
 # Values within this relative distance of a preferred value count as equal to it.
@@ -58,10 +58,8 @@ def _bracket(values: np.ndarray, series: str) -> tuple[np.ndarray, np.ndarray]:
     frac = x - decade
     # index of the largest mantissa <= value (with a little slack for values already preferred)
     idx = np.searchsorted(log_m, frac + np.log10(1 + _SAME), side="right") - 1
-    below = scale_mantissas(mant[idx], decade)
-    nxt = idx + 1
-    wrap = nxt >= mant.size
-    above = scale_mantissas(np.where(wrap, 1.0, mant[np.minimum(nxt, mant.size - 1)]), decade + wrap)
+    below = series_value(series, idx, decade)
+    above = series_value(series, idx + 1, decade)
     same = np.abs(below / values - 1) <= _SAME
     above = np.where(same, below, above)
     return below, above

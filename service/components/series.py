@@ -86,34 +86,56 @@ def series_mantissas(name: str) -> tuple[float, ...]:
     return _LISTED[normalize_series(name)]
 
 
-def scale_mantissas(mantissas: np.ndarray, decades: np.ndarray) -> np.ndarray:
-    """``mantissa * 10**decade`` rounded as the decimal value it names.
+_DECADE_MIN, _DECADE_MAX = -30, 20
 
-    Multiplying by a positive power of ten and dividing by it for negative
-    decades keeps values such as 4.7e-9 exactly as Python spells them.
+
+@lru_cache(maxsize=16)
+def decade_table(name: str) -> np.ndarray:
+    """Every value of a series from 1e-30 to 1e20 as the float its decimal spelling names.
+
+    Returns
+    -------
+    ndarray of float, shape (51, n)
+        Row ``d + 30`` holds ``mantissa * 10**d`` for the ``n`` mantissas, each
+        built as ``float("4.7e-9")`` (correctly rounded) rather than by
+        multiplying, which can give 8.199999999999999e-09 for 8.2 nF.
+    """
+    mant = _LISTED[normalize_series(name)]
+    table = np.array([[float(f"{m!r}e{d}") for m in mant] for d in range(_DECADE_MIN, _DECADE_MAX + 1)])
+    table.setflags(write=False)
+    return table
+
+
+def series_value(name: str, index: np.ndarray, decade: np.ndarray) -> np.ndarray:
+    """Value of mantissa ``index`` in ``decade`` of series ``name``, vectorized.
 
     Parameters
     ----------
-    mantissas : ndarray of float, shape (N,)
-    decades : ndarray of int, shape (N,)
+    name : str
+    index : ndarray of int, shape (N,)
+        Position in :func:`series_mantissas`; ``n`` means the next decade's 1.0.
+    decade : ndarray of int, shape (N,)
+        Power of ten, -30 ... 19.
 
     Returns
     -------
     ndarray of float, shape (N,)
     """
-    mantissas = np.asarray(mantissas, dtype=float)
-    decades = np.asarray(decades, dtype=int)
-    up = mantissas * 10.0 ** np.maximum(decades, 0)
-    return up / 10.0 ** np.maximum(-decades, 0)
+    table = decade_table(name)
+    index = np.asarray(index, dtype=int)
+    decade = np.asarray(decade, dtype=int)
+    wrap = index >= table.shape[1]
+    index = np.where(wrap, 0, index)
+    decade = np.clip(decade + wrap, _DECADE_MIN, _DECADE_MAX)
+    return table[decade - _DECADE_MIN, index]
 
 
 @lru_cache(maxsize=256)
 def _values_in_range(name: str, low: float, high: float) -> np.ndarray:
-    mant = np.asarray(_LISTED[name])
-    first = int(np.floor(np.log10(low))) - 1
-    last = int(np.floor(np.log10(high))) + 1
-    decades = np.repeat(np.arange(first, last + 1), mant.size)
-    values = scale_mantissas(np.tile(mant, last - first + 1), decades)
+    table = decade_table(name)
+    first = max(int(np.floor(np.log10(low))) - 1, _DECADE_MIN)
+    last = min(int(np.floor(np.log10(high))) + 1, _DECADE_MAX)
+    values = table[first - _DECADE_MIN:last - _DECADE_MIN + 1].ravel()
     slack = 1e-9
     keep = (values >= low * (1 - slack)) & (values <= high * (1 + slack))
     out = values[keep]

@@ -7,7 +7,7 @@ from flask import current_app
 from flask.views import MethodView
 
 from service.api.extension import Blueprint
-from service.api.schemas.common import ReplySchema
+from service.api.schemas.common import ReplySchema, StrictSchema
 from service.components import SERIES, SERIES_TOLERANCE, series_mantissas
 from service.version import API_VERSION, SERVICE_VERSION
 
@@ -48,12 +48,18 @@ def build_catalog(settings) -> dict:
     }
 
 
+class NoQuerySchema(StrictSchema):
+    """No query parameters (any given is rejected)."""
+
+
 @blp.route("/catalog")
 class Catalog(MethodView):
+    @blp.arguments(NoQuerySchema, location="query", unknown="raise")
     @blp.response(200, CatalogSchema)
+    @blp.alt_response(422, response="UNPROCESSABLE_ENTITY", description="An unknown query parameter was given.")
     @blp.doc(summary="What this service offers",
              description="Service and API versions, preferred-number series, the configured limits (with the "
                          "environment variable of each) and the operations answered. Built from the same "
                          "registries the service dispatches through.")
-    def get(self):
+    def get(self, _args):
         return build_catalog(current_app.config["ROLLOFF_SETTINGS"])

@@ -51,17 +51,19 @@ def _plain(value: float) -> str:
     return str(int(value)) if value.is_integer() and abs(value) < 1e15 else repr(value)
 
 
-_DOC = alternative_content(CSV_MEDIA_TYPE, TEXT_MEDIA_TYPE,
+_EXAMPLE = {
+    "value": 4870.0, "series": "E24", "nearest": 4700.0, "below": 4700.0, "above": 5100.0,
+    "nearest_error": -0.0349, "below_error": -0.0349, "above_error": 0.0472,
+    "formatted": {"nearest": "4.7k", "below": "4.7k", "above": "5.1k"}, "service_version": "0.1.0"}
+
+_DOC = alternative_content(CSV_MEDIA_TYPE, TEXT_MEDIA_TYPE, schema="Nearest", example=_EXAMPLE,
                            description="Nearest preferred values (JSON), a one-row CSV table, or the nearest value as text.")
 
 
 @blp.route("/nearest")
 class Nearest(MethodView):
     @blp.arguments(NearestQuerySchema, location="query", unknown="raise")
-    @blp.response(200, NearestSchema, example={
-        "value": 4870.0, "series": "E24", "nearest": 4700.0, "below": 4700.0, "above": 5100.0,
-        "nearest_error": -0.0349, "below_error": -0.0349, "above_error": 0.0472,
-        "formatted": {"nearest": "4.7k", "below": "4.7k", "above": "5.1k"}, "service_version": "0.1.0"})
+    @blp.response(200, NearestSchema)
     @blp.alt_response(422, response="UNPROCESSABLE_ENTITY", description="A field is missing or invalid.")
     @blp.doc(summary="Nearest preferred value (query parameters)", description=_DESCRIPTION, **_DOC)
     def get(self, args):
