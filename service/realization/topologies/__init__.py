@@ -16,9 +16,27 @@ from __future__ import annotations
 
 from service.realization.errors import UnknownTopology
 from service.realization.topologies.base import PartSpec, Topology
+from service.realization.topologies.auto import auto_topology
+from service.realization.topologies.first_order import INVERTING_FIRST_ORDER, NONINVERTING_FIRST_ORDER, RC_FIRST_ORDER
+from service.realization.topologies.multiple_feedback import MULTIPLE_FEEDBACK
 from service.realization.topologies.sallen_key import SALLEN_KEY
+from service.realization.topologies.state_variable import STATE_VARIABLE
+from service.realization.topologies.tow_thomas import TOW_THOMAS
+from service.realization.topologies.twin_t import TWIN_T_NOTCH
 
-TOPOLOGIES: dict[str, Topology] = {t.name: t for t in (SALLEN_KEY,)}
+TOPOLOGIES: dict[str, Topology] = {
+    t.name: t
+    for t in (
+        RC_FIRST_ORDER,
+        INVERTING_FIRST_ORDER,
+        NONINVERTING_FIRST_ORDER,
+        SALLEN_KEY,
+        MULTIPLE_FEEDBACK,
+        STATE_VARIABLE,
+        TOW_THOMAS,
+        TWIN_T_NOTCH,
+    )
+}
 
 
 def get_topology(name: str) -> Topology:
@@ -37,4 +55,9 @@ def get_topology(name: str) -> Topology:
         ) from None
 
 
-__all__ = ["TOPOLOGIES", "Topology", "PartSpec", "get_topology"]
+def describe_all() -> list[dict]:
+    """Catalog entries of every registered topology (see :meth:`Topology.describe`)."""
+    return [t.describe() for t in TOPOLOGIES.values()]
+
+
+__all__ = ["TOPOLOGIES", "Topology", "PartSpec", "get_topology", "auto_topology", "describe_all"]
