@@ -15,6 +15,7 @@ are in Hz at this surface, roots in rad/s.
 """
 
 from service.response.analysis import analyze
+from service.response.comparison import Comparison, FamilyComparison, compare_families
 from service.response.errors import ImproperSystem, InvalidGrid, InvalidMask
 from service.response.formats import table_to_csv
 from service.response.grids import FrequencyGrid, TimeGrid, resolve_frequencies
@@ -25,7 +26,7 @@ from service.response.systems import CircuitSystem, ZpkSystem, section_zpk
 from service.response.zpk import MAGNITUDE_FLOOR_DB
 
 __all__ = [
-    "analyze", "ImproperSystem", "InvalidGrid", "InvalidMask", "table_to_csv", "FrequencyGrid", "TimeGrid",
+    "analyze", "Comparison", "FamilyComparison", "compare_families", "ImproperSystem", "InvalidGrid", "InvalidMask", "table_to_csv", "FrequencyGrid", "TimeGrid",
     "resolve_frequencies", "MARGIN_TOLERANCE_DB", "Mask", "MaskResult", "MaskSegment", "SegmentResult",
     "check_mask", "ResponseMetrics", "ResponseResult", "TimeResponse", "CircuitSystem", "ZpkSystem",
     "section_zpk", "MAGNITUDE_FLOOR_DB",

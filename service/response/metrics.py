@@ -165,8 +165,10 @@ def frequency_metrics(gain_db: Callable, delay_s: Callable, grid: np.ndarray, g0
         g0_db, ginf_db, m.peak_gain_db)
 
     # passband reference gain
+    pass_max = None
     if passbands:
-        ref = max(_extreme(gain_db, a, b, grid, maximum=True)[1] for a, b in passbands)
+        pass_max = max(_extreme(gain_db, a, b, grid, maximum=True)[1] for a, b in passbands)
+        ref = pass_max
     elif rt in (ResponseType.LOWPASS, ResponseType.BANDSTOP):
         ref = g0_db
     elif rt is ResponseType.HIGHPASS:
@@ -223,7 +225,7 @@ def frequency_metrics(gain_db: Callable, delay_s: Callable, grid: np.ndarray, g0
     # passband intervals for ripple / delay variation
     pbs = passbands
     if pbs:
-        hi_ = max(_extreme(gain_db, a, b, grid, maximum=True)[1] for a, b in pbs)
+        hi_ = pass_max
         lo_ = min(_extreme(gain_db, a, b, grid, maximum=False)[1] for a, b in pbs)
         m.passband_ripple_db = float(hi_ - lo_)
     else:
@@ -294,7 +296,7 @@ def step_metrics(sim, m: ResponseMetrics) -> None:
         if r[k] > 1.0:
             a, b = t[max(k - 1, 0)], t[min(k + 1, t.size - 1)]
             x, v = golden_minimize(lambda xs: -np.array([rn(float(s)) for s in xs]), np.array([a]),
-                                   np.array([b]), iterations=30)
+                                   np.array([b]), iterations=20)
             m.overshoot_pct = float(max(-v[0], r[k]) - 1.0) * 100.0
         else:
             m.overshoot_pct = 0.0

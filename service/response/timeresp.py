@@ -112,10 +112,12 @@ def cascade_state_space(zeros, poles, gain, w_ref: float):
         order = den.size - 1
         num = np.zeros(1) + 1.0 if num is None else num
         num = np.concatenate([np.zeros(order + 1 - num.size), num])
-        # unit gain at the section's own natural frequency keeps states O(1)
+        # scale each section so the largest of |H(0)|, |H(j wn)|, |H(inf)| is 1,
+        # which keeps the states O(1) (a zero may sit exactly at j wn)
         wn = abs(den[-1]) ** (1.0 / order)
         sn = 1j * wn
-        g = abs(np.polyval(den, sn)) / max(abs(np.polyval(num, sn)), 1e-300)
+        level = max(abs(num[-1] / den[-1]), abs(np.polyval(num, sn) / np.polyval(den, sn)), abs(num[0]))
+        g = 1.0 / level
         num = num * g
         k /= g
         d = num[0]

@@ -1,0 +1,234 @@
+"""Every approximation family side by side for one requirement.
+
+For each family the lowest order meeting the requirement is designed
+(:func:`service.approximation.design_by_requirement`) and judged on the same
+figures: order, number of second-order sections, highest section Q,
+passband group-delay variation, step overshoot, settling time to 1 %, and the
+worst margin against the requirement mask (checked densely, see
+:mod:`service.response.mask`). A family that cannot meet the requirement
+within ``max_order`` is listed with ``meets=False`` and the reason.
+
+The recommended family is the lowest-order one that meets the mask and also
+the stated overshoot and group-delay-variation limits (ties: lower highest Q,
+then the order of :class:`service.approximation.types.Family`).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any, Sequence
+
+import numpy as np
+
+from service.approximation.types import Family, ResponseType
+from service.errors import RolloffError
+from service.response import zpk as _zpk
+from service.errors import InvalidParameter
+from service.response.grids import TimeGrid
+from service.response.mask import Mask, check_mask
+from service.response.metrics import ResponseMetrics, _extreme, step_metrics
+from service.response.refine import analysis_grid_hz
+from service.response.timeresp import automatic_span, simulate
+
+#: Samples of the automatic time grid of each family's step response; the
+#: settling and overshoot figures are refined on the exact continuous response.
+COMPARISON_TIME_POINTS = 400
+
+
+@dataclass
+class FamilyComparison:
+    """One family's row. Units as the field names say; None when not designed."""
+
+    family: Family
+    meets: bool
+    order: int | None = None
+    sections: int | None = None
+    first_order_sections: int | None = None
+    max_q: float | None = None
+    group_delay_variation_s: float | None = None
+    overshoot_pct: float | None = None
+    settling_time_1pct_s: float | None = None
+    margin_db: float | None = None
+    within_limits: bool | None = None
+    reason: str | None = None
+    approximation: Any = field(default=None, repr=False, compare=False)
+
+    def as_dict(self) -> dict:
+        from service.response.result import _clean
+
+        return _clean({
+            "family": self.family.value, "order": self.order, "sections": self.sections,
+            "first_order_sections": self.first_order_sections, "max_q": self.max_q,
+            "group_delay_variation_s": self.group_delay_variation_s, "overshoot_pct": self.overshoot_pct,
+            "settling_time_1pct_s": self.settling_time_1pct_s, "margin_db": self.margin_db,
+            "meets": self.meets, "within_limits": self.within_limits, "reason": self.reason,
+        })
+
+
+@dataclass
+class Comparison:
+    """All families for one requirement and the recommendation.
+
+    Attributes
+    ----------
+    families : list of FamilyComparison
+    recommended : Family or None
+    recommended_reason : str
+        Why that family (or why none).
+    mask : Mask
+        The requirement mask every family was checked against.
+    """
+
+    families: list[FamilyComparison]
+    recommended: Family | None
+    recommended_reason: str
+    mask: Mask
+    response: ResponseType
+
+    def as_dict(self) -> dict:
+        return {"response": self.response.value, "families": [f.as_dict() for f in self.families],
+                "recommended": None if self.recommended is None else self.recommended.value,
+                "recommended_reason": self.recommended_reason}
+
+    _COLUMNS = ("family", "order", "sections", "first_order_sections", "max_q", "group_delay_variation_s",
+                "overshoot_pct", "settling_time_1pct_s", "margin_db", "meets", "within_limits", "reason")
+
+    def table(self) -> dict[str, np.ndarray]:
+        """Columns for CSV, a row per family (object arrays; None for missing)."""
+        rows = [f.as_dict() for f in self.families]
+        return {c: np.array([r[c] for r in rows], dtype=object) for c in self._COLUMNS}
+
+    def curves(self, points: int = 600) -> dict[str, tuple]:
+        """Per designed family: (frequency_hz, magnitude_db, time_s, step) for the figure."""
+        designed = [f for f in self.families if f.approximation is not None]
+        if not designed:
+            return {}
+        roots = np.concatenate([np.asarray(f.approximation.poles, dtype=complex) for f in designed])
+        crit = np.abs(roots) / (2 * math.pi)
+        fr = np.geomspace(crit.min() / 20.0, crit.max() * 20.0, points)
+        out = {}
+        for f in designed:
+            a = f.approximation
+            mag = _zpk.magnitude_db(_zpk.freqresp(a.zeros, a.poles, a.gain, 2 * math.pi * fr))
+            stop, dt = automatic_span(np.asarray(a.poles))
+            t = TimeGrid().times(stop, dt, automatic_points=COMPARISON_TIME_POINTS)
+            sim = simulate(a.zeros, a.poles, a.gain, t)
+            out[f.family.value] = (fr, mag, sim.time_s, sim.step)
+        return out
+
+    def svg(self) -> bytes:
+        """SVG figure: each family's magnitude against the mask, and their step responses."""
+        from service.response.plotting import comparison_figure_svg
+
+        return comparison_figure_svg(self)
+
+
+def _evaluate_family(family: Family, approx: Any, mask: Mask, overshoot_limit_pct, gd_limit_s) -> FamilyComparison:
+    z = np.asarray(approx.zeros, dtype=complex)
+    p = np.asarray(approx.poles, dtype=complex)
+    k = float(np.real(approx.gain))
+    secs = list(getattr(approx, "sections", []) or [])
+    n2 = sum(1 for s in secs if s.order == 2)
+    n1 = sum(1 for s in secs if s.order == 1)
+    qs = [float(s.q) for s in secs if s.order == 2 and s.q is not None]
+    row = FamilyComparison(family=family, meets=False, order=int(approx.order), sections=n2,
+                           first_order_sections=n1, max_q=max(qs) if qs else None, approximation=approx)
+
+    def gain_db(f):
+        return _zpk.magnitude_db(_zpk.freqresp(z, p, k, 2 * math.pi * np.asarray(f, dtype=float)))
+
+    def delay(f):
+        return _zpk.group_delay(z, p, 2 * math.pi * np.asarray(f, dtype=float))
+
+    mres = check_mask(mask, gain_db, z, p)
+    row.margin_db = mres.worst_margin_db
+    row.meets = mres.passed
+    grid = analysis_grid_hz(z, p, extra_hz=[e for s in mask.segments for e in (s.start_hz, s.stop_hz)])
+    top = grid[-1]
+    pbs = mask.passbands
+    dmax = max(_extreme(delay, a, min(b, top), grid, maximum=True)[1] for a, b in pbs)
+    dmin = min(_extreme(delay, a, min(b, top), grid, maximum=False)[1] for a, b in pbs)
+    row.group_delay_variation_s = float(dmax - dmin)
+    stop, dt = automatic_span(p)
+    t = TimeGrid().times(stop, dt, automatic_points=COMPARISON_TIME_POINTS)
+    sim = simulate(z, p, k, t)
+    sim.final_value = float(np.real(_zpk.dc_gain(z, p, k)))
+    m = ResponseMetrics()
+    step_metrics(sim, m)
+    row.overshoot_pct = m.overshoot_pct
+    row.settling_time_1pct_s = m.settling_time_1pct_s
+    ok = True
+    if overshoot_limit_pct is not None:
+        ok = ok and row.overshoot_pct is not None and row.overshoot_pct <= overshoot_limit_pct
+    if gd_limit_s is not None:
+        ok = ok and row.group_delay_variation_s <= gd_limit_s
+    row.within_limits = bool(ok)
+    if not row.meets:
+        row.reason = f"misses the requirement mask by {-row.margin_db:.3g} dB at {mres.worst_frequency_hz:.6g} Hz"
+    return row
+
+
+def compare_families(response: ResponseType | str, passband_hz, stopband_hz, passband_ripple_db: float,
+                     stopband_attenuation_db: float, *, overshoot_limit_pct: float | None = None,
+                     group_delay_variation_limit_s: float | None = None, max_order: int = 20,
+                     families: Sequence[Family | str] | None = None) -> Comparison:
+    """Design every family for one requirement and compare them.
+
+    Parameters
+    ----------
+    response : ResponseType or str
+    passband_hz, stopband_hz : float or (float, float)
+        Band edges (Hz); pairs for bandpass and bandstop.
+    passband_ripple_db, stopband_attenuation_db : float
+        Largest passband loss and smallest stopband loss (dB).
+    overshoot_limit_pct : float, optional
+        Largest acceptable step overshoot (%) for the recommendation.
+    group_delay_variation_limit_s : float, optional
+        Largest acceptable passband group-delay variation (s).
+    max_order : int
+        Highest order tried per family (``ROLLOFF_MAX_ORDER``).
+    families : sequence, optional
+        Families to compare (default: every :class:`Family`).
+
+    Returns
+    -------
+    Comparison
+
+    Raises
+    ------
+    InvalidMask
+        A malformed requirement (checked once, before any family is designed).
+    InvalidParameter
+        A negative limit.
+    """
+    from service.approximation import design_by_requirement
+
+    rt = ResponseType(response)
+    mask = Mask.from_requirement(rt, passband_hz, stopband_hz, passband_ripple_db, stopband_attenuation_db)
+    for name, v in (("overshoot_limit_pct", overshoot_limit_pct),
+                    ("group_delay_variation_limit_s", group_delay_variation_limit_s)):
+        if v is not None and not (math.isfinite(v) and v >= 0):
+            raise InvalidParameter(f"{name} must be a number >= 0", field=name)
+    fams = [Family(f) for f in families] if families is not None else list(Family)
+    rows = []
+    for fam in fams:
+        try:
+            approx = design_by_requirement(rt, fam, passband_hz, stopband_hz, passband_ripple_db,
+                                           stopband_attenuation_db, max_order=max_order)
+        except RolloffError as exc:
+            rows.append(FamilyComparison(family=fam, meets=False, reason=exc.message))
+            continue
+        rows.append(_evaluate_family(fam, approx, mask, overshoot_limit_pct, group_delay_variation_limit_s))
+    candidates = [r for r in rows if r.meets and r.within_limits]
+    limits = []
+    if overshoot_limit_pct is not None:
+        limits.append(f"overshoot <= {overshoot_limit_pct:g} %")
+    if group_delay_variation_limit_s is not None:
+        limits.append(f"group-delay variation <= {group_delay_variation_limit_s:g} s")
+    stated = " and " + " and ".join(limits) if limits else ""
+    if candidates:
+        best = min(candidates, key=lambda r: (r.order, r.max_q if r.max_q is not None else 0.0, fams.index(r.family)))
+        reason = f"lowest order ({best.order}) that meets the requirement{stated}"
+        return Comparison(rows, best.family, reason, mask, rt)
+    return Comparison(rows, None, f"no family meets the requirement{stated} within order {max_order}", mask, rt)

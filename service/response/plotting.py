@@ -1,0 +1,155 @@
+"""SVG figures of response and comparison results (matplotlib, Agg backend).
+
+matplotlib is imported inside the functions, never at module import, so the
+service starts without it and pays its import cost only on the first figure.
+Figures are 8 x 6.4 inches at 100 dpi (800 px wide).
+"""
+
+from __future__ import annotations
+
+import io
+import math
+
+import numpy as np
+
+WIDTH_IN = 8.0
+DPI = 100
+
+
+def _pyplot():
+    """The Figure class; no pyplot state, no global backend switch."""
+    from matplotlib.figure import Figure
+
+    return Figure
+
+
+def _render(fig) -> bytes:
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    FigureCanvasAgg(fig)
+    buf = io.BytesIO()
+    fig.savefig(buf, format="svg", metadata={"Date": None})
+    return buf.getvalue()
+
+
+def _draw_mask(ax, mask_result, f_lo: float, f_hi: float, y_lo: float) -> None:
+    """Shade the forbidden regions of a mask on a magnitude (dB) axis."""
+    ref = mask_result.reference_gain_db
+    for seg in mask_result.segments:
+        s = seg.segment
+        a = max(s.start_hz, f_lo)
+        b = min(s.stop_hz, f_hi) if math.isfinite(s.stop_hz) else f_hi
+        if not b > a:
+            continue
+        colour = "tab:green" if seg.passed else "tab:red"
+        if s.max_loss_db is not None:
+            ax.fill_between([a, b], [ref - s.max_loss_db] * 2, [y_lo] * 2, color=colour, alpha=0.12, lw=0)
+            ax.plot([a, b], [ref - s.max_loss_db] * 2, color=colour, lw=1.0)
+        if s.min_loss_db is not None:
+            top = ref + 10.0
+            ax.fill_between([a, b], [ref - s.min_loss_db] * 2, [top] * 2, color=colour, alpha=0.12, lw=0)
+            ax.plot([a, b], [ref - s.min_loss_db] * 2, color=colour, lw=1.0)
+    if mask_result.worst_frequency_hz and f_lo <= mask_result.worst_frequency_hz <= f_hi:
+        ax.axvline(mask_result.worst_frequency_hz, color="0.4", ls=":", lw=0.8)
+
+
+def response_figure_svg(result) -> bytes:
+    """Four panels: magnitude (dB, with the mask), phase (deg), group delay, step response.
+
+    Parameters
+    ----------
+    result : ResponseResult
+
+    Returns
+    -------
+    bytes
+        An SVG document.
+    """
+    Figure = _pyplot()
+    fig = Figure(figsize=(WIDTH_IN, 6.4), dpi=DPI, layout="constrained")
+    axs = fig.subplots(2, 2)
+    f = result.frequency_hz
+    log_x = bool(f.size > 1 and f[0] > 0 and f[-1] / f[0] > 20)
+    pos = f > 0 if log_x else np.ones(f.shape, dtype=bool)
+    fx = f[pos]
+    ax = axs[0, 0]
+    mag = result.magnitude_db[pos]
+    ax.plot(fx, mag, color="tab:blue", lw=1.2)
+    top = float(np.max(mag)) if mag.size else 0.0
+    y_lo = max(float(np.min(mag)) if mag.size else -100.0, top - 140.0)
+    if result.mask_result is not None and fx.size:
+        _draw_mask(ax, result.mask_result, float(fx[0]), float(fx[-1]), y_lo - 10.0)
+    ax.set_ylim(y_lo - 5.0, top + 5.0)
+    ax.set_title("Magnitude")
+    ax.set_ylabel("gain (dB)")
+    ax = axs[0, 1]
+    ax.plot(fx, result.phase_deg[pos], color="tab:purple", lw=1.2)
+    ax.set_title("Phase")
+    ax.set_ylabel("phase (deg)")
+    ax = axs[1, 0]
+    ax.plot(fx, result.group_delay_s[pos] * 1e3, color="tab:orange", lw=1.2)
+    ax.set_title("Group delay")
+    ax.set_ylabel("group delay (ms)")
+    for a in (axs[0, 0], axs[0, 1], axs[1, 0]):
+        if log_x:
+            a.set_xscale("log")
+        a.set_xlabel("frequency (Hz)")
+        a.grid(True, which="both", lw=0.3, alpha=0.6)
+    ax = axs[1, 1]
+    if result.step is not None:
+        ax.plot(result.step.time_s * 1e3, result.step.value, color="tab:green", lw=1.2)
+        ax.set_xlabel("time (ms)")
+        ax.set_ylabel("step response (V/V)")
+    else:
+        ax.text(0.5, 0.5, "time response unavailable", ha="center", va="center", transform=ax.transAxes)
+    ax.set_title("Step response")
+    ax.grid(True, lw=0.3, alpha=0.6)
+    return _render(fig)
+
+
+def comparison_figure_svg(comparison) -> bytes:
+    """Two panels: magnitude of every designed family with the mask, and their step responses.
+
+    Parameters
+    ----------
+    comparison : Comparison
+
+    Returns
+    -------
+    bytes
+        An SVG document.
+    """
+    Figure = _pyplot()
+    fig = Figure(figsize=(WIDTH_IN, 6.4), dpi=DPI, layout="constrained")
+    ax_m, ax_s = fig.subplots(2, 1)
+    curves = comparison.curves()
+    for name, (f, mag, t, y) in curves.items():
+        ax_m.plot(f, mag, lw=1.1, label=name)
+        if t is not None:
+            ax_s.plot(t * 1e3, y, lw=1.1, label=name)
+    if comparison.mask is not None and curves:
+        f0 = min(float(c[0][0]) for c in curves.values())
+        f1 = max(float(c[0][-1]) for c in curves.values())
+        att = max((s.min_loss_db or 0.0) for s in comparison.mask.segments)
+        for seg in comparison.mask.segments:
+            a = max(seg.start_hz, f0)
+            b = min(seg.stop_hz, f1)
+            if b <= a:
+                continue
+            if seg.max_loss_db is not None:
+                ax_m.plot([a, b], [-seg.max_loss_db] * 2, color="k", lw=1.0)
+            if seg.min_loss_db is not None:
+                ax_m.fill_between([a, b], [-seg.min_loss_db] * 2, [5.0] * 2, color="tab:red", alpha=0.12, lw=0)
+        ax_m.set_ylim(-(att + 40.0), 5.0)
+    ax_m.set_xscale("log")
+    ax_m.set_xlabel("frequency (Hz)")
+    ax_m.set_ylabel("gain (dB)")
+    ax_m.set_title("Magnitude of each family")
+    ax_m.grid(True, which="both", lw=0.3, alpha=0.6)
+    ax_s.set_xlabel("time (ms)")
+    ax_s.set_ylabel("step response (V/V)")
+    ax_s.set_title("Step response of each family")
+    ax_s.grid(True, lw=0.3, alpha=0.6)
+    if curves:
+        ax_m.legend(fontsize=8, ncols=2)
+    return _render(fig)
