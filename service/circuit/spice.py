@@ -21,8 +21,15 @@ import numpy as np
 from .errors import CircuitError
 from .netlist import Circuit, ElementKind, OpAmpModel
 
-IDEAL_GAIN = 1e12
-"""Open-loop gain of the exported ideal op-amp (closed-loop error about 1e-12 relative)."""
+IDEAL_GAIN = 1e9
+"""Open-loop gain of the exported ideal op-amp.
+
+The closed-loop error is about ``1/(IDEAL_GAIN * beta)`` relative (1e-8 dB
+for feedback factors near 1).  Larger gains do worse in practice: with 1e12
+ngspice 39's sparse LU loses accuracy (1.9e-3 dB and 0.16 degree off on a
+gain-of-2.2 Sallen-Key and a state-variable highpass, measured); 1e8 to 1e9
+keeps every reference circuit within 2e-6 dB and 1.2e-4 degree.
+"""
 
 _SUFFIXES = [(1e12, "T"), (1e9, "G"), (1e6, "Meg"), (1e3, "k"), (1.0, ""), (1e-3, "m"),
              (1e-6, "u"), (1e-9, "n"), (1e-12, "p"), (1e-15, "f")]
