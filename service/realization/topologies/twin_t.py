@@ -70,29 +70,45 @@ def _scale(p: list, c) -> list:
     return [x * c for x in p]
 
 
-def _quadratic_factor(coeffs: list) -> tuple[np.ndarray, np.ndarray]:
-    """``(alpha, beta)`` of the quadratic factor ``s^2 + alpha s + beta`` of a cubic.
+def _cubic_roots(coeffs: list) -> tuple[list, np.ndarray]:
+    """Monic coefficients ``[p0, p1, p2]`` and roots, shape (N, 3), of cubics given lowest power first.
 
-    ``coeffs`` lowest power first, each shape (N,) real.  The cubic's real
-    root nearest the real axis (min |imag|) is divided out; its roots come
-    from the eigenvalues of the companion matrices, vectorized over N.
+    Roots are the eigenvalues of the companion matrices, vectorized over N.
     """
-    c0, c1, c2, c3 = (np.asarray(c, dtype=np.float64) for c in coeffs)
-    c0, c1, c2, c3 = np.broadcast_arrays(c0, c1, c2, c3)
+    c0, c1, c2, c3 = np.broadcast_arrays(*(np.asarray(c, dtype=np.float64) for c in coeffs))
     p0, p1, p2 = c0 / c3, c1 / c3, c2 / c3
-    n = p0.shape[0]
-    comp = np.zeros((n, 3, 3))
+    comp = np.zeros((p0.shape[0], 3, 3))
     comp[:, 0, 0] = -p2
     comp[:, 0, 1] = -p1
     comp[:, 0, 2] = -p0
     comp[:, 1, 0] = 1.0
     comp[:, 2, 1] = 1.0
-    roots = np.linalg.eigvals(comp)
-    idx = np.argmin(np.abs(roots.imag), axis=1)
-    r = roots[np.arange(n), idx].real
+    return [p0, p1, p2], np.linalg.eigvals(comp)
+
+
+def _deflate(monic: list, r: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``(alpha, beta)`` with ``s^3 + p2 s^2 + p1 s + p0 = (s - r)(s^2 + alpha s + beta)``."""
+    _, p1, p2 = monic
     alpha = p2 + r
-    beta = p1 + alpha * r
-    return alpha, beta
+    return alpha, p1 + alpha * r
+
+
+def _biquad_factors(num: list, den: list):
+    """Quadratic factors of numerator and denominator cubics after removing the near-cancelling real pair.
+
+    The balanced twin-T has one real pole cancelled by a real zero; with
+    arbitrary values they stay close.  The pole/zero pair nearest each other
+    (of the 3 x 3 pairs) is taken as that pair; each side is deflated by its
+    own root (real part).
+    """
+    mn, rn = _cubic_roots(num)
+    md, rd = _cubic_roots(den)
+    n = rd.shape[0]
+    dist = np.abs(rd[:, :, None] - rn[:, None, :]).reshape(n, 9) + np.abs(rd.imag).repeat(3, axis=1) + np.abs(np.tile(rn.imag, 3))
+    flat = np.argmin(dist, axis=1)
+    i, j = flat // 3, flat % 3
+    rows = np.arange(n)
+    return _deflate(mn, rn[rows, j].real), _deflate(md, rd[rows, i].real)
 
 
 class TwinTNotch(Topology):
@@ -164,8 +180,7 @@ class TwinTNotch(Topology):
         self.check(section, strategy)
         num, den = self.polynomials(section, strategy, values)
         num, den = num[::-1], den[::-1]
-        a, b = _quadratic_factor(den)
-        _, bz = _quadratic_factor(num)
+        (_, bz), (a, b) = _biquad_factors(num, den)
         w0 = np.sqrt(b)
         return {"f0_hz": w0 / TWO_PI, "q": w0 / a, "gain": num[0] / den[0], "fz_hz": np.sqrt(bz) / TWO_PI}
 
