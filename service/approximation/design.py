@@ -30,7 +30,8 @@ from .errors import ApproximationError, InfeasibleRequirement, UnsupportedOrder
 from .evaluate import group_delay_s, loss_db, zpk_response
 from .families import _INFO
 from .order import (HALF_POWER_DB, bessel_delay_deviation_frequency, butterworth_order,
-                    chebyshev_order, elliptic_order, frequency_at_loss, linkwitz_riley_order)
+                    chebyshev_order, elliptic_order, elliptic_selectivity, frequency_at_loss,
+                    linkwitz_riley_order)
 from .prototypes import prototype
 from .sections import sections_from_zpk
 from .transforms import lowpass_scale, transform
@@ -281,6 +282,22 @@ def _check_order(family: Family, order, highest: int) -> int:
     return n
 
 
+MIN_TRANSITION = 1e-6   # smallest (stopband edge / passband edge - 1) computed accurately
+
+
+def _check_elliptic_transition(n, rp, rs, error):
+    """ellipap loses accuracy when the transition band is narrower than ~5e-9 of the
+    edge (measured against the equiripple bounds); refuse below MIN_TRANSITION."""
+    ratio = 1.0 / elliptic_selectivity(n, rp, rs)
+    if ratio - 1.0 < MIN_TRANSITION:
+        msg = (f"an elliptic filter of order {n} with {rp:g} dB ripple and {rs:g} dB attenuation "
+               f"has a transition band of {ratio - 1.0:.2e} of its edge, below the {MIN_TRANSITION:g} "
+               f"that is computed accurately: lower the order or raise stopband_attenuation_db")
+        if error is UnsupportedOrder:
+            raise UnsupportedOrder(msg, order=n, highest=n - 1)
+        raise error(msg, field="stopband_attenuation_db")
+
+
 # ------------------------------------------------------------------ by order
 def design_by_order(response, family, order, cutoff_hz, *, passband_ripple_db=None,
                     stopband_attenuation_db=None, cutoff_at="family",
@@ -330,6 +347,8 @@ def design_by_order(response, family, order, cutoff_hz, *, passband_ripple_db=No
     edge = V.band_edges(cutoff_hz, response, "cutoff_hz")
     notes: list[str] = []
     rp, rs = _shape_parameters(family, passband_ripple_db, stopband_attenuation_db, notes)
+    if family is Family.ELLIPTIC:
+        _check_elliptic_transition(n, rp, rs, UnsupportedOrder)
     a = 1.0
     meaning = _INFO[family].cutoff_meaning
     if cut_at is CutoffAt.MINUS_3DB:
@@ -476,7 +495,14 @@ def design_by_requirement(response, family, passband_hz, stopband_hz, passband_r
     rp = ap if _INFO[family].needs_ripple else None
     rs = as_ if _INFO[family].needs_attenuation else None
     sel = _selectivity(response, passband, stopband)
+    if sel - 1.0 < MIN_TRANSITION:
+        raise InfeasibleRequirement(
+            f"the transition band is {sel - 1.0:.2e} of the passband edge (equivalent lowpass "
+            f"selectivity), below the {MIN_TRANSITION:g} that is computed accurately",
+            field="stopband_hz")
     n, a_lo, a_hi = _minimum_order(family, sel, ap, as_, rp, rs, gd_norm, highest)
+    if family is Family.ELLIPTIC:
+        _check_elliptic_transition(n, rp, rs, InfeasibleRequirement)
     a = {Excess.STOPBAND: a_lo, Excess.PASSBAND: a_hi,
          Excess.SPLIT: math.sqrt(a_lo * a_hi)}[exc]
     z, p, k, secs = _assemble(family, response, n, rp, rs, a, passband, sec_order)

@@ -67,7 +67,7 @@ class Prototype:
 
 
 def _frozen(a) -> np.ndarray:
-    a = np.asarray(a, dtype=complex).copy()
+    a = np.atleast_1d(np.asarray(a, dtype=complex)).copy()
     a.setflags(write=False)
     return a
 
