@@ -99,7 +99,7 @@ class StrictFloat(Quantity):
 
 
 def _quantity2properties(self, field, ret=None, **kwargs):
-    if isinstance(field, Quantity):
+    if hasattr(field, "openapi_properties"):
         props = field.openapi_properties()
         ret = ret or {}
         ret.pop("type", None)

@@ -1,0 +1,123 @@
+"""/v1/approximations and /v1/approximations/compare."""
+
+from __future__ import annotations
+
+from flask import current_app
+from flask.views import MethodView
+
+from service.api.dispatch import approximation_from_filter, check_limit
+from service.api.extension import Blueprint
+from service.api.formats import CSV_MEDIA_TYPE, alternative_content, csv_response
+from service.api.schemas.filters import (
+    ApproximationQuerySchema, ApproximationRequestSchema, ApproximationSchema, ComparisonSchema,
+    CompareRequestSchema,
+)
+from service.response import compare_families
+
+blp = Blueprint("approximations", __name__, url_prefix="/v1/approximations",
+                description="Requirement or order to transfer function and sections.")
+
+_DESCRIPTION = """\
+Turns a requirement, or an order and cutoff, into a transfer function: zeros,
+poles (each `[re, im]` in rad/s) and gain, and the first- and second-order
+sections that realize it (their product is the transfer function; sorted by
+ascending Q unless `section_order` says otherwise).
+
+Ask **by order**: `order` + `cutoff_hz` (a pair `[low, high]` for bandpass and
+bandstop), with `passband_ripple_db` (Chebyshev I, elliptic) and
+`stopband_attenuation_db` (Chebyshev II, elliptic) where the family needs them.
+Or **by requirement**: `passband_hz`, `stopband_hz`, `passband_ripple_db` (largest
+passband loss, dB) and `stopband_attenuation_db` (smallest stopband loss, dB); the
+reply gives the lowest order of the family that meets it and, in `edges`, the
+achieved loss, the required loss and the margin at each edge.
+
+Frequencies in Hz (numbers or strings such as "25.6kHz"), losses in dB.
+`format=csv` returns the sections as a table. Infeasible or contradictory
+requirements (stopband inside the passband, attenuation not above the ripple, an
+odd-order Linkwitz-Riley) are 422 problems naming the condition.
+
+Example (Larkspur Fluidics PM-7 accelerometer channel, ahead of a 51.2 kS/s ADC):
+flat within 0.1 dB to 10 kHz, at least 80 dB down at 25.6 kHz.
+"""
+
+_EXAMPLE_REQUEST = {"response": "lowpass", "family": "elliptic", "passband_hz": "10kHz", "stopband_hz": "25.6kHz",
+                    "passband_ripple_db": 0.1, "stopband_attenuation_db": 80}
+
+
+def _sections_table(approx) -> dict:
+    sections = approx.sections
+    return {
+        "index": list(range(1, len(sections) + 1)),
+        "kind": [s.kind.value for s in sections], "order": [s.order for s in sections],
+        "f0_hz": [s.f0_hz for s in sections], "q": [s.q for s in sections],
+        "fz_hz": [s.fz_hz for s in sections], "gain": [s.gain for s in sections],
+    }
+
+
+def _answer(args):
+    approx = approximation_from_filter(args, current_app.config["ROLLOFF_SETTINGS"])
+    if args.get("format") == "csv":
+        return csv_response(_sections_table(approx), filename="sections.csv")
+    return approx.as_dict()
+
+
+_DOC = alternative_content(CSV_MEDIA_TYPE, schema="Approximation",
+                           description="The transfer function and its sections (JSON), or the sections as CSV.")
+
+
+@blp.route("")
+class Approximations(MethodView):
+    @blp.arguments(ApproximationQuerySchema, location="query", unknown="raise")
+    @blp.response(200, ApproximationSchema)
+    @blp.alt_response(422, response="UNPROCESSABLE_ENTITY", description="Invalid or infeasible request.")
+    @blp.doc(summary="Transfer function by order (query parameters)", description=_DESCRIPTION, **_DOC)
+    def get(self, args):
+        return _answer(args)
+
+    @blp.arguments(ApproximationRequestSchema, example=_EXAMPLE_REQUEST)
+    @blp.response(200, ApproximationSchema)
+    @blp.alt_response(400, response="BAD_REQUEST", description="The body is not valid JSON.")
+    @blp.alt_response(413, response="REQUEST_ENTITY_TOO_LARGE", description="The body is too large.")
+    @blp.alt_response(415, response="UNSUPPORTED_MEDIA_TYPE", description="The body is not JSON.")
+    @blp.alt_response(422, response="UNPROCESSABLE_ENTITY", description="Invalid or infeasible request.")
+    @blp.doc(summary="Transfer function from a requirement or an order", description=_DESCRIPTION, **_DOC)
+    def post(self, args):
+        return _answer(args)
+
+
+_COMPARE_DESCRIPTION = """\
+Every family that can meet one requirement, side by side: order, number of
+second-order sections, highest section Q (a sensitivity warning sign), passband
+group-delay variation (s), step overshoot (%), settling time to 1 % (s) and the
+smallest attenuation margin (dB). Families that cannot meet it within
+ROLLOFF_MAX_ORDER are listed with `meets: false` and the reason. With
+`overshoot_limit_pct` and/or `group_delay_variation_limit_s`, `recommended` is
+the lowest-order family that also meets those limits. `format=csv`: a row per
+family.
+
+Example (PM-7 accelerometer channel): which approximation for 0.1 dB to 10 kHz
+and 80 dB at 25.6 kHz, with at most 10 % step overshoot?
+"""
+
+
+@blp.route("/compare")
+class Compare(MethodView):
+    @blp.arguments(CompareRequestSchema, example=dict(
+        {k: v for k, v in _EXAMPLE_REQUEST.items() if k != "family"}, overshoot_limit_pct=10))
+    @blp.response(200, ComparisonSchema)
+    @blp.alt_response(400, response="BAD_REQUEST", description="The body is not valid JSON.")
+    @blp.alt_response(413, response="REQUEST_ENTITY_TOO_LARGE", description="The body is too large.")
+    @blp.alt_response(415, response="UNSUPPORTED_MEDIA_TYPE", description="The body is not JSON.")
+    @blp.alt_response(422, response="UNPROCESSABLE_ENTITY", description="Invalid or contradictory requirement.")
+    @blp.doc(summary="Every family side by side for one requirement", description=_COMPARE_DESCRIPTION,
+             **alternative_content(CSV_MEDIA_TYPE, schema="Comparison",
+                                   description="The comparison (JSON) or a row per family (CSV)."))
+    def post(self, args):
+        settings = current_app.config["ROLLOFF_SETTINGS"]
+        comparison = compare_families(
+            args["response"], args["passband_hz"], args["stopband_hz"], args["passband_ripple_db"],
+            args["stopband_attenuation_db"], overshoot_limit_pct=args.get("overshoot_limit_pct"),
+            group_delay_variation_limit_s=args.get("group_delay_variation_limit_s"), max_order=settings.max_order)
+        if args.get("format") == "csv":
+            return csv_response(comparison.table(), filename="compare.csv")
+        return comparison.as_dict()
