@@ -9,7 +9,9 @@ gain is judged on its shape), or a fixed ``reference_gain_db``.
 The check is made on the dense internal grid of
 :func:`service.response.refine.analysis_grid_hz` restricted to each segment,
 plus the segment edges and the caller's own grid points, and the margin is then
-refined by golden-section search around every sampled local minimum
+refined by a bracketed minimisation (nested uniform search with a final
+parabolic step, see :func:`service.response.refine.zoom_minimize`) around
+every sampled local minimum
 (segment edges included). A ripple peak between two display-grid samples
 therefore cannot hide a failure.
 

@@ -2,7 +2,7 @@
 
 Frequency metrics are taken on the dense internal grid of
 :func:`service.response.refine.analysis_grid_hz`, independent of the display
-grid; peaks and extremes are refined by golden-section search and every
+grid; peaks and extremes are refined by a bracketed minimisation and every
 crossing by Brent's root finding on the exact response.
 
 Definitions (documented public behaviour)
@@ -52,7 +52,7 @@ from typing import Callable
 import numpy as np
 
 from service.approximation.types import ResponseType
-from service.response.refine import crossing, golden_minimize, refine_minimum
+from service.response.refine import crossing, refine_minimum, zoom_minimize
 
 HALF_POWER_DB = 10.0 * math.log10(2.0)
 #: A peak no higher than the DC (or high-frequency) gain by more than this is
@@ -159,7 +159,7 @@ def frequency_metrics(gain_db: Callable, delay_s: Callable, grid: np.ndarray, g0
         lo = grid[max(kp - 1, 0)]
         hi = grid[min(kp + 1, grid.size - 1)]
         neg = lambda u: -gain_db(np.exp(u))  # noqa: E731
-        x, v = golden_minimize(neg, np.array([math.log(lo)]), np.array([math.log(hi)]))
+        x, v = zoom_minimize(neg, np.array([math.log(lo)]), np.array([math.log(hi)]))
         m.peak_gain_db, m.peak_frequency_hz = float(-v[0]), float(math.exp(x[0]))
     rt = ResponseType(response_type) if response_type is not None else infer_response_type(
         g0_db, ginf_db, m.peak_gain_db)
@@ -270,60 +270,74 @@ def frequency_metrics(gain_db: Callable, delay_s: Callable, grid: np.ndarray, g0
 def step_metrics(sim, m: ResponseMetrics) -> None:
     """Fill the step-response metrics of ``m`` from a :class:`StateSpaceResponse`.
 
-    Every crossing is refined by Brent's method and the overshoot peak by
-    golden-section search on the exact continuous response
-    (``sim.step_at``), so they do not depend on the time step.
+    Every crossing is refined by multisection root finding and the overshoot
+    peak by a nested bracket search, both on the exact continuous response
+    (:meth:`StateSpaceResponse.refine_roots`, ``refine_peak``), so they do not
+    depend on the time step.
     """
     t, y = sim.time_s, sim.step
     yf = sim.final_value
     peak_abs = float(np.max(np.abs(y)))
     has_final = abs(yf) > 1e-9 * max(peak_abs, 1e-300)
-    at = sim.step_at
-
-    def last_exit(err: np.ndarray, tol: float, efun) -> float | None:
-        out = np.nonzero(err > tol)[0]
-        if out.size == 0:
-            return 0.0
-        i = int(out[-1])
-        if i == t.size - 1:
-            return None
-        return crossing(lambda x: efun(x) - tol, float(t[i]), float(t[i + 1]))
-
+    n = t.size
     if has_final:
         r = y / yf
-        rn = lambda x: at(x) / yf  # noqa: E731
-        k = int(np.argmax(r))
-        if r[k] > 1.0:
-            a, b = t[max(k - 1, 0)], t[min(k + 1, t.size - 1)]
-            x, v = golden_minimize(lambda xs: -np.array([rn(float(s)) for s in xs]), np.array([a]),
-                                   np.array([b]), iterations=20)
-            m.overshoot_pct = float(max(-v[0], r[k]) - 1.0) * 100.0
-        else:
-            m.overshoot_pct = 0.0
-        times = []
-        for lev in (0.1, 0.9):
-            idx = np.nonzero(r >= lev)[0]
-            if idx.size == 0:
-                times.append(None)
-            elif idx[0] == 0:
-                times.append(0.0)
-            else:
-                i = int(idx[0])
-                times.append(crossing(lambda x, lev=lev: rn(x) - lev, float(t[i - 1]), float(t[i])))
-        if None in times:
-            m.unavailable["rise_time_s"] = "the step response does not reach 90 % within the time span"
-        else:
-            m.rise_time_s = float(times[1] - times[0])
-        err = np.abs(r - 1.0)
-        efun = lambda x: abs(rn(x) - 1.0)  # noqa: E731
+        ref = yf
     else:
         why = "the step response settles to 0 (no DC gain), so it has no final value to overshoot or rise to"
         m.unavailable["overshoot_pct"] = why
         m.unavailable["rise_time_s"] = why
-        err = np.abs(y) / peak_abs
-        efun = lambda x: abs(at(x)) / peak_abs  # noqa: E731
+        r = y / peak_abs
+        ref = peak_abs
+
+    # crossings: (level, kind) with kind "first_up" (first r >= level) or
+    # "settle" (last |r - target| > tol)
+    target = 1.0 if has_final else 0.0
+    err = np.abs(r - target)
+    names, lo, hi, levels, kinds, direct = [], [], [], [], [], {}
+    if has_final:
+        for name, lev in (("t10", 0.1), ("t90", 0.9)):
+            idx = np.nonzero(r >= lev)[0]
+            if idx.size == 0:
+                direct[name] = None
+            elif idx[0] == 0:
+                direct[name] = 0.0
+            else:
+                i = int(idx[0])
+                names.append(name); lo.append(t[i - 1]); hi.append(t[i]); levels.append(lev); kinds.append(0)
     for name, tol in (("settling_time_1pct_s", 0.01), ("settling_time_01pct_s", 0.001)):
-        v = last_exit(err, tol, efun)
+        out = np.nonzero(err > tol)[0]
+        if out.size == 0:
+            direct[name] = 0.0
+        elif out[-1] == n - 1:
+            direct[name] = None
+        else:
+            i = int(out[-1])
+            names.append(name); lo.append(t[i]); hi.append(t[i + 1]); levels.append(tol); kinds.append(1)
+    if names:
+        lev = np.array(levels)[:, None]
+        kind = np.array(kinds)[:, None]
+
+        def g(v):
+            v = v / ref
+            return np.where(kind == 0, v, np.abs(v - target)) - lev
+
+        roots = sim.refine_roots(np.searchsorted(t, np.array(lo)), g)
+        direct.update(zip(names, roots.tolist()))
+    for name in ("settling_time_1pct_s", "settling_time_01pct_s"):
+        v = direct.get(name)
         if v is None:
             m.unavailable[name] = "the step response has not settled within the time span"
         setattr(m, name, v)
+    if not has_final:
+        return
+    if direct.get("t10") is None or direct.get("t90") is None:
+        m.unavailable["rise_time_s"] = "the step response does not reach 90 % within the time span"
+    else:
+        m.rise_time_s = float(direct["t90"] - direct["t10"])
+    k = int(np.argmax(r))
+    if r[k] > 1.0:
+        peak = sim.refine_peak(k, sign=1.0 if yf > 0 else -1.0) / abs(yf)
+        m.overshoot_pct = float(max(peak, r[k]) - 1.0) * 100.0
+    else:
+        m.overshoot_pct = 0.0

@@ -193,6 +193,71 @@ class StateSpaceResponse:
     _X: np.ndarray  # augmented states at samples, (N, n+1)
     _w_ref: float
 
+    def _walk(self, starts: np.ndarray, h_s: float, points: int) -> np.ndarray:
+        """Augmented states at starts + j*h (j = 0..points-1); starts (M, n+1) -> (M, points, n+1)."""
+        e_t = expm(self._A_aug * (h_s * self._w_ref)).T
+        out = np.empty((starts.shape[0], points, starts.shape[1]))
+        out[:, 0] = starts
+        for j in range(1, points):
+            out[:, j] = out[:, j - 1] @ e_t
+        return out
+
+    def refine_roots(self, index: np.ndarray, func, passes: int = 6, points: int = 17) -> np.ndarray:
+        """Instants (s) where ``func`` of the step changes sign, one per sample interval.
+
+        Multisection of each interval [t_i, t_i+1] on the exact response: every
+        pass walks the state across the interval with one matrix exponential
+        shared by all intervals, keeps the sub-interval where the sign changes
+        and ends with a false-position step.
+
+        Parameters
+        ----------
+        index : ndarray of int (M,)
+            Sample i of each bracket [t_i, t_i+1].
+        func : callable
+            ``func(y) -> g`` on arrays of shape (M, points); row m belongs to bracket m.
+        """
+        idx = np.asarray(index, dtype=int)
+        m = idx.size
+        if m == 0:
+            return np.zeros(0)
+        dt = float(self.time_s[1] - self.time_s[0])
+        a = self.time_s[idx].astype(float)
+        starts = self._X[idx]
+        h = dt
+        rows = np.arange(m)
+        for _ in range(passes):
+            h = h / (points - 1)
+            states = self._walk(starts, h, points)
+            g = func(states @ self._C_aug)
+            sgn = np.signbit(g)
+            change = (sgn[:, 1:] != sgn[:, :-1]) | (g[:, 1:] == 0)
+            j = np.where(change.any(axis=1), np.argmax(change, axis=1), 0)
+            ga, gb = g[rows, j], g[rows, j + 1]
+            a = a + j * h
+            starts = states[rows, j]
+        den = gb - ga
+        frac = np.divide(-ga, den, out=np.full(m, 0.5), where=den != 0)
+        return a + h * np.clip(frac, 0.0, 1.0)
+
+    def refine_peak(self, k: int, sign: float = 1.0, passes: int = 6, points: int = 17) -> float:
+        """Largest value of sign*step over [t_k-1, t_k+1], refined on the exact response."""
+        dt = float(self.time_s[1] - self.time_s[0])
+        k0 = max(k - 1, 0)
+        start = self._X[k0][None, :]
+        width = dt * (min(k + 1, self.time_s.size - 1) - k0)
+        best = -np.inf
+        for _ in range(passes):
+            h = width / (points - 1)
+            states = self._walk(start, h, points)
+            v = sign * (states[0] @ self._C_aug)
+            j = int(np.argmax(v))
+            best = max(best, float(v[j]))
+            lo_j = max(j - 1, 0)
+            start = states[:, lo_j]
+            width = h * (min(j + 1, points - 1) - lo_j)
+        return best
+
     def step_at(self, t_s: float) -> float:
         """Step response at any time t >= 0 (s), exact: C expm(A (t - t_k)) x_k."""
         dt = self.time_s[1] - self.time_s[0] if self.time_s.size > 1 else 1.0
