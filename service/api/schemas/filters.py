@@ -126,9 +126,9 @@ class SectionSchema(StrictSchema):
     kind = one_of(SectionKind, required=True, description="Standard form of the section.")
     order = StrictInteger(required=True, validate=ma.validate.OneOf([1, 2]))
     f0_hz = Quantity(unit="Hz", required=True, validate=FREQ_RANGE, metadata={"description": "Pole frequency (Hz)."})
-    q = ma.fields.Float(allow_none=True, load_default=None, validate=ma.validate.Range(min=0.05, max=1000),
+    q = ma.fields.Float(allow_none=True, validate=ma.validate.Range(min=0.05, max=1000),
                         metadata={"description": "Pole Q (null for first order)."})
-    fz_hz = Quantity(unit="Hz", allow_none=True, load_default=None, validate=FREQ_RANGE,
+    fz_hz = Quantity(unit="Hz", allow_none=True, validate=FREQ_RANGE,
                      metadata={"description": "Zero frequency (Hz) of the notch kinds, else null."})
     gain = ma.fields.Float(required=True, validate=ma.validate.Range(min=-1e6, max=1e6),
                            metadata={"description": "Gain g of the standard form."})
