@@ -1,0 +1,32 @@
+"""Realization: op-amp stages with parts that can be bought.
+
+From an approximation's sections to a design document: topology and strategy
+per section (:data:`TOPOLOGIES`, :func:`auto_topology`), section order and
+gain distribution, part values chosen from the caller's series or stock list,
+the op-amp each stage needs, the achieved figures read back from the circuit
+engine, BOM, SPICE netlist, summary against the requirement, and cautions.
+
+Public surface
+--------------
+Inputs: :class:`PartsPolicy`, :class:`KindPolicy`, :class:`StockPart`, :class:`OpAmpSpec`.
+Results: :class:`Design`, :class:`Stage`, :class:`Component`, :class:`OpAmpUse`,
+:class:`OpAmpRequirement`, :class:`DesignWarning`.
+Functions: :func:`design_filter`, :func:`evaluate_document`,
+:func:`design_to_circuit`, :func:`document_from_design`, :func:`auto_topology`.
+Errors: :class:`RealizationError` and its subclasses in :mod:`service.realization.errors`.
+"""
+
+from service.realization.design import design_filter
+from service.realization.document import design_to_circuit, document_from_design, evaluate_document
+from service.realization.errors import RealizationError
+from service.realization.opamp import OpAmpSpec
+from service.realization.parts import KindPolicy, PartsPolicy, StockPart
+from service.realization.results import Component, Design, DesignWarning, OpAmpRequirement, OpAmpUse, Stage
+from service.realization.topologies import TOPOLOGIES, auto_topology
+
+__all__ = [
+    "PartsPolicy", "KindPolicy", "StockPart", "OpAmpSpec",
+    "Design", "Stage", "Component", "OpAmpUse", "OpAmpRequirement", "DesignWarning",
+    "design_filter", "evaluate_document", "design_to_circuit", "document_from_design",
+    "TOPOLOGIES", "auto_topology", "RealizationError",
+]

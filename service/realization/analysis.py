@@ -1,0 +1,237 @@
+"""Analyze a cascade of chosen parts with the circuit engine.
+
+Given the stages of a design (target section, topology, strategy, parts with
+their refs, op-amps), this module builds each stage's circuit, reads its
+achieved f0, Q, gain and zero frequency back from the engine's poles and
+zeros, finds the op-amp GBW and slew rate each stage needs, the peak gain of
+every stage output, the loss at the requirement's edges, and assembles the
+:class:`Design` with BOM, netlist and warnings.  Both the design path and the
+evaluation of an edited document end here, so the two report the same figures
+for the same parts.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from service.approximation.types import Section
+from service.circuit import Circuit, OpAmpModel, to_spice, transfer_function_zpk
+from service.realization.cascade import analysis_grid, grid_peak
+from service.realization.fit import fit_section, standard_shape, worst_error, zpk_eval
+from service.realization.opamp import (
+    DEFAULT_A0_DB, RULE_OF_THUMB, SLEW_RULE, gbw_rule_of_thumb, required_gbw, slew_required,
+)
+from service.realization.results import Component, Design, OpAmpRequirement, OpAmpUse, Stage
+from service.realization.warnings import collect_warnings
+
+#: Highest frequency considered for "where the stage passes signal", as a multiple
+#: of the highest section frequency (a highpass passes up to the op-amp's own limit).
+SIGNAL_BAND_FACTOR = 10.0
+#: Relative precision of the required GBW (it is reported on the safe side of the boundary).
+GBW_RTOL = 0.05
+
+
+@dataclass
+class StagePlan:
+    """One stage to analyze: what it should do and what it is built from."""
+
+    section: Section
+    topology: object
+    strategy: str
+    components: list[Component]
+    opamps: list[OpAmpUse]
+    notes: list = field(default_factory=list)
+
+    @property
+    def refs(self) -> dict[str, str]:
+        r = {c.role: c.ref for c in self.components}
+        r.update({u.role: u.ref for u in self.opamps})
+        return r
+
+    @property
+    def values(self) -> dict[str, float]:
+        return {c.role: c.value for c in self.components}
+
+    def model(self, gbw_hz: float | None = None) -> OpAmpModel | None:
+        """The op-amp macromodel of this stage (None: ideal), or one with ``gbw_hz``."""
+        u = self.opamps[0] if self.opamps else None
+        a0_db = DEFAULT_A0_DB if (u is None or u.a0_db is None) else u.a0_db
+        rout = 0.0 if (u is None or u.rout_ohm is None) else u.rout_ohm
+        if gbw_hz is not None:
+            return OpAmpModel(gbw_hz=float(gbw_hz), a0=10 ** (a0_db / 20), rout_ohm=rout)
+        if u is None or u.gbw_hz is None:
+            return None
+        return OpAmpModel(gbw_hz=float(u.gbw_hz), a0=10 ** (a0_db / 20), rout_ohm=rout)
+
+
+def build_stage(circuit: Circuit, plan: StagePlan, *, input_node: str, output_node: str, prefix: str,
+                model: OpAmpModel | None) -> None:
+    """Add one stage to ``circuit`` with its refs as element names."""
+    plan.topology.build(circuit, plan.section, plan.strategy, plan.values, plan.refs,
+                        input_node=input_node, output_node=output_node, prefix=prefix, opamp_model=model)
+
+
+def stage_circuit(plan: StagePlan, model: OpAmpModel | None, title: str = "stage") -> Circuit:
+    """The stage alone, driven by ``VIN`` at node ``in``, output at ``out``."""
+    c = Circuit(title=title)
+    c.add_voltage_source("VIN", "in", "0")
+    build_stage(c, plan, input_node="in", output_node="out", prefix="s", model=model)
+    return c
+
+
+def cascade_circuit(plans: list[StagePlan], *, ideal: bool = False, title: str = "filter") -> Circuit:
+    """The whole filter: ``VIN`` at ``in``, stage k output ``out<k>``, the last at ``out``."""
+    c = Circuit(title=title)
+    c.add_voltage_source("VIN", "in", "0")
+    node = "in"
+    for k, plan in enumerate(plans, start=1):
+        out = "out" if k == len(plans) else f"out{k}"
+        build_stage(c, plan, input_node=node, output_node=out, prefix=f"s{k}",
+                    model=None if ideal else plan.model())
+        node = out
+    return c
+
+
+def _zpk(plan: StagePlan, model) -> tuple[np.ndarray, np.ndarray, float]:
+    z, p, k = transfer_function_zpk(stage_circuit(plan, model), output="out")
+    return np.asarray(z, dtype=complex), np.asarray(p, dtype=complex), float(np.real(k))
+
+
+def _signed(a: dict, b: dict) -> np.ndarray:
+    """Signed relative f0 and Q errors of figures ``a`` against ``b``."""
+    e = [a["f0_hz"] / b["f0_hz"] - 1]
+    if a.get("q") is not None and b.get("q"):
+        e.append(a["q"] / b["q"] - 1)
+    return np.array(e)
+
+
+def analyze(plans: list[StagePlan], *, response: str | None, family: str | None, order: int,
+            requirement: dict | None, settings: dict, notes: list | None = None) -> Design:
+    """Achieved figures, op-amp needs, peaks, summary, BOM, netlist and warnings.
+
+    Parameters
+    ----------
+    plans : list of StagePlan
+        In cascade order.
+    settings : dict
+        ``gbw_error`` (relative), ``output_amplitude_v`` (V peak at the
+        filter output), ``stage_peak_margin_db`` (dB).
+    notes : list of DesignWarning, optional
+        Cautions found before the analysis (out-of-range parts, gain shortfalls).
+    """
+    sections = [p.section for p in plans]
+    grid = analysis_grid(sections)
+    s_grid = 2j * np.pi * grid
+    error = float(settings["gbw_error"])
+
+    ideal_zpk = [_zpk(p, None) for p in plans]
+    achieved = [fit_section(p.section, *zk) for p, zk in zip(plans, ideal_zpk)]
+    models = [p.model() for p in plans]
+    macro_zpk = [(_zpk(p, m) if m is not None else None) for p, m in zip(plans, models)]
+    achieved_macro = [
+        (fit_section(p.section, *zk) if zk is not None else None) for p, zk in zip(plans, macro_zpk)
+    ]
+    used_zpk = [m if m is not None else i for m, i in zip(macro_zpk, ideal_zpk)]
+
+    # Gains from the filter input to each stage output (circuit engine poles and zeros).
+    def cumulative(f_hz: np.ndarray) -> np.ndarray:
+        s = 2j * np.pi * np.asarray(f_hz, dtype=float)
+        h = np.array([zpk_eval(*zk, s) for zk in used_zpk])
+        return np.abs(np.cumprod(h, axis=0))
+
+    cum = cumulative(grid)
+    peaks, fpeaks = grid_peak(cumulative, grid, cum)
+    out_level = float(peaks[-1]) if peaks[-1] > 0 else 1.0
+    v_in = float(settings["output_amplitude_v"]) / out_level
+    f_top = SIGNAL_BAND_FACTOR * max([s.f0_hz for s in sections] + [s.fz_hz or 0.0 for s in sections])
+
+    stages: list[Stage] = []
+    for k, plan in enumerate(plans):
+        sec = plan.section
+        # Frequencies where this output carries signal: within 3 dB of its peak.
+        passing = (cum[k] >= peaks[k] / math.sqrt(2)) & (grid <= f_top)
+        f_sig = float(grid[passing].max()) if passing.any() else float(fpeaks[k])
+        f_sig = max(f_sig, float(min(fpeaks[k], f_top)))
+        v_peak = v_in * float(peaks[k])
+        rule = gbw_rule_of_thumb(sec.gain, sec.q, sec.f0_hz, error)
+        ref = achieved[k]
+        if plan.opamps:
+            def err_at(g, plan=plan, ref=ref):
+                return _signed(fit_section(plan.section, *_zpk(plan, plan.model(gbw_hz=g))), ref)
+
+            gbw_req = required_gbw(err_at, error, rule, rtol=GBW_RTOL)
+        else:
+            gbw_req = None
+        req = OpAmpRequirement(
+            error=error, gbw_rule_hz=rule, gbw_required_hz=gbw_req,
+            slew_required_v_per_us=slew_required(f_sig, v_peak) if plan.opamps else 0.0,
+            signal_frequency_hz=f_sig, output_peak_v=v_peak, gbw_rule=RULE_OF_THUMB, slew_rule=SLEW_RULE,
+        )
+        stages.append(Stage(
+            index=k, section=sec, topology=plan.topology.name, strategy=plan.strategy,
+            components=list(plan.components), opamps=list(plan.opamps), achieved=achieved[k],
+            achieved_macromodel=achieved_macro[k], opamp_requirement=req,
+            peak_gain_db=float(20 * np.log10(peaks[k])) if peaks[k] > 0 else float("-inf"),
+            peak_frequency_hz=float(fpeaks[k]),
+            output_node="out" if k == len(plans) - 1 else f"out{k + 1}",
+        ))
+
+    summary = _summary(requirement, sections, used_zpk, grid, out_level)
+    design = Design(
+        response=response, family=family, order=order, stages=stages, requirement=requirement,
+        settings=dict(settings), overall_gain=float(np.prod([p.section.gain for p in plans])),
+        output_peak_gain_db=float(20 * np.log10(out_level)),
+    )
+    design.summary = summary
+    design.plans = list(plans)
+    design.bom = _bom(plans)
+    circuit = cascade_circuit(plans)
+    lo = 10 ** math.floor(math.log10(grid[0]) + 1e-9)
+    hi = 10 ** math.ceil(math.log10(grid[-1]) - 1e-9)
+    design.netlist = to_spice(circuit, output="out", ac=("dec", 125, float(lo), float(hi)))
+    design.warnings = collect_warnings(design, plans, notes or [], settings)
+    return design
+
+
+def _summary(requirement, sections, used_zpk, grid, out_level) -> dict:
+    edges = (requirement or {}).get("edges") or []
+    if not edges:
+        return {"edges": [], "meets": None}
+    f = np.array([e["frequency_hz"] for e in edges], dtype=float)
+    s = 2j * np.pi * f
+    h = np.prod([zpk_eval(*zk, s) for zk in used_zpk], axis=0)
+    sg = 2j * np.pi * grid
+    ideal_curve = np.prod([np.abs(sec.gain * standard_shape(sec, sg, sec.f0_hz, sec.q, sec.fz_hz))
+                           for sec in sections], axis=0)
+    ideal_level = float(np.max(ideal_curve))
+    ideal = np.prod([sec.gain * standard_shape(sec, s, sec.f0_hz, sec.q, sec.fz_hz) for sec in sections], axis=0)
+    with np.errstate(divide="ignore"):
+        loss = 20 * np.log10(out_level / np.maximum(np.abs(h), 1e-300))
+        ideal_loss = 20 * np.log10(ideal_level / np.maximum(np.abs(ideal), 1e-300))
+    rows = []
+    meets = True
+    for e, l, il in zip(edges, loss, ideal_loss):
+        req = float(e["required_db"])
+        band = e.get("band", "passband")
+        margin = (req - l) if band == "passband" else (l - req)
+        meets = meets and margin >= -1e-9
+        rows.append({
+            "frequency_hz": float(e["frequency_hz"]), "band": band, "loss_db": float(l),
+            "required_db": req, "margin_db": float(margin), "ideal_loss_db": float(il),
+        })
+    return {"edges": rows, "meets": bool(meets)}
+
+
+def _bom(plans: list[StagePlan]) -> list[dict]:
+    rows = []
+    for plan in plans:
+        for c in plan.components:
+            rows.append({"ref": c.ref, "kind": c.kind, "value": c.value, "tolerance": c.tolerance,
+                         "dielectric": c.dielectric if c.kind == "capacitor" else None, "part_id": c.part_id})
+        for u in plan.opamps:
+            rows.append({"ref": u.ref, "kind": "opamp", "value": None, "tolerance": None, "dielectric": None,
+                         "part_id": u.part_id})
+    return rows

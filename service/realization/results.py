@@ -1,0 +1,201 @@
+"""Result records of a realized design (named fields, plain values).
+
+:func:`service.realization.document_from_design` turns a :class:`Design` into
+the JSON design document of the design notes; the field names here are the
+public field names there.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+from service.approximation.types import Section
+
+
+@dataclass(frozen=True)
+class DesignWarning:
+    """A caution about a design: a stable ``code`` and a sentence for a person."""
+
+    code: str
+    message: str
+    stage: int | None = None
+
+    def as_dict(self) -> dict:
+        d = {"code": self.code, "message": self.message}
+        if self.stage is not None:
+            d["stage"] = self.stage
+        return d
+
+
+@dataclass(frozen=True)
+class Component:
+    """One passive part of a stage.
+
+    Attributes
+    ----------
+    ref : str
+        Reference unique across the design (``"R7"``, ``"C3"``).
+    role : str
+        Role within the stage's topology (``"R1"``, ``"Rf"``, ...).
+    kind : str
+        ``"resistor"`` or ``"capacitor"``.
+    value : float
+        Chosen value (ohm or F).
+    ideal : float or None
+        Value the design equations ask for (ohm or F); None when unknown
+        (a document edited by hand).
+    tolerance : float or None
+        Relative tolerance.
+    dielectric : str or None
+        Capacitors only.
+    part_id : str or None
+        Stock identifier, None for series values.
+    in_range : bool
+        Whether ``value`` lies in the caller's allowed range.
+    """
+
+    ref: str
+    role: str
+    kind: str
+    value: float
+    ideal: float | None
+    tolerance: float | None
+    dielectric: str | None
+    part_id: str | None
+    in_range: bool = True
+
+    def as_dict(self) -> dict:
+        d = {
+            "ref": self.ref, "role": self.role, "kind": self.kind, "value": self.value,
+            "ideal": self.ideal, "tolerance": self.tolerance,
+        }
+        if self.kind == "capacitor":
+            d["dielectric"] = self.dielectric
+        d["part_id"] = self.part_id
+        return d
+
+
+@dataclass(frozen=True)
+class OpAmpUse:
+    """One op-amp position of a stage and the part in it (None fields: ideal)."""
+
+    ref: str
+    role: str
+    gbw_hz: float | None = None
+    slew_v_per_us: float | None = None
+    a0_db: float | None = None
+    output_swing_v: float | None = None
+    supply_v: float | None = None
+    rout_ohm: float | None = None
+    part_id: str | None = None
+
+    def as_dict(self) -> dict:
+        return {
+            "ref": self.ref, "role": self.role, "gbw_hz": self.gbw_hz, "slew_v_per_us": self.slew_v_per_us,
+            "a0_db": self.a0_db, "output_swing_v": self.output_swing_v, "supply_v": self.supply_v,
+            "rout_ohm": self.rout_ohm, "part_id": self.part_id,
+        }
+
+
+@dataclass(frozen=True)
+class OpAmpRequirement:
+    """What a stage asks of its op-amps.
+
+    Attributes
+    ----------
+    error : float
+        The allowed f0/Q error the GBW figures are for (0.01 = 1 %).
+    gbw_rule_hz : float
+        Rule-of-thumb GBW (Hz); ``gbw_rule`` names the rule and its source.
+    gbw_required_hz : float or None
+        Smallest GBW (Hz) with the single-pole macromodel keeping f0 and Q
+        within ``error`` (circuit engine); None when no GBW does (gain floor).
+    slew_required_v_per_us : float
+        Slew rate (V/us) for the stage's output amplitude at ``signal_frequency_hz``.
+    signal_frequency_hz : float
+        Highest frequency (Hz) where the stage output is within 3 dB of its peak.
+    output_peak_v : float
+        Peak voltage (V) of the stage output when the filter output has
+        the stated amplitude at its peak-gain frequency.
+    """
+
+    error: float
+    gbw_rule_hz: float
+    gbw_required_hz: float | None
+    slew_required_v_per_us: float
+    signal_frequency_hz: float
+    output_peak_v: float
+    gbw_rule: str = ""
+    slew_rule: str = ""
+
+    def as_dict(self) -> dict:
+        return {
+            "error": self.error, "gbw_rule_hz": self.gbw_rule_hz, "gbw_rule": self.gbw_rule,
+            "gbw_required_hz": self.gbw_required_hz, "slew_required_v_per_us": self.slew_required_v_per_us,
+            "slew_rule": self.slew_rule, "signal_frequency_hz": self.signal_frequency_hz,
+            "output_peak_v": self.output_peak_v,
+        }
+
+
+@dataclass
+class Stage:
+    """One realized stage.
+
+    ``achieved`` holds f0_hz, q, gain, fz_hz and their relative errors with
+    ideal op-amps, read from the stage circuit by the circuit engine;
+    ``achieved_macromodel`` the same with the given op-amp (None when ideal).
+    ``peak_gain_db`` / ``peak_frequency_hz`` are the largest gain from the
+    filter input to this stage's output and where it occurs.
+    """
+
+    index: int
+    section: Section
+    topology: str
+    strategy: str
+    components: list[Component]
+    opamps: list[OpAmpUse]
+    achieved: dict
+    achieved_macromodel: dict | None
+    opamp_requirement: OpAmpRequirement
+    peak_gain_db: float
+    peak_frequency_hz: float
+    output_node: str = "out"
+
+
+@dataclass
+class Design:
+    """A realized filter: stages, BOM, netlist, summary and warnings.
+
+    Attributes
+    ----------
+    response, family : str or None
+    order : int
+    stages : list of Stage
+    requirement : dict or None
+        Passband / stopband fields and the edges the summary checks.
+    settings : dict
+        The options the design was made with (so evaluation can redo it).
+    bom : list of dict
+    netlist : str
+        SPICE netlist of the whole filter (``VIN in 0 AC 1``, output ``out``).
+    summary : dict
+        ``edges`` (list of {frequency_hz, band, loss_db, required_db,
+        margin_db, ideal_loss_db}) and ``meets`` (bool or None).
+    warnings : list of DesignWarning
+    overall_gain : float
+        Product of the stage gains (dimensionless, sign included).
+    """
+
+    response: str | None
+    family: str | None
+    order: int
+    stages: list[Stage]
+    requirement: dict | None
+    settings: dict
+    bom: list = field(default_factory=list)
+    netlist: str = ""
+    summary: dict = field(default_factory=dict)
+    warnings: list = field(default_factory=list)
+    overall_gain: float = 1.0
+    output_peak_gain_db: float = 0.0
+    plans: list = field(default_factory=list, repr=False, compare=False)
