@@ -42,7 +42,6 @@ from __future__ import annotations
 import numpy as np
 
 from service.approximation.types import Section, SectionKind
-from service.realization.errors import RealizationError
 from service.realization.topologies.base import GROUND, Topology, arr, capacitor, omega, resistor
 
 _LP = SectionKind.LOWPASS
@@ -77,12 +76,8 @@ class SallenKey(Topology):
         return ("U1",)
 
     def parts(self, section, strategy):
-        lp = section.kind == _LP
         if strategy == "equal_component":
-            if lp:
-                p = (capacitor("C1"), capacitor("C2", free=False), resistor("R1"), resistor("R2"))
-            else:
-                p = (capacitor("C1"), capacitor("C2", free=False), resistor("R1"), resistor("R2"))
+            p = (capacitor("C1"), capacitor("C2", free=False), resistor("R1"), resistor("R2"))
         else:
             p = (capacitor("C1"), capacitor("C2"), resistor("R1"), resistor("R2"))
         if strategy != "unity_gain":
@@ -183,4 +178,4 @@ class SallenKey(Topology):
 
 SALLEN_KEY = SallenKey()
 
-__all__ = ["SallenKey", "SALLEN_KEY", "RealizationError"]
+__all__ = ["SallenKey", "SALLEN_KEY"]
