@@ -65,7 +65,8 @@ def phase(zeros: np.ndarray, poles: np.ndarray, gain: float, w: np.ndarray) -> n
     """Unwrapped phase (rad) as the sum of the angles of every factor.
 
     The angle of each factor (jw - z) is continuous in w except at a zero on
-    the jw axis, where the true phase jumps by pi; the sum is finally passed
+    the jw axis, where the true phase jumps by pi (a grid point exactly on
+    such a zero gets the limit from below); the sum is finally passed
     through :func:`numpy.unwrap` to remove any 2*pi branch jumps.
 
     Parameters
@@ -86,7 +87,10 @@ def phase(zeros: np.ndarray, poles: np.ndarray, gain: float, w: np.ndarray) -> n
     p = np.asarray(poles, dtype=complex)
     ph = np.zeros(s.shape[0])
     if z.size:
-        ph = ph + np.sum(np.angle(s - z[None, :]), axis=1)
+        dz = s - z[None, :]
+        # exactly on a jw-axis zero the angle is taken as its limit from below
+        # (-pi/2), so the pi step falls after the point and unwrapping stays consistent
+        ph = ph + np.sum(np.where(dz == 0, -np.pi / 2, np.angle(dz)), axis=1)
     if p.size:
         ph = ph - np.sum(np.angle(s - p[None, :]), axis=1)
     if gain < 0:
