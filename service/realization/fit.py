@@ -105,7 +105,8 @@ def fit_section(section: Section, zeros, poles, gain) -> dict:
     -------
     dict
         ``f0_hz``, ``q`` (None for first order), ``gain`` (of the standard
-        form: ``H(j*w0) / shape(j*w0)``, real part), ``fz_hz`` (notch kinds,
+        form: ``H(s0) / shape(s0)``, real part, with s0 = 0 for the
+        lowpass, notch and allpass kinds and ``j*w0`` otherwise), ``fz_hz`` (notch kinds,
         else None), and the relative errors ``f0_error``, ``q_error``,
         ``gain_error``, ``fz_error`` (achieved / target - 1).
     """
@@ -124,7 +125,10 @@ def fit_section(section: Section, zeros, poles, gain) -> dict:
     if section.kind in _NOTCHES:
         z = _match(target_zeros(section), zeros)
         fz = float(np.sqrt(abs((z[0] * z[1]).real)) / (2 * np.pi))
-    s0 = np.array([1j * w0])
+    # Where the standard form's g is defined and the shape is not zero: DC for the
+    # lowpass, notch and allpass kinds, f0 for bandpass and highpass.
+    dc = section.kind in (SectionKind.LOWPASS, SectionKind.ALLPASS) or section.kind in _NOTCHES
+    s0 = np.array([0j if dc else 1j * w0])
     shape = standard_shape(section, s0, f0, q, fz)
     h = zpk_eval(zeros, poles, gain, s0)
     g = float((h / shape).real[0])
