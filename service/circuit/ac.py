@@ -26,14 +26,22 @@ from .blocks import decompose
 from .errors import CircuitError
 from .mna import MnaSystem, build_mna
 from .netlist import Circuit
-from .staged import (_Evaluator, bytes_per_trial, coefficient_bytes_per_trial, evaluate_chunk, plan_blocks,
-                     stage_representations)
+from .staged import (_Evaluator, bytes_per_trial, coefficient_bytes_per_trial, evaluate_chunk, max_terms,
+                     plan_blocks, stage_representations)
 
 MAX_STAGE_UNKNOWNS = 10
 """Largest stage (unknowns) that ``method="auto"`` solves through polynomial coefficients."""
 
 STAGED_CHUNK_BYTES = 4 * 2**20
 """Working-set target of one staged evaluation chunk (small chunks stay in cache); never above the caller's limit."""
+
+GEMM_CHUNK_SIZE = 400_000
+"""Bound on rows x columns x inner size of one coefficient-times-Vandermonde product.
+
+Measured on 2 cores: OpenBLAS runs larger products multithreaded, and with
+the other core busy those run 5-40x slower than single-threaded ones; a
+product below this size stays on one thread and in cache.
+"""
 
 METHODS = ("auto", "full", "staged")
 
@@ -135,7 +143,7 @@ def ac_response(circuit: Circuit, frequency_hz: np.ndarray, output: str = "out",
     coef_chunk = max(1, min(t, limit // max(1, coefficient_bytes_per_trial(plans))))
     reps = stage_representations(system, plans, w_ref, coef_chunk)
     per = bytes_per_trial(reps, f.size)
-    tchunk = max(1, min(limit, STAGED_CHUNK_BYTES) // per)
+    tchunk = max(1, min(min(limit, STAGED_CHUNK_BYTES) // per, GEMM_CHUNK_SIZE // (2 * f.size * max_terms(reps))))
     ev = _Evaluator(omega, w_ref)
     out = np.empty((t, f.size), dtype=complex)
     for t0 in range(0, t, tchunk):

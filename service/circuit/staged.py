@@ -313,3 +313,14 @@ def bytes_per_trial(reps: dict[int, object], nfreq: int) -> int:
 def coefficient_bytes_per_trial(plans: list[_BlockPlan]) -> int:
     """Rough memory of :func:`block_coefficients` per trial, bytes (complex pencils at the interpolation points)."""
     return max(16 * p.points * len(p.block.cols) ** 2 * (3 + len(p.num_bounds)) for p in plans)
+
+
+def max_terms(reps: dict[int, object]) -> int:
+    """Largest number of coefficients of any polynomial evaluated on the grid (the inner size of its product)."""
+    sizes = [1]
+    for r in reps.values():
+        if isinstance(r, _Rational):
+            sizes += [r.num.shape[1], r.den.shape[1]]
+        else:
+            sizes += [r.den.shape[1]] + [n.shape[1] for n, _ in r.terms]
+    return max(sizes)

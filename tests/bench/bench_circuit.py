@@ -1,0 +1,130 @@
+"""Benchmark of the circuit engine against ngspice on the STACK-NOTES reference circuit.
+
+Eighth-order Butterworth lowpass (1 kHz) as four unity-gain Sallen-Key
+stages, 501 log-spaced frequencies from 10 Hz to 100 kHz, Gaussian part
+values with sigma = 1 % (R) and sigma = 5 % (C) -- the percentages are the
+standard deviation, not a 3-sigma tolerance.
+
+Run:  python tests/bench/bench_circuit.py [--trials 10000] [--spice-trials 1000] [--repeat 7]
+
+Prints, per op-amp model (ideal, 10 MHz macromodel): the engine's wall time
+for all trials (median, IQR, min, max over repeats, after one warm-up call),
+peak traced memory, ngspice's wall time for --spice-trials trials of a
+``.control`` script that alters every part and reruns ``ac`` per trial
+(scaled linearly to the engine's trial count), the speed ratio, and the
+largest difference between the two on the same part values.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import resource
+import subprocess
+import sys
+import tempfile
+import time
+import tracemalloc
+
+import numpy as np
+
+ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
+sys.path.insert(0, ROOT)
+
+from service.circuit import ElementKind, ac_response, to_spice  # noqa: E402
+from tests.circuit.builders import MACRO, butterworth8_sallen_key  # noqa: E402
+from tests.ngspice import NGSPICE, _HEAD, _ac_command, _complex_columns, _insert_control  # noqa: E402
+
+F = np.logspace(1, 5, 501)   # = ngspice "ac dec 125 10 100k"
+
+
+def stats(xs) -> str:
+    xs = np.asarray(xs)
+    q1, med, q3 = np.percentile(xs, [25, 50, 75])
+    return f"median {med:.4f} s  IQR {q3 - q1:.4f} s  min {xs.min():.4f} s  max {xs.max():.4f} s  (n={xs.size})"
+
+
+def time_engine(ckt, repeat: int, method: str = "auto"):
+    ac_response(ckt.trial(0), F)      # warm-up: lazy imports of scipy.sparse / scipy.optimize
+    times = []
+    h = None
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        h = ac_response(ckt, F, method=method)
+        times.append(time.perf_counter() - t0)
+    tracemalloc.start()
+    ac_response(ckt, F, method=method)
+    _, peak = tracemalloc.get_traced_memory()
+    tracemalloc.stop()
+    return times, peak, h
+
+
+def ngspice_monte_carlo(ckt, trials: int, repeat: int):
+    """Time ngspice on the first ``trials`` trials (subprocess wall time only); return times and results."""
+    varied = [el for el in ckt.elements if el.kind in (ElementKind.RESISTOR, ElementKind.CAPACITOR)]
+    net = to_spice(ckt, ac=("dec", 125, 10.0, 100e3), trial=0)
+    ac = _ac_command(net)
+    control = list(_HEAD)
+    for i in range(trials):
+        control += [f"alter {el.name} = {float(el.value[i]):.17g}" for el in varied]
+        control += [ac, "wrdata result.txt v(out)", "destroy all"]
+    text = _insert_control(net, control)
+    times = []
+    with tempfile.TemporaryDirectory(prefix="bench-ngspice-") as tmp:
+        path = os.path.join(tmp, "mc.cir")
+        with open(path, "w") as fh:
+            fh.write(text)
+        for _ in range(repeat):
+            res = os.path.join(tmp, "result.txt")
+            if os.path.exists(res):
+                os.remove(res)
+            t0 = time.perf_counter()
+            proc = subprocess.run([NGSPICE, "-b", path], cwd=tmp, capture_output=True, text=True)
+            times.append(time.perf_counter() - t0)
+            if not os.path.exists(res):   # ngspice -b exits 1 when the netlist has no .print; the file is what counts
+                raise RuntimeError(f"ngspice wrote no result:\n{proc.stdout[-2000:]}\n{proc.stderr[-2000:]}")
+        raw = np.loadtxt(res, comments=None, usecols=(0, 1, 2),
+                         converters=None, skiprows=0, dtype=str)
+    rows = raw[raw[:, 0] != "frequency"].astype(float)
+    tables = rows.reshape(trials, F.size, 3)
+    h = np.stack([_complex_columns(t, ("out",))["out"] for t in tables])
+    np.testing.assert_allclose(tables[0][:, 0], F, rtol=1e-12)
+    return times, h
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--trials", type=int, default=10_000)
+    ap.add_argument("--spice-trials", type=int, default=1_000)
+    ap.add_argument("--repeat", type=int, default=7)
+    ap.add_argument("--spice-repeat", type=int, default=3)
+    ap.add_argument("--full-trials", type=int, default=500, help="trials for the full-MNA cross-check")
+    args = ap.parse_args()
+    print(f"numpy {np.__version__}, {os.cpu_count()} CPUs, {args.trials} trials x {F.size} frequencies")
+    for label, model in (("ideal op-amps", None), ("macromodel op-amps (GBW 10 MHz, A0 1e5)", MACRO)):
+        ckt = butterworth8_sallen_key(model, trials=args.trials, seed=2024)
+        times, peak, h = time_engine(ckt, args.repeat)
+        med = float(np.median(times))
+        print(f"\n== {label}")
+        print(f"engine  {args.trials} trials: {stats(times)}")
+        print(f"engine  peak traced memory {peak / 2**20:.1f} MiB (result array {h.nbytes / 2**20:.1f} MiB included)")
+        sp_times, h_sp = ngspice_monte_carlo(ckt, args.spice_trials, args.spice_repeat)
+        scale = args.trials / args.spice_trials
+        sp_med = float(np.median(sp_times)) * scale
+        print(f"ngspice {args.spice_trials} trials: {stats(sp_times)}")
+        print(f"ngspice scaled to {args.trials} trials (x{scale:g}): {sp_med:.3f} s")
+        print(f"speed ratio ngspice/engine: {sp_med / med:.1f}x")
+        r = h_sp / h[: args.spice_trials]
+        print(f"agreement with ngspice on the same parts: max |dB| {np.max(np.abs(20 * np.log10(np.abs(r)))):.2e}, "
+              f"max |deg| {np.max(np.abs(np.angle(r, deg=True))):.2e}")
+        sub = ckt.with_values({el.name: el.value[: args.full_trials] for el in ckt.elements
+                               if isinstance(el.value, np.ndarray)})
+        hf = ac_response(sub, F, method="full")
+        r = hf / h[: args.full_trials]
+        print(f"staged vs full MNA solve ({args.full_trials} trials): max |dB| "
+              f"{np.max(np.abs(20 * np.log10(np.abs(r)))):.2e}, max |deg| {np.max(np.abs(np.angle(r, deg=True))):.2e}")
+    print(f"\nprocess max RSS {resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024:.0f} MiB")
+
+
+if __name__ == "__main__":
+    main()
