@@ -5,7 +5,7 @@ from __future__ import annotations
 
 def register_views(api) -> None:
     """Register every blueprint on the flask-smorest ``api``."""
-    from service.api.views import approximations, catalog, operations, values
+    from service.api.views import approximations, catalog, designs, operations, values
 
-    for module in (operations, catalog, values, approximations):
+    for module in (operations, catalog, values, approximations, designs):
         api.register_blueprint(module.blp)

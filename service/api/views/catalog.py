@@ -2,13 +2,17 @@
 
 from __future__ import annotations
 
+import dataclasses
+
 import marshmallow as ma
 from flask import current_app
 from flask.views import MethodView
 
 from service.api.extension import Blueprint
 from service.api.schemas.common import ReplySchema, StrictSchema
+from service.approximation import ResponseType, SectionKind, all_family_info
 from service.components import SERIES, SERIES_TOLERANCE, series_mantissas
+from service.realization.topologies import describe_all
 from service.version import API_VERSION, SERVICE_VERSION
 
 blp = Blueprint("catalog", __name__, url_prefix="/v1", description="What the service offers.")
@@ -27,8 +31,37 @@ class LimitSchema(ma.Schema):
     description = ma.fields.String()
 
 
+class FamilySchema(ma.Schema):
+    family = ma.fields.String()
+    cutoff_meaning = ma.fields.String(metadata={"description": "What `cutoff_hz` of a by-order design is."})
+    cutoff_loss = ma.fields.String()
+    needs_ripple = ma.fields.Boolean(metadata={"description": "By order, passband_ripple_db is needed."})
+    needs_attenuation = ma.fields.Boolean(metadata={"description": "By order, stopband_attenuation_db is needed."})
+    max_order = ma.fields.Integer(metadata={"description": "Highest order (accuracy limit, and ROLLOFF_MAX_ORDER)."})
+    even_only = ma.fields.Boolean()
+    order_selection = ma.fields.String(metadata={"description": "`closed form` or `search`."})
+    reference = ma.fields.String()
+
+
+class TopologySchema(ma.Schema):
+    name = ma.fields.String()
+    kinds = ma.fields.List(ma.fields.String(), metadata={"description": "Section kinds it realizes."})
+    order = ma.fields.Integer(metadata={"description": "Section order (1 or 2)."})
+    strategies = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.List(ma.fields.String()),
+                                metadata={"description": "Design strategies per section kind (first: default)."})
+    arbitrary_gain = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.List(ma.fields.String()),
+                                    metadata={"description": "Strategies that can set any gain, per kind."})
+    opamps = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.Integer(),
+                            metadata={"description": "Op-amps per stage, per kind."})
+    reference = ma.fields.String(metadata={"description": "Published source of its design equations."})
+
+
 class CatalogSchema(ReplySchema):
     api_version = ma.fields.String()
+    responses = ma.fields.List(ma.fields.String(), metadata={"description": "Response types."})
+    families = ma.fields.List(ma.fields.Nested(FamilySchema))
+    section_kinds = ma.fields.List(ma.fields.String())
+    topologies = ma.fields.List(ma.fields.Nested(TopologySchema))
     series = ma.fields.List(ma.fields.Nested(SeriesSchema))
     limits = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.Nested(LimitSchema))
     endpoints = ma.fields.List(ma.fields.String(), metadata={"description": "Operations this service answers."})
@@ -38,9 +71,19 @@ def build_catalog(settings) -> dict:
     """The catalog document (pure function of the registries and the settings)."""
     rules = sorted({f"{m} {r.rule}" for r in current_app.url_map.iter_rules() if r.rule.startswith("/v1")
                     for m in r.methods - {"HEAD", "OPTIONS"}})
+    families = []
+    for info in all_family_info():
+        entry = {f.name: getattr(info, f.name) for f in dataclasses.fields(info)}
+        entry["family"] = info.family.value
+        entry["max_order"] = min(info.max_order, settings.max_order)
+        families.append(entry)
     return {
         "api_version": API_VERSION,
         "service_version": SERVICE_VERSION,
+        "responses": [r.value for r in ResponseType],
+        "families": families,
+        "section_kinds": [k.value for k in SectionKind],
+        "topologies": describe_all(),
         "series": [{"name": s, "values_per_decade": len(series_mantissas(s)), "tolerance": SERIES_TOLERANCE[s],
                     "values": list(series_mantissas(s))} for s in SERIES],
         "limits": settings.limits(),
@@ -58,8 +101,10 @@ class Catalog(MethodView):
     @blp.response(200, CatalogSchema)
     @blp.alt_response(422, response="UNPROCESSABLE_ENTITY", description="An unknown query parameter was given.")
     @blp.doc(summary="What this service offers",
-             description="Service and API versions, preferred-number series, the configured limits (with the "
-                         "environment variable of each) and the operations answered. Built from the same "
-                         "registries the service dispatches through.")
+             description="Service and API versions, response types, approximation families (what their cutoff "
+                         "means, highest order), section kinds, topologies with the section kinds each realizes and "
+                         "their strategies, preferred-number series, the configured limits (with the environment "
+                         "variable of each) and the operations answered. Built from the same registries the service "
+                         "dispatches through.")
     def get(self, _args):
         return build_catalog(current_app.config["ROLLOFF_SETTINGS"])

@@ -1,0 +1,131 @@
+"""POST /v1/designs and POST /v1/designs/evaluate."""
+
+from __future__ import annotations
+
+from flask import current_app
+from flask.views import MethodView
+
+from service.api.dispatch import approximation_from_filter, design_document, evaluate
+from service.api.extension import Blueprint
+from service.api.formats import CSV_MEDIA_TYPE, TEXT_MEDIA_TYPE, alternative_content, csv_response, text_response
+from service.api.schemas.common import StrictSchema, one_of
+from service.api.schemas.designs import DesignDocumentSchema, DesignRequestSchema, DesignSchema
+
+blp = Blueprint("designs", __name__, url_prefix="/v1/designs",
+                description="Requirement to op-amp stages with parts that can be bought.")
+
+_DESCRIPTION = """\
+From a requirement (or an order and cutoff, as in /v1/approximations) to a
+circuit someone can order parts for and build: the sections, each realized by a
+topology (`topology`: `auto`, one name, or one per section; see the catalog for
+topologies and their strategies), capacitors chosen from the caller's series or
+stock, resistors computed and snapped to the resistor series or stock, the
+op-amp requirements of each stage (gain-bandwidth by the rule of thumb and exact
+from the single-pole macromodel, slew rate for `output_amplitude_v`), each stage
+output's peak gain (clipping risk), a BOM (`part_id`s returned), a SPICE netlist
+of the whole filter (`VIN in 0 AC 1`, output node `out`; runs in ngspice batch
+mode unchanged), a summary of achieved against required loss at each edge with
+the chosen parts, and `warnings`.
+
+Achieved f0, Q and gain are read back from the circuit built with the chosen
+values (circuit engine), not from the design formulas.
+
+`format=csv` returns the BOM as a table, `format=spice` the netlist alone.
+
+Mains-interference notches must never be connected to the mains: follow local
+electrical codes and licensed practice for anything mains-connected.
+
+Example (Larkspur Fluidics PM-7 accelerometer anti-aliasing filter, PM-7 stock:
+E96 1 % thin-film resistors, E12 C0G capacitors 100 pF-100 nF).
+"""
+
+EXAMPLE = {
+    "response": "lowpass", "family": "elliptic", "passband_hz": "10kHz", "stopband_hz": "25.6kHz",
+    "passband_ripple_db": 0.1, "stopband_attenuation_db": 80, "topology": "auto",
+    "parts": {"resistors": {"series": "E96", "range": ["1k", "1M"], "tolerance": 0.01},
+              "capacitors": {"series": "E12", "range": ["100p", "100n"], "tolerance": 0.05, "dielectric": "C0G"},
+              "stock": [{"kind": "capacitor", "value": "10n", "tolerance": 0.02, "dielectric": "C0G",
+                         "part_id": "PM7-C-0805-10N"}]},
+    "opamp": {"gbw_hz": "10MHz", "slew_v_per_us": 5, "a0_db": 110, "part_id": "PM7-U-OPA-GP"},
+}
+
+# A 2nd-order Butterworth lowpass at 1 kHz as one unity-gain Sallen-Key stage (PM-7 bearing-noise channel
+# sketch): the fields evaluate reads.
+EVALUATE_EXAMPLE = {
+    "response": "lowpass", "family": "butterworth", "order": 2,
+    "stages": [{
+        "section": {"kind": "lowpass", "order": 2, "f0_hz": 1000.0, "q": 0.7071, "fz_hz": None, "gain": 1.0},
+        "topology": "sallen_key", "strategy": "unity_gain",
+        "components": [
+            {"ref": "C1", "role": "C1", "kind": "capacitor", "value": "22n", "tolerance": 0.05, "dielectric": "C0G",
+             "part_id": "PM7-C-0805-22N"},
+            {"ref": "C2", "role": "C2", "kind": "capacitor", "value": "10n", "tolerance": 0.05, "dielectric": "C0G",
+             "part_id": None},
+            {"ref": "R1", "role": "R1", "kind": "resistor", "value": "10.7k", "tolerance": 0.01, "part_id": None},
+            {"ref": "R2", "role": "R2", "kind": "resistor", "value": "10.7k", "tolerance": 0.01, "part_id": None},
+        ],
+        "opamps": [{"ref": "U1", "role": "U1", "gbw_hz": "10MHz", "part_id": "PM7-U-OPA-GP"}],
+    }],
+}
+
+_DOC = alternative_content(CSV_MEDIA_TYPE, TEXT_MEDIA_TYPE, schema="Design",
+                           description="The design document with BOM, netlist, summary and warnings (JSON); "
+                                       "the BOM as CSV; or the netlist as text.")
+
+
+def _reply(document: dict, fmt: str):
+    if fmt == "csv":
+        cols = ("ref", "kind", "value", "tolerance", "dielectric", "part_id")
+        return csv_response({c: [line.get(c) for line in document["bom"]] for c in cols}, filename="bom.csv")
+    if fmt == "spice":
+        return text_response(document["netlist"])
+    return document
+
+
+@blp.route("")
+class Designs(MethodView):
+    @blp.arguments(DesignRequestSchema, example=EXAMPLE)
+    @blp.response(200, DesignSchema)
+    @blp.alt_response(400, response="BAD_REQUEST", description="The body is not valid JSON.")
+    @blp.alt_response(413, response="REQUEST_ENTITY_TOO_LARGE", description="The body is too large.")
+    @blp.alt_response(415, response="UNSUPPORTED_MEDIA_TYPE", description="The body is not JSON.")
+    @blp.alt_response(422, response="UNPROCESSABLE_ENTITY",
+                      description="Invalid request, infeasible requirement, or parts that cannot realize it.")
+    @blp.doc(summary="Design a filter with parts from stock", description=_DESCRIPTION, **_DOC)
+    def post(self, args):
+        settings = current_app.config["ROLLOFF_SETTINGS"]
+        approximation = approximation_from_filter(args, settings)
+        document = design_document(approximation, args, settings)
+        return _reply(document, args.get("format", "json"))
+
+
+_EVALUATE_DESCRIPTION = """\
+A design document — as /v1/designs returned it, or edited (a value swapped for
+one in stock, a part's tolerance changed) — gives the achieved figures, BOM,
+netlist, summary and warnings again. Only `stages[*].section`, `topology`,
+`strategy`, `components` and `opamps`, and the document's `requirement` and
+`settings`, are read; everything else is recomputed. A removed part, a repeated
+ref or a part of the wrong kind is a 422 naming it. Values may be strings such as
+"10n" or "4k7". `?format=csv` returns the BOM, `?format=spice` the netlist.
+"""
+
+
+class FormatQuerySchema(StrictSchema):
+    format = one_of(["json", "csv", "spice"], load_default="json",
+                    description="`csv`: the BOM as a table; `spice`: the netlist as text.")
+
+
+@blp.route("/evaluate")
+class Evaluate(MethodView):
+    @blp.arguments(FormatQuerySchema, location="query", unknown="raise")
+    @blp.arguments(DesignDocumentSchema, example=EVALUATE_EXAMPLE)
+    @blp.response(200, DesignSchema)
+    @blp.alt_response(400, response="BAD_REQUEST", description="The body is not valid JSON.")
+    @blp.alt_response(413, response="REQUEST_ENTITY_TOO_LARGE", description="The body is too large.")
+    @blp.alt_response(415, response="UNSUPPORTED_MEDIA_TYPE", description="The body is not JSON.")
+    @blp.alt_response(422, response="UNPROCESSABLE_ENTITY", description="A missing, repeated or wrong part.")
+    @blp.doc(summary="Evaluate a (possibly edited) design document", description=_EVALUATE_DESCRIPTION,
+             **alternative_content(CSV_MEDIA_TYPE, TEXT_MEDIA_TYPE, schema="Design",
+                                   description="The design document again (JSON), its BOM (CSV) or netlist (text)."))
+    def post(self, query, document):
+        return _reply(evaluate(document), query["format"])
