@@ -30,6 +30,8 @@ from service.realization.parts import Allowed
 
 #: Most candidate combinations evaluated for one stage.
 MAX_COMBINATIONS = 700
+#: Most combinations when the first window has no candidate with every part in range.
+MAX_COMBINATIONS_WIDE = 20000
 #: Impedance-term weight per decade: with and without an asked-for level.
 IMPEDANCE_WEIGHT_ASKED = 5e-3
 IMPEDANCE_WEIGHT_TIEBREAK = 2e-4
@@ -201,6 +203,13 @@ def select_values(topology, section: Section, strategy: str, allowed: dict[str, 
         return np.logical_and.reduce([rng[p.role] for p in specs])
 
     cand = _candidates(topology, section, strategy, allowed, free, fixed, specs, r_pref, exact, width)
+    if not in_all(cand[2]).any() and free:
+        # Strategies with a ratio limit (a unity-gain Sallen-Key needs C1/C2 >= 4 Q^2)
+        # may need capacitors far apart: widen the window to every allowed value.
+        wide = max(2, int(MAX_COMBINATIONS_WIDE ** (1.0 / len(free))))
+        if wide > width:
+            width = wide
+            cand = _candidates(topology, section, strategy, allowed, free, fixed, specs, r_pref, exact, width)
     if not in_all(cand[2]).any() and "resistor" in allowed:
         ra = allowed["resistor"]
         tried = [cand]
