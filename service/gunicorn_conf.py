@@ -4,7 +4,16 @@ The app is preloaded in the master (``preload_app``): numpy and scipy are
 imported once and shared copy-on-write by the workers. SIGTERM drains
 in-flight requests for ``graceful_timeout`` seconds before workers stop; a
 worker that dies (even by SIGKILL) is replaced by the master.
+
+Metrics: with ``PROMETHEUS_MULTIPROC_DIR`` set, every process keeps its
+metric values in files of that folder. The folder is created and emptied of a
+previous run's files here, when the master reads this configuration (before
+the app is preloaded), and ``child_exit`` does prometheus_client's
+bookkeeping for a worker that has exited.
 """
+
+import glob
+import os
 
 from service.config import Settings
 
@@ -24,3 +33,23 @@ errorlog = "-"
 loglevel = _settings.log_level
 worker_tmp_dir = "/tmp"
 limit_request_line = 8190
+
+
+def prepare_metrics_dir(path: str) -> None:
+    """Create the multi-process metrics folder and remove a previous run's ``*.db`` files."""
+    if not path:
+        return
+    os.makedirs(path, exist_ok=True)
+    for stale in glob.glob(os.path.join(path, "*.db")):
+        os.remove(stale)
+
+
+prepare_metrics_dir(_settings.metrics_dir)
+
+
+def child_exit(server, worker):
+    """A worker exited (normally, recycled or killed): mark its metric files dead."""
+    if _settings.metrics_dir:
+        from prometheus_client import multiprocess
+
+        multiprocess.mark_process_dead(worker.pid, _settings.metrics_dir)

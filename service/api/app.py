@@ -7,7 +7,7 @@ from typing import Any, Mapping
 from flask import Flask
 from werkzeug.exceptions import HTTPException
 
-from service.api import observability, problems
+from service.api import cors, metrics, observability, problems, security
 from service.api.extension import ProblemApi, make_marshmallow_plugin
 from service.config import Settings
 from service.errors import RolloffError
@@ -68,8 +68,12 @@ def create_app(test_config: Mapping[str, Any] | None = None) -> Flask:
 
     observability.configure_logging(settings.log_level)
     observability.install(app, version=SERVICE_VERSION)
+    metrics.install(app, settings)
+    cors.install(app, settings)
+    security.install(app, settings)
 
     api = ProblemApi(app, spec_kwargs={"marshmallow_plugin": make_marshmallow_plugin()})
+    security.document(api)
     from service.api.fields import register_openapi_fields
     register_openapi_fields(api.ma_plugin)
 

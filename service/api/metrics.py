@@ -1,0 +1,154 @@
+"""Prometheus metrics: ``GET /metrics`` in the Prometheus text exposition format.
+
+Series:
+
+``rolloff_http_requests_total{method, endpoint, status}``
+    Requests answered. ``endpoint`` is the URL rule (``/v1/values/nearest``),
+    never the raw path, so the label set stays bounded; requests that match
+    no rule (404, 405) are counted under ``endpoint="<unmatched>"``.
+``rolloff_http_request_duration_seconds{method, endpoint, status}``
+    Histogram of the time from the first request hook to the response.
+``rolloff_monte_carlo_trials_total``
+    Monte Carlo trials computed (the tolerance view calls :func:`count_trials`).
+
+Under gunicorn with several workers, ``PROMETHEUS_MULTIPROC_DIR`` (set by
+``rolloff serve`` and by the container image) makes prometheus_client keep
+each process's values in a memory-mapped file of that folder; any worker
+answering ``/metrics`` then sums the files of all workers, live and dead, so
+counters never step back when a worker is recycled. The gunicorn config
+(``child_exit``) does the bookkeeping of dead workers. Without the variable
+(tests, a single process) the values live in a registry private to the app.
+
+``/metrics`` needs no API key and is not in the OpenAPI document (it is an
+operations endpoint): bind the service to an internal interface or firewall
+``/metrics`` from the outside.
+
+References
+----------
+.. [1] Prometheus, "Exposition formats" (text format 0.0.4) and the
+       prometheus_client documentation, "Multiprocess mode (e.g. Gunicorn)".
+"""
+
+from __future__ import annotations
+
+import operator
+import os
+import time
+
+from flask import Flask, Response, current_app, g, has_app_context, request
+from prometheus_client import (CONTENT_TYPE_LATEST, CollectorRegistry, Counter, Histogram, disable_created_metrics,
+                               generate_latest)
+from prometheus_client import multiprocess
+
+from service.config import Settings
+
+UNMATCHED = "<unmatched>"
+
+#: Latency buckets (s): from a cached catalog lookup to a large Monte Carlo run.
+BUCKETS_S = (0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5, 1.0, 2.5, 5.0, 10.0, 30.0)
+
+
+class ServiceMetrics:
+    """The metric objects of one app.
+
+    Parameters
+    ----------
+    metrics_dir : str
+        The multi-process folder (``PROMETHEUS_MULTIPROC_DIR``), or ``""`` for
+        single-process mode.
+    """
+
+    def __init__(self, metrics_dir: str = ""):
+        self.metrics_dir = metrics_dir
+        # prometheus_client picks its multi-process value store from the
+        # environment variable when it is imported; the setting must agree.
+        self.multiprocess = bool(metrics_dir) and os.environ.get("PROMETHEUS_MULTIPROC_DIR") == metrics_dir
+        self.registry = CollectorRegistry(auto_describe=True)
+        self.requests = Counter("rolloff_http_requests", "HTTP requests answered.",
+                                ("method", "endpoint", "status"), registry=self.registry)
+        self.latency = Histogram("rolloff_http_request_duration_seconds", "HTTP request latency (seconds).",
+                                 ("method", "endpoint", "status"), buckets=BUCKETS_S, registry=self.registry)
+        self.trials = Counter("rolloff_monte_carlo_trials", "Monte Carlo trials computed.",
+                              registry=self.registry)
+
+    def observe(self, method: str, endpoint: str, status: int, seconds: float) -> None:
+        """Count one answered request and its latency."""
+        labels = (method, endpoint, str(status))
+        self.requests.labels(*labels).inc()
+        self.latency.labels(*labels).observe(seconds)
+
+    def exposition(self) -> bytes:
+        """The text exposition of every series (summed over workers in multi-process mode)."""
+        if self.multiprocess:
+            registry = CollectorRegistry()
+            multiprocess.MultiProcessCollector(registry, path=self.metrics_dir)
+            return generate_latest(registry)
+        return generate_latest(self.registry)
+
+
+def count_trials(n: int) -> None:
+    """Add ``n`` Monte Carlo trials to ``rolloff_monte_carlo_trials_total``.
+
+    Safe to call anywhere: outside an application context, or in an app
+    without metrics, it does nothing.
+
+    Parameters
+    ----------
+    n : int
+        Trials computed (a non-negative integer; numpy integers are accepted).
+
+    Raises
+    ------
+    ValueError
+        When ``n`` is negative.
+    TypeError
+        When ``n`` is not an integer.
+    """
+    n = operator.index(n)
+    if n < 0:
+        raise ValueError(f"count_trials: n must be >= 0, got {n}")
+    if not has_app_context():
+        return
+    metrics = current_app.extensions.get("rolloff_metrics")
+    if metrics is not None and n:
+        metrics.trials.inc(n)
+
+
+def install(app: Flask, settings: Settings) -> ServiceMetrics:
+    """Register the timing hooks and the ``GET /metrics`` route on ``app``.
+
+    Parameters
+    ----------
+    app : flask.Flask
+    settings : service.config.Settings
+        ``metrics_dir`` is used; the folder is created when missing.
+
+    Returns
+    -------
+    ServiceMetrics
+        Also stored as ``app.extensions["rolloff_metrics"]``.
+    """
+    disable_created_metrics()  # no *_created series: they double the exposition for no use here
+    if settings.metrics_dir:
+        os.makedirs(settings.metrics_dir, exist_ok=True)
+    metrics = ServiceMetrics(settings.metrics_dir)
+    app.extensions["rolloff_metrics"] = metrics
+
+    @app.before_request
+    def _metrics_start() -> None:
+        g._metrics_started = time.perf_counter()
+
+    @app.after_request
+    def _metrics_observe(response: Response) -> Response:
+        started = getattr(g, "_metrics_started", None)
+        elapsed = time.perf_counter() - started if started is not None else 0.0
+        rule = request.url_rule
+        metrics.observe(request.method, rule.rule if rule is not None else UNMATCHED,
+                        response.status_code, elapsed)
+        return response
+
+    def metrics_view() -> Response:
+        return Response(metrics.exposition(), mimetype=None, content_type=CONTENT_TYPE_LATEST)
+
+    app.add_url_rule("/metrics", "metrics", metrics_view, methods=["GET"])
+    return metrics
