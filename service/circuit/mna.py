@@ -62,7 +62,8 @@ class MnaSystem:
                 pat[r, c] = True
         return pat
 
-    def stamp(self, sl: slice | None = None, rows=None, cols=None) -> tuple[np.ndarray, np.ndarray]:
+    def stamp(self, sl: slice | None = None, rows=None, cols=None, *, trials_last: bool = False
+              ) -> tuple[np.ndarray, np.ndarray]:
         """Assemble G and C for the trials in ``sl``.
 
         Parameters
@@ -71,6 +72,10 @@ class MnaSystem:
             Trials to assemble (default all).
         rows, cols : sequence of int, optional
             Sub-matrix to assemble (default the whole system).
+
+        trials_last : bool
+            Return shape (len(rows), len(cols), Tc) instead (each entry's
+            trials contiguous).
 
         Returns
         -------
@@ -82,16 +87,19 @@ class MnaSystem:
         cols = range(self.size) if cols is None else cols
         rmap = {r: i for i, r in enumerate(rows)}
         cmap = {c: i for i, c in enumerate(cols)}
-        mats = np.zeros((2, t, len(rmap), len(cmap)))
+        mats = np.zeros((2, len(rmap), len(cmap), t))
         for m, r, c, v in self.entries:
             i = rmap.get(r)
             j = cmap.get(c)
             if i is None or j is None:
                 continue
             if isinstance(v, np.ndarray):
-                mats[m, :, i, j] += v if sl is None else v[sl]
+                mats[m, i, j] += v if sl is None else v[sl]
             else:
-                mats[m, :, i, j] += v
+                mats[m, i, j] += v
+        if trials_last:
+            return mats[0], mats[1]
+        mats = np.ascontiguousarray(mats.transpose(0, 3, 1, 2))
         return mats[0], mats[1]
 
 

@@ -102,34 +102,35 @@ def plan_blocks(system: MnaSystem, blocks: list[Block]) -> list[_BlockPlan]:
 def _coefficients(vals: np.ndarray, bounds: tuple[int, int]) -> np.ndarray:
     """Polynomial coefficients (ascending) from values at the rotated roots of unity.
 
-    ``vals`` has shape (Tc, P); returns real (Tc, hi+1) with zeros below ``lo``
+    ``vals`` has shape (P, Tc); returns real (Tc, hi+1) with zeros below ``lo``
     (an empty degree range gives a zero row of length 1).
     """
     lo, hi = bounds
-    p = vals.shape[-1]
+    p = vals.shape[0]
     if hi < 0:
-        return np.zeros((vals.shape[0], 1))
-    spec = np.fft.fft(vals, axis=-1) / p
-    j = np.arange(p)
-    spec *= np.exp(-1j * THETA * j)
-    coef = spec.real[:, : hi + 1].copy()
+        return np.zeros((vals.shape[1], 1))
+    spec = np.fft.fft(vals, axis=0)[: hi + 1]
+    spec *= (np.exp(-1j * THETA * np.arange(hi + 1)) / p)[:, None]
+    coef = np.ascontiguousarray(spec.real.T)
     coef[:, :lo] = 0.0
     return coef
 
 
 def _det(m: np.ndarray) -> np.ndarray:
-    """Determinants of a stack of square matrices (..., n, n); closed form up to n = 3."""
-    n = m.shape[-1]
+    """Determinants of square matrices stored with the matrix axes first: (n, n, ...) -> (...).
+
+    Closed form (cofactor expansion) up to n = 3, LU factorization beyond.
+    """
+    n = m.shape[0]
     if n == 1:
-        return m[..., 0, 0].copy()
+        return m[0, 0].copy()
     if n == 2:
-        return m[..., 0, 0] * m[..., 1, 1] - m[..., 0, 1] * m[..., 1, 0]
+        return m[0, 0] * m[1, 1] - m[0, 1] * m[1, 0]
     if n == 3:
-        a, b, c = m[..., 0, 0], m[..., 0, 1], m[..., 0, 2]
-        d, e, f = m[..., 1, 0], m[..., 1, 1], m[..., 1, 2]
-        g, h, i = m[..., 2, 0], m[..., 2, 1], m[..., 2, 2]
-        return a * (e * i - f * h) - b * (d * i - f * g) + c * (d * h - e * g)
-    return np.linalg.det(m)
+        return (m[0, 0] * (m[1, 1] * m[2, 2] - m[1, 2] * m[2, 1])
+                - m[0, 1] * (m[1, 0] * m[2, 2] - m[1, 2] * m[2, 0])
+                + m[0, 2] * (m[1, 0] * m[2, 1] - m[1, 1] * m[2, 0]))
+    return np.linalg.det(np.moveaxis(m, (0, 1), (-2, -1)))
 
 
 def block_coefficients(system: MnaSystem, plan: _BlockPlan, w_ref: float, sl: slice):
@@ -145,32 +146,21 @@ def block_coefficients(system: MnaSystem, plan: _BlockPlan, w_ref: float, sl: sl
         with the same per-trial scale.
     """
     b = plan.block
-    g_bb, c_bb = system.stamp(sl, rows=b.rows, cols=b.cols)
-    tc, nb, _ = g_bb.shape
+    g_bb, c_bb = system.stamp(sl, rows=b.rows, cols=b.cols, trials_last=True)   # (nb, nb, Tc)
+    nb, _, tc = g_bb.shape
     p = plan.points
-    sig = np.exp(1j * (THETA + 2.0 * np.pi * np.arange(p) / p))            # (P,)
-    m = g_bb[:, None, :, :] + sig[None, :, None, None] * (w_ref * c_bb)[:, None, :, :]  # (Tc,P,nb,nb)
-    den_vals = _det(m)
+    sig = np.exp(1j * (THETA + 2.0 * np.pi * np.arange(p) / p))[:, None]         # (P, 1)
+    m = g_bb[:, :, None, :] + sig * (w_ref * c_bb)[:, :, None, :]                  # (nb, nb, P, Tc)
+    den_vals = _det(m)                                                             # (P, Tc)
     cols = []
     if plan.ext:
-        g_bw, c_bw = system.stamp(sl, rows=b.rows, cols=plan.ext)
-        w = -(g_bw[:, None, :, :] + sig[None, :, None, None] * (w_ref * c_bw)[:, None, :, :])  # (Tc,P,nb,m)
-        for i in range(len(plan.ext)):
-            cols.append(w[..., i])
+        g_bw, c_bw = system.stamp(sl, rows=b.rows, cols=plan.ext, trials_last=True)
+        w = -(g_bw[:, :, None, :] + sig * (w_ref * c_bw)[:, :, None, :])          # (nb, m, P, Tc)
+        cols.extend(w[:, i] for i in range(len(plan.ext)))
     if plan.has_rhs:
-        e = np.zeros((tc, p, nb), dtype=complex)
-        e[..., plan.rhs_pos] = 1.0
+        e = np.zeros((nb, p, tc), dtype=complex)
+        e[plan.rhs_pos] = 1.0
         cols.append(e)
-    keys = []
-    mats = []
-    for k in b.needed:
-        kp = b.cols.index(k)
-        for ci, c in enumerate(plan.inputs):
-            mk = m.copy()
-            mk[..., :, kp] = cols[ci]
-            mats.append(mk)
-            keys.append((k, c))
-    num_vals = _det(np.stack(mats, axis=2)) if mats else np.zeros((tc, p, 0))
     den = _coefficients(den_vals, plan.den_bounds)
     scale = np.max(np.abs(den), axis=1)
     if not np.all(scale > 0):
@@ -179,10 +169,14 @@ def block_coefficients(system: MnaSystem, plan: _BlockPlan, w_ref: float, sl: sl
                            f"is zero (unknowns {', '.join(system.unknowns[c] for c in b.cols)})")
     den /= scale[:, None]
     nums = {}
-    for i, key in enumerate(keys):
-        coef = _coefficients(num_vals[:, :, i], plan.num_bounds[key])
-        coef /= scale[:, None]
-        nums[key] = coef
+    for k in b.needed:
+        kp = b.cols.index(k)
+        for ci, c in enumerate(plan.inputs):
+            mk = m.copy()
+            mk[:, kp] = cols[ci]
+            coef = _coefficients(_det(mk), plan.num_bounds[(k, c)])
+            coef /= scale[:, None]
+            nums[(k, c)] = coef
     return den, nums
 
 

@@ -107,7 +107,8 @@ def main() -> None:
         med = float(np.median(times))
         print(f"\n== {label}")
         print(f"engine  {args.trials} trials: {stats(times)}")
-        print(f"engine  peak traced memory {peak / 2**20:.1f} MiB (result array {h.nbytes / 2**20:.1f} MiB included)")
+        print(f"engine  peak traced memory {peak / 2**20:.1f} MiB (result array {h.nbytes / 2**20:.1f} MiB included); "
+              f"process max RSS so far {resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024:.0f} MiB")
         sp_times, h_sp = ngspice_monte_carlo(ckt, args.spice_trials, args.spice_repeat)
         scale = args.trials / args.spice_trials
         sp_med = float(np.median(sp_times)) * scale
@@ -123,7 +124,8 @@ def main() -> None:
         r = hf / h[: args.full_trials]
         print(f"staged vs full MNA solve ({args.full_trials} trials): max |dB| "
               f"{np.max(np.abs(20 * np.log10(np.abs(r)))):.2e}, max |deg| {np.max(np.abs(np.angle(r, deg=True))):.2e}")
-    print(f"\nprocess max RSS {resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024:.0f} MiB")
+    print(f"\nprocess max RSS at the end (includes the ngspice result parsing and full-MNA check) "
+          f"{resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024:.0f} MiB")
 
 
 if __name__ == "__main__":
