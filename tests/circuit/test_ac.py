@@ -197,3 +197,54 @@ def test_bad_options_rejected():
 
 def test_output_at_the_input_node():
     np.testing.assert_allclose(ac_response(rc_ladder(1), F[:3], output="in"), 1.0)
+
+
+def _summing_circuit(trials):
+    """Two RC-follower branches from the input summed by an inverting amplifier: the output stage has two inputs."""
+    rng = np.random.default_rng(5)
+
+    def v(x):
+        return x * (1 + 0.02 * rng.standard_normal(trials))
+
+    c = Circuit("summing")
+    c.add_voltage_source("VIN", "in", "0")
+    c.add_resistor("R1", "in", "a", v(10e3))
+    c.add_capacitor("C1", "a", "0", v(10e-9))
+    c.add_opamp("U1", "a", "o1", "o1")
+    c.add_resistor("R2", "in", "b", v(1e3))
+    c.add_capacitor("C2", "b", "0", v(10e-9))
+    c.add_opamp("U2", "b", "o2", "o2", model=MACRO)
+    c.add_resistor("R3", "o1", "m", v(10e3))
+    c.add_resistor("R4", "o2", "m", v(20e3))
+    c.add_resistor("R5", "m", "out", v(10e3))
+    c.add_capacitor("C3", "m", "out", v(1e-9))
+    c.add_opamp("U3", "0", "m", "out")
+    return c
+
+
+def test_stage_with_two_inputs_staged_equals_full():
+    ckt = _summing_circuit(40)
+    hs, hf = ac_response(ckt, F, method="staged"), ac_response(ckt, F, method="full")
+    assert np.max(np.abs(db(hs / hf))) < 1e-6 and np.max(np.abs(np.angle(hs / hf, deg=True))) < 1e-6
+
+
+def test_long_cascade_beyond_the_merge_degree_staged_equals_full():
+    from service.circuit.staged import MAX_MERGE_DEGREE
+
+    rng = np.random.default_rng(9)
+    stages = MAX_MERGE_DEGREE // 3 + 2          # three poles per macromodel Sallen-Key stage
+    c = Circuit("long cascade")
+    c.add_voltage_source("VIN", "in", "0")
+    prev = "in"
+    for k in range(stages):
+        w, r, q = 2 * math.pi * 1e3 * (1 + 0.1 * k), 10e3, 0.6 + 0.05 * k
+        a, b, o = f"a{k}", f"b{k}", ("out" if k == stages - 1 else f"o{k}")
+        c.add_resistor(f"R{2 * k + 1}", prev, a, r * (1 + 0.01 * rng.standard_normal(8)))
+        c.add_resistor(f"R{2 * k + 2}", a, b, r)
+        c.add_capacitor(f"C{2 * k + 1}", a, o, 2 * q / (w * r))
+        c.add_capacitor(f"C{2 * k + 2}", b, "0", 1 / (2 * q * w * r))
+        c.add_opamp(f"U{k + 1}", b, o, o, model=MACRO)
+        prev = o
+    f = np.logspace(1, 4, 101)   # the stopband reaches about -400 dB: compare there relative to each value
+    hs, hf = ac_response(c, f, method="staged"), ac_response(c, f, method="full")
+    assert np.max(np.abs(db(hs / hf))) < 1e-6 and np.max(np.abs(np.angle(hs / hf, deg=True))) < 1e-5
