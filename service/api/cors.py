@@ -106,6 +106,8 @@ def install(app: Flask, settings: Settings) -> frozenset[str]:
         if not _in_scope(request.path):
             return response
         response.vary.add("Origin")
+        if request.method == "OPTIONS" and "Access-Control-Request-Method" in request.headers:
+            return response  # a preflight: answered (or refused) by _preflight alone
         origin = _allowed_origin()
         if origin is not None and "Access-Control-Allow-Origin" not in response.headers:
             response.headers["Access-Control-Allow-Origin"] = origin
