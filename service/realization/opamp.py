@@ -163,7 +163,7 @@ def required_gbw(errors_at: Callable[[float], np.ndarray], error: float, start_h
     float or None
         The GBW: either a probe whose errors lie within ``[1 - rtol, 1]`` of
         ``error``, or the line's boundary when a probe no more than
-        ``2*rtol`` above it meets the error (the boundary is then bracketed
+        ``4*rtol`` above it meets the error (the boundary is then bracketed
         between the two), or None
         when no GBW up to 1e4 times the probe meets ``error`` (an open-loop
         gain floor).
@@ -179,7 +179,7 @@ def required_gbw(errors_at: Callable[[float], np.ndarray], error: float, start_h
     """
     g_prev, d_prev = start_hz, np.asarray(errors_at(start_hz), dtype=float)
     # First step: the floor taken as zero, aimed a little inside the boundary.
-    g_next = _model_gbw(g_prev, d_prev, None, None, error) * (1 + rtol)
+    g_next = _model_gbw(g_prev, d_prev, None, None, error) * (1 + 2 * rtol)
     if not math.isfinite(g_next) or g_next <= 0:
         g_next = start_hz * 2
     best_ok = g_prev if np.max(np.abs(d_prev)) <= error else None
@@ -192,7 +192,7 @@ def required_gbw(errors_at: Callable[[float], np.ndarray], error: float, start_h
             if worst >= error * (1 - rtol):
                 return g_next
         g_new = _model_gbw(g_prev, d_prev, g_next, d_next, error) if g_next != g_prev else math.inf
-        if worst <= error and math.isfinite(g_new) and g_new <= g_next <= g_new * (1 + 2 * rtol):
+        if worst <= error and math.isfinite(g_new) and g_new <= g_next <= g_new * (1 + 4 * rtol):
             # The line through two solutions puts the boundary just below a probe that
             # meets the error: the boundary lies in [g_new, g_next]; report the model's.
             return g_new * (1 + rtol / 10)

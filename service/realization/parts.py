@@ -16,7 +16,7 @@ References
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
 from typing import Any, Mapping
 
 import numpy as np
@@ -59,8 +59,9 @@ class KindPolicy:
 
     Attributes
     ----------
-    series : str
-        IEC 60063 series name ``"E3"`` ... ``"E192"`` [1]_; ignored when ``stock`` is given.
+    series : str or None
+        IEC 60063 series name ``"E3"`` ... ``"E192"`` [1]_; None takes the
+        kind's default (resistors E96, capacitors E12); ignored when ``stock`` is given.
     min_value, max_value : float or None
         Allowed value range in ohm or F; None takes the kind's default
         (resistors 1 kohm - 1 Mohm, capacitors 100 pF - 10 uF).
@@ -72,7 +73,7 @@ class KindPolicy:
         Explicit stock list; when given it replaces the series for this kind.
     """
 
-    series: str = "E24"
+    series: str | None = None
     min_value: float | None = None
     max_value: float | None = None
     tolerance: float | None = None
@@ -94,8 +95,8 @@ class PartsPolicy:
     capacitors from 100 pF to 10 uF.
     """
 
-    resistors: KindPolicy = field(default_factory=lambda: KindPolicy(series="E96"))
-    capacitors: KindPolicy = field(default_factory=lambda: KindPolicy(series="E12"))
+    resistors: KindPolicy = field(default_factory=KindPolicy)
+    capacitors: KindPolicy = field(default_factory=KindPolicy)
 
     @classmethod
     def from_dict(cls, data: Mapping[str, Any] | None) -> "PartsPolicy":
@@ -131,7 +132,7 @@ def _kind_from_dict(value: Any, key: str) -> KindPolicy:
     if isinstance(value, KindPolicy):
         return value
     if value is None:
-        return KindPolicy(series=_DEFAULTS[key[:-1]]["series"])
+        return KindPolicy()
     value = dict(value)
     stock = value.pop("stock", None)
     allowed = {"series", "min_value", "max_value", "tolerance", "dielectric"}
@@ -139,8 +140,6 @@ def _kind_from_dict(value: Any, key: str) -> KindPolicy:
     if unknown:
         name = sorted(unknown)[0]
         raise RealizationError(f"unknown field {name!r} in parts.{key}", field=f"parts.{key}.{name}")
-    if "series" not in value:
-        value["series"] = _DEFAULTS[key[:-1]]["series"]
     if stock is not None:
         entries = []
         for i, entry in enumerate(stock):
@@ -259,7 +258,7 @@ def resolve_kind(policy: PartsPolicy, kind: str) -> Allowed:
             high=float(values[-1]) if kp.max_value is None else high,
         )
     try:
-        series = normalize_series(kp.series)
+        series = normalize_series(defaults["series"] if kp.series is None else kp.series)
     except UnknownSeries:
         raise RealizationError(
             f"unknown series {kp.series!r} for {key}: expected one of {', '.join(SERIES)} (IEC 60063)",
@@ -287,19 +286,3 @@ def resolve_kind(policy: PartsPolicy, kind: str) -> Allowed:
         low=low,
         high=high,
     )
-
-
-def with_defaults(policy: PartsPolicy) -> PartsPolicy:
-    """``policy`` with every None field replaced by the kind's default (for echoing back)."""
-    out = {}
-    for kind, key in KIND_KEYS.items():
-        kp = policy.kind(kind)
-        d = _DEFAULTS[kind]
-        out[key] = replace(
-            kp,
-            min_value=d["min_value"] if kp.min_value is None else kp.min_value,
-            max_value=d["max_value"] if kp.max_value is None else kp.max_value,
-            tolerance=d["tolerance"] if kp.tolerance is None else kp.tolerance,
-            dielectric=(kp.dielectric or d["dielectric"]) if kind == "capacitor" else None,
-        )
-    return PartsPolicy(**out)

@@ -203,7 +203,10 @@ def select_values(topology, section: Section, strategy: str, allowed: dict[str, 
         return np.logical_and.reduce([rng[p.role] for p in specs])
 
     cand = _candidates(topology, section, strategy, allowed, free, fixed, specs, r_pref, exact, width)
-    if not in_all(cand[2]).any() and free:
+    def finite_any(c):
+        return np.logical_and.reduce([np.isfinite(c[1][p.role]) for p in specs]).any()
+
+    if not finite_any(cand) and free:
         # Strategies with a ratio limit (a unity-gain Sallen-Key needs C1/C2 >= 4 Q^2)
         # may need capacitors far apart: widen the window to every allowed value.
         wide = max(2, int(MAX_COMBINATIONS_WIDE ** (1.0 / len(free))))
