@@ -98,3 +98,67 @@ def evaluate(document: dict) -> dict:
         return document_from_design(evaluate_document(document))
     except RealizationError as exc:
         raise _strip_root(exc) from None
+
+
+def mask_of(spec: dict | None):
+    """A loaded ``mask`` field -> :class:`service.response.Mask` (None stays None)."""
+    from service.response import Mask, MaskSegment
+
+    if spec is None:
+        return None
+    if "requirement" in spec:
+        r = spec["requirement"]
+        return Mask.from_requirement(r["response"], r["passband_hz"], r["stopband_hz"], r["passband_ripple_db"],
+                                     r["stopband_attenuation_db"])
+    return Mask(tuple(MaskSegment(**seg) for seg in spec["segments"]))
+
+
+def frequencies_of(spec, roots_rad_s, settings: Settings, *, default_points: int = 501):
+    """A loaded ``frequencies`` field (grid dict or list) -> FrequencyGrid or list, with the point limit applied.
+
+    Without one: ``default_points`` log-spaced points from a hundredth of the
+    slowest to a hundred times the fastest pole or zero frequency.
+    """
+    import numpy as np
+
+    from service.response import FrequencyGrid
+
+    if spec is None:
+        mags = np.abs(np.asarray(roots_rad_s, dtype=complex))
+        mags = mags[mags > 0] / (2 * np.pi)
+        low, high = (float(mags.min()), float(mags.max())) if mags.size else (1.0, 1.0)
+        return FrequencyGrid(low / 100.0, high * 100.0, default_points, "log")
+    if isinstance(spec, dict):
+        check_limit("max_frequency_points", spec["points"], settings, field="frequencies.points",
+                    what="frequency points")
+        return FrequencyGrid(spec["start_hz"], spec["stop_hz"], spec["points"], spec["spacing"])
+    check_limit("max_frequency_points", len(spec), settings, field="frequencies", what="frequency points")
+    return spec
+
+
+def response_system(args: dict, settings: Settings):
+    """The system a /v1/responses request asks about: (system, roots for the default grid, response type)."""
+    import numpy as np
+
+    from service.response import CircuitSystem, ZpkSystem
+
+    if "filter" in args:
+        approx = approximation_from_filter(args["filter"], settings)
+        return approx, np.concatenate([approx.poles, approx.zeros]), approx.response
+    if "sections" in args:
+        from service.approximation import Section, SectionKind
+
+        sections = [Section(SectionKind(s["kind"]), s["order"], s["f0_hz"], s.get("q"), s.get("fz_hz"), s["gain"])
+                    for s in args["sections"]]
+        system = ZpkSystem.from_sections(sections)
+        return system, np.concatenate([system.poles, system.zeros]), None
+    if "poles" in args:
+        zeros = np.array([complex(*z) for z in args.get("zeros", [])], dtype=complex)
+        poles = np.array([complex(*p) for p in args["poles"]], dtype=complex)
+        return ZpkSystem(zeros, poles, args["gain"]), np.concatenate([poles, zeros]), None
+    from service.realization import design_to_circuit, evaluate_document
+
+    design = evaluate_document(args["design"])  # its errors name design.stages[...] fields
+    circuit = design_to_circuit(design)
+    roots = np.array([2 * np.pi * st.section.f0_hz for st in design.stages])
+    return CircuitSystem(circuit), roots, design.response

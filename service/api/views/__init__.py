@@ -5,7 +5,13 @@ from __future__ import annotations
 
 def register_views(api) -> None:
     """Register every blueprint on the flask-smorest ``api``."""
-    from service.api.views import approximations, catalog, designs, operations, values
+    from service.api.views import approximations, catalog, designs, operations, responses, values
 
-    for module in (operations, catalog, values, approximations, designs):
+    for module in (operations, catalog, values, approximations, designs, responses):
         api.register_blueprint(module.blp)
+
+    from service.api.schemas.responses import REFERENCED_COMPONENTS
+
+    for name, schema in REFERENCED_COMPONENTS.items():
+        if name not in api.spec.components.schemas:
+            api.spec.components.schema(name, schema=schema)

@@ -1,0 +1,263 @@
+"""Schemas of /v1/responses (and the grid and mask pieces /v1/tolerance shares)."""
+
+from __future__ import annotations
+
+import marshmallow as ma
+
+from service.api.fields import Quantity, StrictInteger
+from service.api.schemas.common import ReplySchema, StrictSchema, one_of
+from service.api.schemas.designs import DesignDocumentSchema
+from service.api.schemas.filters import (
+    BAND_RESPONSES, FREQ_RANGE, FilterSchema, FrequencyOrPair, SectionSchema, _ATTEN, _RIPPLE, _check_pair,
+)
+from service.approximation import CutoffAt, Family, ResponseType
+
+MAX_LIST = 10_000
+_FREQ0 = ma.validate.Range(min=0, max=1e10)
+
+
+class FrequencyGridSchema(StrictSchema):
+    start_hz = Quantity(unit="Hz", required=True, validate=_FREQ0, metadata={"description": "First frequency (Hz)."})
+    stop_hz = Quantity(unit="Hz", required=True, validate=FREQ_RANGE, metadata={"description": "Last frequency (Hz)."})
+    points = StrictInteger(load_default=501, validate=ma.validate.Range(min=2, max=MAX_LIST), metadata={
+        "description": "Number of points, at most ROLLOFF_MAX_FREQUENCY_POINTS."})
+    spacing = one_of(["log", "linear"], load_default="log", description="`log` (start_hz > 0) or `linear`.")
+
+    @ma.validates_schema
+    def _ordered(self, data, **kwargs):
+        if "start_hz" in data and "stop_hz" in data:
+            if not data["stop_hz"] > data["start_hz"]:
+                raise ma.ValidationError("stop_hz must be above start_hz", "stop_hz")
+            if data.get("spacing", "log") == "log" and data["start_hz"] <= 0:
+                raise ma.ValidationError("log spacing needs start_hz > 0", "start_hz")
+
+
+class FrequenciesField(ma.fields.Field):
+    """A grid object, or an explicit list of frequencies (Hz)."""
+
+    def __init__(self, **kwargs):
+        self._grid = ma.fields.Nested(FrequencyGridSchema)
+        self._list = ma.fields.List(Quantity(unit="Hz", validate=_FREQ0), validate=ma.validate.Length(min=1, max=MAX_LIST))
+        super().__init__(**kwargs)
+
+    def _deserialize(self, value, attr, data, **kwargs):
+        if isinstance(value, dict):
+            return self._grid.deserialize(value)
+        if isinstance(value, list):
+            values = self._list.deserialize(value)
+            if any(b <= a for a, b in zip(values, values[1:])):
+                raise ma.ValidationError("an explicit frequency list must be strictly increasing")
+            return values
+        raise ma.ValidationError("expected {start_hz, stop_hz, points, spacing} or a list of frequencies (Hz)")
+
+    def openapi_properties(self) -> dict:
+        item = Quantity(unit="Hz").openapi_properties() | {"minimum": 0, "maximum": 1e10}
+        return {"oneOf": [{"$ref": "#/components/schemas/FrequencyGrid"},
+                          {"type": "array", "items": item, "minItems": 1, "maxItems": MAX_LIST}]}
+
+
+class TimeGridSchema(StrictSchema):
+    stop_s = Quantity(unit="s", validate=ma.validate.Range(min=1e-12, max=1e6, min_inclusive=False), metadata={
+        "description": "End time (s); default: long enough for the slowest pole to settle."})
+    points = StrictInteger(validate=ma.validate.Range(min=2, max=MAX_LIST), metadata={
+        "description": "Number of samples, at most ROLLOFF_MAX_TIME_POINTS; default: resolves the fastest pole."})
+
+
+class MaskSegmentSchema(StrictSchema):
+    start_hz = Quantity(unit="Hz", required=True, validate=_FREQ0)
+    stop_hz = Quantity(unit="Hz", required=True, validate=FREQ_RANGE)
+    max_loss_db = ma.fields.Float(validate=ma.validate.Range(min=-200, max=400), metadata={
+        "description": "Largest allowed loss in the band (a passband bound, dB)."})
+    min_loss_db = ma.fields.Float(validate=ma.validate.Range(min=-200, max=400), metadata={
+        "description": "Smallest required loss in the band (a stopband bound, dB)."})
+
+    @ma.validates_schema
+    def _bounds(self, data, **kwargs):
+        if "max_loss_db" not in data and "min_loss_db" not in data:
+            raise ma.ValidationError("a segment needs max_loss_db or min_loss_db", "max_loss_db")
+        if "start_hz" in data and "stop_hz" in data and not data["stop_hz"] > data["start_hz"]:
+            raise ma.ValidationError("stop_hz must be above start_hz", "stop_hz")
+
+
+class RequirementMaskSchema(StrictSchema):
+    response = one_of(ResponseType, required=True, description="Response type of the requirement.")
+    passband_hz = FrequencyOrPair(required=True)
+    stopband_hz = FrequencyOrPair(required=True)
+    passband_ripple_db = ma.fields.Float(required=True, validate=_RIPPLE)
+    stopband_attenuation_db = ma.fields.Float(required=True, validate=_ATTEN)
+
+    @ma.validates_schema
+    def _pairs(self, data, **kwargs):
+        band = data.get("response") in BAND_RESPONSES
+        for name in ("passband_hz", "stopband_hz"):
+            if name in data:
+                _check_pair(data, name, band)
+
+
+class MaskField(ma.fields.Field):
+    """A requirement (passband/stopband fields) or a list of segments."""
+
+    def __init__(self, **kwargs):
+        self._req = ma.fields.Nested(RequirementMaskSchema)
+        self._segments = ma.fields.List(ma.fields.Nested(MaskSegmentSchema), validate=ma.validate.Length(min=1, max=64))
+        super().__init__(**kwargs)
+
+    def _deserialize(self, value, attr, data, **kwargs):
+        if isinstance(value, dict):
+            return {"requirement": self._req.deserialize(value)}
+        if isinstance(value, list):
+            return {"segments": self._segments.deserialize(value)}
+        raise ma.ValidationError("expected the requirement fields or a list of segments")
+
+    def openapi_properties(self) -> dict:
+        return {"oneOf": [{"$ref": "#/components/schemas/RequirementMask"},
+                          {"type": "array", "items": {"$ref": "#/components/schemas/MaskSegment"},
+                           "minItems": 1, "maxItems": 64}]}
+
+
+class RootField(ma.fields.List):
+    """``[re, im]`` in rad/s."""
+
+    def __init__(self, **kwargs):
+        super().__init__(ma.fields.Float(validate=ma.validate.Range(min=-1e12, max=1e12)),
+                         validate=ma.validate.Length(equal=2), **kwargs)
+
+
+class ResponseRequestSchema(StrictSchema):
+    """Exactly one of `filter`, `zeros`+`poles`+`gain`, `sections`, `design`; then the grids and the mask."""
+
+    filter = ma.fields.Nested(FilterSchema, metadata={"description": "A requirement or order as in /v1/approximations."})
+    zeros = ma.fields.List(RootField(), validate=ma.validate.Length(max=80), metadata={
+        "description": "Finite zeros, each [re, im] in rad/s (conjugates paired)."})
+    poles = ma.fields.List(RootField(), validate=ma.validate.Length(min=1, max=80), metadata={
+        "description": "Poles, each [re, im] in rad/s, in the left half-plane."})
+    gain = ma.fields.Float(validate=ma.validate.Range(min=-1e300, max=1e300), metadata={
+        "description": "k of H(s) = k·∏(s − z)/∏(s − p)."})
+    sections = ma.fields.List(ma.fields.Nested(SectionSchema), validate=ma.validate.Length(min=1, max=40))
+    design = ma.fields.Nested(DesignDocumentSchema, metadata={
+        "description": "A design document from /v1/designs: analysed at circuit level with its part values."})
+    frequencies = FrequenciesField(metadata={
+        "description": "{start_hz, stop_hz, points, spacing} or a list (Hz); default 501 log-spaced points "
+                       "two decades either side of the poles."})
+    time = ma.fields.Nested(TimeGridSchema, metadata={"description": "Time grid of the step and impulse responses."})
+    mask = MaskField(metadata={"description": "Requirement mask: the requirement fields, or a list of segments "
+                                              "{start_hz, stop_hz, max_loss_db | min_loss_db}."})
+    passband_hz = FrequencyOrPair(metadata={"description": "Passband edge(s) for ripple and delay variation."})
+    attenuation_at_hz = ma.fields.List(Quantity(unit="Hz", validate=_FREQ0), validate=ma.validate.Length(max=64),
+                                       metadata={"description": "Report the loss at these frequencies (Hz)."})
+    format = one_of(["json", "csv", "svg"], load_default="json", description=(
+        "`csv`: a row per frequency (or per time point with `table: time`); `svg`: magnitude and phase, group "
+        "delay and step response, with the mask."))
+    table = one_of(["frequency", "time"], load_default="frequency", description="Rows of the CSV table.")
+
+    @ma.validates_schema
+    def _exactly_one_system(self, data, **kwargs):
+        given = [name for name in ("filter", "poles", "sections", "design") if name in data]
+        if ("zeros" in data or "gain" in data) and "poles" not in data:
+            raise ma.ValidationError({"poles": ["zeros and gain need poles"]})
+        if len(given) != 1:
+            raise ma.ValidationError(
+                "give exactly one of filter, zeros + poles + gain, sections or design"
+                + (f" (got {', '.join(given)})" if given else ""), "_schema")
+        if "poles" in data and "gain" not in data:
+            raise ma.ValidationError({"gain": ["Missing data for required field."]})
+
+
+class ResponseQuerySchema(StrictSchema):
+    """The by-order transfer function and a log grid as query parameters."""
+
+    response = one_of(ResponseType, required=True, description="Response type.")
+    family = one_of(Family, required=True, description="Approximation family.")
+    order = ma.fields.Integer(required=True, validate=ma.validate.Range(min=1, max=20))
+    cutoff_hz = FrequencyOrPair(required=True, metadata={"description": "Cutoff (Hz); `low,high` for band responses."})
+    passband_ripple_db = ma.fields.Float(validate=_RIPPLE)
+    stopband_attenuation_db = ma.fields.Float(validate=_ATTEN)
+    cutoff_at = one_of(CutoffAt, load_default="family", description="`family` or `-3db`.")
+    start_hz = Quantity(unit="Hz", validate=FREQ_RANGE)
+    stop_hz = Quantity(unit="Hz", validate=FREQ_RANGE)
+    points = ma.fields.Integer(load_default=501, validate=ma.validate.Range(min=2, max=MAX_LIST))
+    format = one_of(["json", "csv", "svg"], load_default="json", description="`csv` or `svg` as for POST.")
+    table = one_of(["frequency", "time"], load_default="frequency", description="Rows of the CSV table.")
+
+    @ma.pre_load
+    def _split_pair(self, data, **kwargs):
+        data = dict(data)
+        cut = data.get("cutoff_hz")
+        if isinstance(cut, str) and "," in cut:
+            data["cutoff_hz"] = [part.strip() for part in cut.split(",")]
+        return data
+
+    @ma.validates_schema
+    def _grid(self, data, **kwargs):
+        _check_pair(data, "cutoff_hz", data.get("response") in BAND_RESPONSES) if "cutoff_hz" in data else None
+        if ("start_hz" in data) != ("stop_hz" in data):
+            raise ma.ValidationError("give both start_hz and stop_hz, or neither", "start_hz")
+        if "start_hz" in data and not data["stop_hz"] > data["start_hz"]:
+            raise ma.ValidationError("stop_hz must be above start_hz", "stop_hz")
+
+
+class TimeResponseSchema(ma.Schema):
+    time_s = ma.fields.List(ma.fields.Float())
+    value = ma.fields.List(ma.fields.Float())
+
+
+class AttenuationSchema(ma.Schema):
+    frequency_hz = ma.fields.Float()
+    loss_db = ma.fields.Float()
+
+
+class MetricsSchema(ma.Schema):
+    passband_gain_db = ma.fields.Float(allow_none=True)
+    f3db_hz = ma.fields.Raw(allow_none=True, metadata={"description": "−3 dB frequency (Hz); [low, high] for band "
+                                                                         "responses."})
+    passband_ripple_db = ma.fields.Float(allow_none=True)
+    attenuation_db = ma.fields.List(ma.fields.Nested(AttenuationSchema))
+    peak_gain_db = ma.fields.Float(allow_none=True)
+    peak_frequency_hz = ma.fields.Float(allow_none=True)
+    group_delay_s = ma.fields.Float(allow_none=True, metadata={"description": "At DC (or at the band centre)."})
+    group_delay_variation_s = ma.fields.Float(allow_none=True, metadata={"description": "Across the passband."})
+    overshoot_pct = ma.fields.Float(allow_none=True)
+    rise_time_s = ma.fields.Float(allow_none=True, metadata={"description": "10-90 % of the step."})
+    settling_time_1pct_s = ma.fields.Float(allow_none=True)
+    settling_time_01pct_s = ma.fields.Float(allow_none=True)
+    unavailable = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.String(), metadata={
+        "description": "Metrics that do not apply, with the reason."})
+
+
+class SegmentResultSchema(ma.Schema):
+    start_hz = ma.fields.Float()
+    stop_hz = ma.fields.Float(allow_none=True)
+    max_loss_db = ma.fields.Float(allow_none=True)
+    min_loss_db = ma.fields.Float(allow_none=True)
+    worst_margin_db = ma.fields.Float()
+    worst_frequency_hz = ma.fields.Float()
+    passed = ma.fields.Boolean(attribute="pass", data_key="pass")
+
+
+class MaskResultSchema(ma.Schema):
+    passed = ma.fields.Boolean(attribute="pass", data_key="pass", metadata={"description": "Every segment is met."})
+    worst_margin_db = ma.fields.Float(metadata={"description": "Smallest margin over all segments (dB)."})
+    worst_frequency_hz = ma.fields.Float(metadata={"description": "Where it occurs (Hz)."})
+    reference_gain_db = ma.fields.Float(allow_none=True)
+    segments = ma.fields.List(ma.fields.Nested(SegmentResultSchema))
+
+
+class ResponseSchema(ReplySchema):
+    response_type = ma.fields.String()
+    frequency_hz = ma.fields.List(ma.fields.Float())
+    magnitude_db = ma.fields.List(ma.fields.Float())
+    phase_deg = ma.fields.List(ma.fields.Float(), metadata={"description": "Unwrapped (degrees)."})
+    group_delay_s = ma.fields.List(ma.fields.Float())
+    step = ma.fields.Nested(TimeResponseSchema, allow_none=True)
+    impulse = ma.fields.Nested(TimeResponseSchema, allow_none=True)
+    metrics = ma.fields.Nested(MetricsSchema)
+    mask_result = ma.fields.Nested(MaskResultSchema, allow_none=True)
+    notes = ma.fields.List(ma.fields.String())
+
+
+#: Schemas referenced by name from custom fields (registered as OpenAPI components by the app).
+REFERENCED_COMPONENTS = {
+    "FrequencyGrid": FrequencyGridSchema,
+    "RequirementMask": RequirementMaskSchema,
+    "MaskSegment": MaskSegmentSchema,
+}
