@@ -23,6 +23,10 @@ def _serve(args: argparse.Namespace) -> int:
     env["ROLLOFF_HOST"] = args.host or settings.host
     env["ROLLOFF_PORT"] = str(args.port or settings.port)
     env["ROLLOFF_WORKERS"] = str(args.workers or settings.workers)
+    # One BLAS thread per worker: the workers are the parallelism, and small matrix calls
+    # under an oversubscribed BLAS thread pool were measured 3-40x slower on 2 cores.
+    env.setdefault("OPENBLAS_NUM_THREADS", "1")
+    env.setdefault("OMP_NUM_THREADS", "1")
     if not env.get("PROMETHEUS_MULTIPROC_DIR"):
         env["PROMETHEUS_MULTIPROC_DIR"] = tempfile.mkdtemp(prefix="rolloff-metrics-")
     argv = [sys.executable, "-m", "gunicorn", "--config", "python:service.gunicorn_conf", "service.wsgi:app"]
