@@ -1,0 +1,341 @@
+"""A corpus of hostile requests, each to be answered by a 4xx problem naming the field.
+
+Shared by the pytest run through the Flask test client
+(tests/hardening/test_bad_input_corpus.py) and the run against a live
+gunicorn (scripts/bad_input_live). Each :class:`Case` says what must come
+back: a 4xx status (or one exact status), ``application/problem+json``, and
+``field``, a field path that must appear among the keys of ``errors`` (or in
+``detail`` for body-level problems such as an empty body), or ``detail``, a
+phrase the detail must contain.
+
+The design-document cases are made from a real document the service has just
+returned (:func:`cases` takes it), so they stay valid as the document grows.
+"""
+
+from __future__ import annotations
+
+import copy
+import json
+from dataclasses import dataclass
+from dataclasses import field as _field
+from typing import Any, Callable
+
+JSON = "application/json"
+PROBLEM = "application/problem+json"
+
+GOOD_DESIGN_REQUEST = {"response": "lowpass", "family": "butterworth", "order": 4, "cutoff_hz": 1000}
+GOOD_FILTER = {"response": "lowpass", "family": "butterworth", "order": 4, "cutoff_hz": "1kHz"}
+
+
+@dataclass
+class Case:
+    """One hostile request and what must come back."""
+
+    name: str
+    method: str
+    path: str
+    body: Any = None          # a JSON-able value, or bytes sent as they are
+    content_type: str | None = JSON
+    field: str | None = None  # a key of `errors` must contain it (or `detail` must)
+    detail: str | None = None  # `detail` must contain it (case-insensitive)
+    status: int | None = None  # one exact status; otherwise any 4xx
+    route: str | None = None  # the URL rule this case needs (skip while it does not exist)
+    query: str = ""
+    headers: dict[str, str] = _field(default_factory=dict)
+    known: str | None = None  # a known mismatch, owned elsewhere: what to change
+
+    def encoded(self) -> bytes | None:
+        if self.body is None:
+            return None
+        if isinstance(self.body, bytes):
+            return self.body
+        return json.dumps(self.body, allow_nan=True).encode("utf-8")
+
+    def request_headers(self) -> dict[str, str]:
+        h = dict(self.headers)
+        if self.content_type is not None and self.body is not None:
+            h["Content-Type"] = self.content_type
+        return h
+
+    @property
+    def url(self) -> str:
+        return self.path + (("?" + self.query) if self.query else "")
+
+
+def judge(case: Case, status: int, content_type: str, body: bytes) -> str | None:
+    """None when the answer is what ``case`` demands, else what is wrong."""
+    if case.status is not None and status != case.status:
+        return f"status {status}, expected {case.status}: {body[:300]!r}"
+    if not 400 <= status < 500:
+        return f"status {status}, expected a 4xx: {body[:300]!r}"
+    if content_type.split(";")[0].strip() != PROBLEM:
+        return f"content type {content_type!r}, expected {PROBLEM}"
+    try:
+        problem = json.loads(body)
+    except ValueError:
+        return f"body is not JSON: {body[:200]!r}"
+    for member in ("type", "title", "status", "detail"):
+        if member not in problem:
+            return f"problem lacks {member!r}: {problem}"
+    if problem["status"] != status:
+        return f"problem status {problem['status']} != {status}"
+    detail = str(problem.get("detail", ""))
+    errors = problem.get("errors") or {}
+    if case.field is not None:
+        messages = " ".join(str(m) for ms in errors.values() for m in (ms if isinstance(ms, list) else [ms]))
+        if not any(case.field in key for key in errors) and case.field not in detail \
+                and not ("body" in errors and case.field in messages):
+            return f"field {case.field!r} named neither in errors {errors} nor in detail {detail!r}"
+    if case.detail is not None and case.detail.lower() not in detail.lower():
+        return f"detail {detail!r} lacks {case.detail!r}"
+    return None
+
+
+def _deep(levels: int) -> bytes:
+    return b'{"response": "lowpass", "family": "butterworth", "order": 4, "cutoff_hz": ' \
+        + b"[" * levels + b"1" + b"]" * levels + b"}"
+
+
+def _with(base: dict, **changes) -> dict:
+    out = copy.deepcopy(base)
+    out.update(changes)
+    return out
+
+
+def _edit(doc: dict, fn: Callable[[dict], None]) -> dict:
+    out = copy.deepcopy(doc)
+    fn(out)
+    return out
+
+
+def _design_doc_cases(doc: dict) -> list[Case]:
+    ev = "/v1/designs/evaluate"
+
+    def drop_part(d):
+        d["stages"][0]["components"].pop()
+
+    def repeat_ref(d):
+        d["stages"][-1]["components"][0]["ref"] = d["stages"][0]["components"][0]["ref"]
+
+    def value(v):
+        def f(d):
+            d["stages"][0]["components"][0]["value"] = v
+        return f
+
+    def tolerance(d):
+        d["stages"][0]["components"][0]["tolerance"] = 5.0
+
+    def topology(d):
+        d["stages"][0]["topology"] = "flux_capacitor"
+
+    def kind(d):
+        d["stages"][0]["components"][0]["kind"] = "inductor"
+
+    def no_stages(d):
+        d["stages"] = []
+
+    def extra(d):
+        d["stages"][0]["components"][0]["colour"] = "blue"
+
+    def section_q(d):
+        d["stages"][0]["section"]["q"] = "NaN"
+
+    r = "/v1/designs/evaluate"
+    cases = [
+        Case("evaluate: a missing part", "POST", ev, _edit(doc, drop_part), field="stages[0]", route=r),
+        Case("evaluate: a repeated ref", "POST", ev, _edit(doc, repeat_ref), field="ref", route=r),
+        Case("evaluate: negative value", "POST", ev, _edit(doc, value(-4700.0)), field="stages[0].components[0].value", route=r),
+        Case("evaluate: zero value", "POST", ev, _edit(doc, value(0)), field="stages[0].components[0].value", route=r),
+        Case("evaluate: value NaN string", "POST", ev, _edit(doc, value("NaN")), field="stages[0].components[0].value", route=r),
+        Case("evaluate: value Infinity string", "POST", ev, _edit(doc, value("Infinity")), field="stages[0].components[0].value", route=r),
+        Case("evaluate: value 1e308", "POST", ev, _edit(doc, value(1e308)), field="stages[0].components[0].value", route=r),
+        Case("evaluate: value wrong type", "POST", ev, _edit(doc, value({"ohms": 10})), field="stages[0].components[0].value", route=r),
+        Case("evaluate: tolerance 500 %", "POST", ev, _edit(doc, tolerance), field="stages[0].components[0].tolerance", route=r),
+        Case("evaluate: unknown topology", "POST", ev, _edit(doc, topology), field="stages[0].topology", route=r),
+        Case("evaluate: unknown part kind", "POST", ev, _edit(doc, kind), field="stages[0].components[0].kind", route=r),
+        Case("evaluate: no stages", "POST", ev, _edit(doc, no_stages), field="stages", route=r),
+        Case("evaluate: unknown component field", "POST", ev, _edit(doc, extra), field="colour", route=r),
+        Case("evaluate: section q NaN", "POST", ev, _edit(doc, section_q), field="stages[0].section.q", route=r),
+        Case("responses: design with a missing part", "POST", "/v1/responses",
+             {"design": _edit(doc, drop_part)}, field="design.stages[0]", route="/v1/responses"),
+        Case("responses: design with a repeated ref", "POST", "/v1/responses",
+             {"design": _edit(doc, repeat_ref)}, field="ref", route="/v1/responses"),
+        Case("tolerance: design with a missing part", "POST", "/v1/tolerance",
+             {"design": _edit(doc, drop_part), "trials": 100, "seed": 1}, field="design.stages[0]",
+             route="/v1/tolerance"),
+        Case("tolerance: trials 10^9", "POST", "/v1/tolerance", {"design": doc, "trials": 10**9, "seed": 1},
+             field="trials", route="/v1/tolerance"),
+        Case("tolerance: trials 0", "POST", "/v1/tolerance", {"design": doc, "trials": 0, "seed": 1},
+             field="trials", route="/v1/tolerance"),
+        Case("tolerance: trials NaN string", "POST", "/v1/tolerance", {"design": doc, "trials": "NaN"},
+             field="trials", route="/v1/tolerance"),
+        Case("tolerance: seed wrong type", "POST", "/v1/tolerance", {"design": doc, "trials": 100, "seed": "abc"},
+             field="seed", route="/v1/tolerance"),
+        Case("tolerance: unknown distribution", "POST", "/v1/tolerance",
+             {"design": doc, "trials": 100, "distribution": "cauchy"}, field="distribution", route="/v1/tolerance"),
+        Case("tolerance: trials x points over the work budget", "POST", "/v1/tolerance",
+             {"design": doc, "trials": 100_000, "seed": 1,
+              "frequencies": {"start_hz": 10, "stop_hz": 1e5, "points": 10_000}},
+             field="trials", route="/v1/tolerance"),
+        Case("tolerance: no design", "POST", "/v1/tolerance", {"trials": 100}, field="design", route="/v1/tolerance"),
+    ]
+    return cases
+
+
+def cases(design_document: dict | None) -> list[Case]:
+    """The whole corpus. ``design_document``: a document returned by ``POST /v1/designs`` (or None)."""
+    nv, ap, cp, ds, rs = ("/v1/values/nearest", "/v1/approximations", "/v1/approximations/compare",
+                          "/v1/designs", "/v1/responses")
+    f = GOOD_FILTER
+    d = GOOD_DESIGN_REQUEST
+    req = {"response": "lowpass", "family": "elliptic", "passband_hz": 1000, "stopband_hz": 3000,
+           "passband_ripple_db": 0.5, "stopband_attenuation_db": 40}
+    out = [
+        # --- /v1/values/nearest ------------------------------------------------------------
+        Case("nearest: value wrong type", "POST", nv, {"value": [4700], "series": "E24"}, field="value"),
+        Case("nearest: value NaN string", "POST", nv, {"value": "NaN", "series": "E24"}, field="value"),
+        Case("nearest: value Infinity string", "POST", nv, {"value": "Infinity", "series": "E24"}, field="value"),
+        Case("nearest: value NaN literal", "POST", nv, b'{"value": NaN, "series": "E24"}', field="value"),
+        Case("nearest: value -Infinity literal", "POST", nv, b'{"value": -Infinity}', field="value"),
+        Case("nearest: negative value", "POST", nv, {"value": -4700, "series": "E24"}, field="value"),
+        Case("nearest: zero value", "POST", nv, {"value": 0, "series": "E24"}, field="value"),
+        Case("nearest: value 1e308", "POST", nv, {"value": 1e308, "series": "E24"}, field="value"),
+        Case("nearest: unknown series", "POST", nv, {"value": 4700, "series": "E7"}, field="series"),
+        Case("nearest: unknown field", "POST", nv, {"value": 4700, "colour": "red"}, field="colour"),
+        Case("nearest: boolean value", "POST", nv, {"value": True}, field="value"),
+        Case("nearest: GET value NaN", "GET", nv, query="value=NaN&series=E24", field="value"),
+        Case("nearest: GET unknown parameter", "GET", nv, query="value=4.7k&colour=red", field="colour"),
+        Case("nearest: GET value with a wrong unit", "GET", nv, query="value=4.7kHz%25", field="value"),
+        # --- /v1/approximations ------------------------------------------------------------
+        Case("approx: order wrong type", "POST", ap, _with(f, order="four"), field="order"),
+        Case("approx: order 10^6", "POST", ap, _with(f, order=10**6), field="order"),
+        Case("approx: order 0", "POST", ap, _with(f, order=0), field="order"),
+        Case("approx: negative order", "POST", ap, _with(f, order=-3), field="order"),
+        Case("approx: fractional order", "POST", ap, _with(f, order=4.5), field="order"),
+        Case("approx: negative cutoff", "POST", ap, _with(f, cutoff_hz=-1000), field="cutoff_hz"),
+        Case("approx: zero cutoff", "POST", ap, _with(f, cutoff_hz=0), field="cutoff_hz"),
+        Case("approx: cutoff NaN string", "POST", ap, _with(f, cutoff_hz="NaN"), field="cutoff_hz"),
+        Case("approx: cutoff Infinity string", "POST", ap, _with(f, cutoff_hz="Infinity"), field="cutoff_hz"),
+        Case("approx: cutoff -inf string", "POST", ap, _with(f, cutoff_hz="-inf"), field="cutoff_hz"),
+        Case("approx: cutoff 1e308", "POST", ap, _with(f, cutoff_hz=1e308), field="cutoff_hz"),
+        Case("approx: cutoff above 1e12 Hz", "POST", ap, _with(f, cutoff_hz=2e12), field="cutoff_hz"),
+        Case("approx: cutoff 5 THz as a string", "POST", ap, _with(f, cutoff_hz="5THz"), field="cutoff_hz"),
+        Case("approx: cutoff with the wrong unit", "POST", ap, _with(f, cutoff_hz="10kF"), field="cutoff_hz"),
+        Case("approx: unknown family", "POST", ap, _with(f, family="chebychev"), field="family"),
+        Case("approx: unknown response", "POST", ap, _with(f, response="allpass"), field="response"),
+        Case("approx: bandpass with one cutoff", "POST", ap, _with(f, response="bandpass"), field="cutoff_hz"),
+        Case("approx: band pair reversed", "POST", ap, _with(f, response="bandpass", cutoff_hz=[2000, 1000]),
+             field="cutoff_hz"),
+        Case("approx: ripple NaN string", "POST", ap, _with(req, passband_ripple_db="NaN"), field="passband_ripple_db"),
+        Case("approx: attenuation 1e308", "POST", ap, _with(req, stopband_attenuation_db=1e308),
+             field="stopband_attenuation_db"),
+        Case("approx: stopband below passband", "POST", ap, _with(req, stopband_hz=500), field="stopband_hz"),
+        Case("approx: missing family", "POST", ap, {"response": "lowpass", "order": 4, "cutoff_hz": 1000},
+             field="family"),
+        Case("approx: unknown field", "POST", ap, _with(f, colour="red"), field="colour"),
+        Case("approx: 10^6-element cutoff array (too large a body)", "POST", ap,
+             b'{"response": "bandpass", "family": "butterworth", "order": 2, "cutoff_hz": ['
+             + b",".join([b"1"] * 10**6) + b"]}", status=413, detail="ROLLOFF_MAX_BODY_BYTES"),
+        Case("approx: 1000-deep nested JSON", "POST", ap, _deep(1000), status=400, detail="nests deeper"),
+        Case("approx: 40-deep nested JSON", "POST", ap, _deep(40), status=400, detail="nests deeper"),
+        Case("approx: invalid UTF-8", "POST", ap,
+             b'{"response": "lowpass", "family": "butter\xff\xfeworth", "order": 4, "cutoff_hz": 1000}',
+             status=400, detail="UTF-8"),
+        Case("approx: wrong content type", "POST", ap, json.dumps(d).encode(), content_type="text/plain",
+             status=415, detail="Content-Type"),
+        Case("approx: form content type", "POST", ap, b"order=4&cutoff_hz=1000",
+             content_type="application/x-www-form-urlencoded", status=415, detail="Content-Type"),
+        Case("approx: duplicate keys", "POST", ap,
+             b'{"response": "lowpass", "family": "butterworth", "order": 4, "order": 5, "cutoff_hz": 1000}',
+             status=400, field="order"),
+        Case("approx: empty body", "POST", ap, b"", status=400, detail="empty"),
+        Case("approx: white-space body", "POST", ap, b"   \n", status=400, detail="empty"),
+        Case("approx: truncated JSON", "POST", ap, b'{"response": "lowpass", "family": ', status=400,
+             detail="not valid JSON"),
+        Case("approx: body is an array", "POST", ap, [d], field="body"),
+        Case("approx: body is a string", "POST", ap, "lowpass", field="body"),
+        Case("approx: body is null", "POST", ap, b"null", field="body"),
+        Case("approx: integer with 5000 digits", "POST", ap,
+             b'{"response": "lowpass", "family": "butterworth", "order": ' + b"9" * 5000 + b', "cutoff_hz": 1000}',
+             status=400, detail="not valid JSON"),
+        Case("approx: GET order 10^6", "GET", ap, query="response=lowpass&family=butterworth&order=1000000&cutoff_hz=1k",
+             field="order"),
+        Case("approx: GET cutoff NaN", "GET", ap, query="response=lowpass&family=butterworth&order=4&cutoff_hz=NaN",
+             field="cutoff_hz"),
+        # --- /v1/approximations/compare ------------------------------------------------------
+        Case("compare: passband NaN string", "POST", cp, _with(req, passband_hz="NaN"), field="passband_hz"),
+        Case("compare: passband wrong type", "POST", cp, _with(req, passband_hz={"hz": 1}), field="passband_hz"),
+        Case("compare: attenuation negative", "POST", cp, _with(req, stopband_attenuation_db=-40),
+             field="stopband_attenuation_db"),
+        # --- /v1/designs -------------------------------------------------------------------
+        Case("designs: order 10^6", "POST", ds, _with(d, order=10**6), field="order", route=ds),
+        Case("designs: cutoff above 1e12 Hz", "POST", ds, _with(d, cutoff_hz=1.5e12), field="cutoff_hz", route=ds),
+        Case("designs: unknown resistor series", "POST", ds, _with(d, parts={"resistors": {"series": "E7"}}),
+             field="parts.resistors.series", route=ds),
+        Case("designs: resistor range reversed", "POST", ds,
+             _with(d, parts={"resistors": {"range": [1e6, 1e3]}}), field="parts.resistors.range", route=ds),
+        Case("designs: negative resistor range", "POST", ds,
+             _with(d, parts={"resistors": {"range": [-1, 1e5]}}), field="parts.resistors.range", route=ds),
+        Case("designs: resistor tolerance 200 %", "POST", ds,
+             _with(d, parts={"resistors": {"tolerance": 2.0}}), field="parts.resistors.tolerance", route=ds),
+        Case("designs: unknown capacitor field", "POST", ds,
+             _with(d, parts={"capacitors": {"colour": "blue"}}), field="parts.capacitors.colour", route=ds),
+        Case("designs: stock of 10^4 entries", "POST", ds,
+             _with(d, parts={"stock": [{"kind": "resistor", "value": 1000 + i, "tolerance": 0.01}
+                                       for i in range(10_000)]}), field="parts.stock", route=ds),
+        Case("designs: stock value NaN string", "POST", ds,
+             _with(d, parts={"stock": [{"kind": "resistor", "value": "NaN", "tolerance": 0.01}]}),
+             field="parts.stock[0].value", route=ds),
+        Case("designs: stock part without kind", "POST", ds,
+             _with(d, parts={"stock": [{"value": 1000, "tolerance": 0.01}]}), field="parts.stock[0].kind", route=ds),
+        Case("designs: negative op-amp GBW", "POST", ds, _with(d, opamp={"gbw_hz": -1e6}), field="opamp.gbw_hz",
+             route=ds),
+        Case("designs: op-amp GBW Infinity string", "POST", ds, _with(d, opamp={"gbw_hz": "Infinity"}),
+             field="opamp.gbw_hz", route=ds),
+        Case("designs: unknown topology", "POST", ds, _with(d, topology="flux_capacitor"), field="topology", route=ds),
+        Case("designs: 10^4 topology names", "POST", ds, _with(d, topology=["sallen_key"] * 10_000),
+             field="topology", route=ds),
+        # Known mismatch: marshmallow's Boolean takes "yes", "on", 1 ... while the document says boolean.
+        Case("designs: exact wrong type", "POST", ds, _with(d, exact="yes"), field="exact", route=ds,
+             known="service/api/schemas/designs.py: `exact` is a lenient ma.fields.Boolean; accept JSON "
+                   "true/false only (truthy={True}, falsy={False})"),
+        # --- /v1/responses -----------------------------------------------------------------
+        Case("responses: nothing to evaluate", "POST", rs, {"frequencies": {"start_hz": 10, "stop_hz": 1e4}},
+             field="filter", route=rs),
+        Case("responses: filter and poles both", "POST", rs,
+             {"filter": f, "poles": [[-1000, 0]], "gain": 1000}, field="filter", route=rs),
+        Case("responses: 10^6 frequency points", "POST", rs,
+             {"filter": f, "frequencies": {"start_hz": 10, "stop_hz": 1e5, "points": 10**6}},
+             field="frequencies.points", route=rs),
+        Case("responses: start above stop", "POST", rs,
+             {"filter": f, "frequencies": {"start_hz": 1e5, "stop_hz": 10}}, field="frequencies", route=rs),
+        Case("responses: frequency list of 10^5 values", "POST", rs,
+             {"filter": f, "frequencies": [10.0 + i for i in range(100_000)]}, field="frequencies", route=rs),
+        Case("responses: frequency list with NaN", "POST", rs, {"filter": f, "frequencies": [10, "NaN", 1000]},
+             field="frequencies", route=rs),
+        Case("responses: frequency above 1e12 Hz", "POST", rs, {"filter": f, "frequencies": [10, 5e12]},
+             field="frequencies", route=rs),
+        Case("responses: negative time", "POST", rs, {"filter": f, "time": {"stop_s": -1}}, field="time.stop_s",
+             route=rs),
+        Case("responses: 10^6 time points", "POST", rs, {"filter": f, "time": {"stop_s": 0.01, "points": 10**6}},
+             field="time.points", route=rs),
+        Case("responses: pole NaN string", "POST", rs, {"poles": [["NaN", 0]], "gain": 1}, field="poles", route=rs),
+        Case("responses: pole wrong shape", "POST", rs, {"poles": [[-1, 0, 3]], "gain": 1}, field="poles", route=rs),
+        Case("responses: gain 1e308 squared", "POST", rs, {"poles": [[-1000, 0]], "gain": 1e309}, field="gain",
+             route=rs),
+        Case("responses: unknown format", "POST", rs, {"filter": f, "format": "xlsx"}, field="format", route=rs),
+        Case("responses: GET points 10^6", "GET", rs,
+             query="response=lowpass&family=butterworth&order=4&cutoff_hz=1k&points=1000000", field="points",
+             route=rs),
+    ]
+    if design_document is not None:
+        out += _design_doc_cases(design_document)
+    return out
+
+
+#: A good request per endpoint, sent after each batch: the service still answers normally.
+GOOD_REQUESTS = (
+    ("POST", "/v1/values/nearest", {"value": "4.87k", "series": "E24"}),
+    ("POST", "/v1/approximations", GOOD_FILTER),
+    ("GET", "/healthz", None),
+)
