@@ -20,18 +20,15 @@ import numpy as np
 from service.approximation.types import Section
 from service.circuit import Circuit, OpAmpModel, to_spice, transfer_function_zpk
 from service.realization.cascade import analysis_grid, grid_peak
-from service.realization.fit import fit_section, standard_shape, worst_error, zpk_eval
-from service.realization.opamp import (
-    DEFAULT_A0_DB, RULE_OF_THUMB, SLEW_RULE, gbw_rule_of_thumb, required_gbw, slew_required,
-)
+from service.realization.fit import dominant_poles, fit_section, standard_shape, zpk_eval
+from service.realization.gbw import required_gbw_sweep
+from service.realization.opamp import DEFAULT_A0_DB, RULE_OF_THUMB, SLEW_RULE, gbw_rule_of_thumb, slew_required
 from service.realization.results import Component, Design, OpAmpRequirement, OpAmpUse, Stage
 from service.realization.warnings import collect_warnings
 
 #: Highest frequency considered for "where the stage passes signal", as a multiple
 #: of the highest section frequency (a highpass passes up to the op-amp's own limit).
 SIGNAL_BAND_FACTOR = 10.0
-#: Relative precision of the required GBW (it is reported on the safe side of the boundary).
-GBW_RTOL = 0.05
 
 
 @dataclass
@@ -100,14 +97,6 @@ def _zpk(plan: StagePlan, model) -> tuple[np.ndarray, np.ndarray, float]:
     return np.asarray(z, dtype=complex), np.asarray(p, dtype=complex), float(np.real(k))
 
 
-def _signed(a: dict, b: dict) -> np.ndarray:
-    """Signed relative f0 and Q errors of figures ``a`` against ``b``."""
-    e = [a["f0_hz"] / b["f0_hz"] - 1]
-    if a.get("q") is not None and b.get("q"):
-        e.append(a["q"] / b["q"] - 1)
-    return np.array(e)
-
-
 def analyze(plans: list[StagePlan], *, response: str | None, family: str | None, order: int,
             requirement: dict | None, settings: dict, notes: list | None = None) -> Design:
     """Achieved figures, op-amp needs, peaks, summary, BOM, netlist and warnings.
@@ -159,10 +148,12 @@ def analyze(plans: list[StagePlan], *, response: str | None, family: str | None,
         rule = gbw_rule_of_thumb(sec.gain, sec.q, sec.f0_hz, error)
         ref = achieved[k]
         if plan.opamps:
-            def err_at(g, plan=plan, ref=ref):
-                return _signed(fit_section(plan.section, *_zpk(plan, plan.model(gbw_hz=g))), ref)
-
-            gbw_req = required_gbw(err_at, error, rule, rtol=GBW_RTOL)
+            u = plan.opamps[0]
+            a0 = 10 ** ((DEFAULT_A0_DB if u.a0_db is None else u.a0_db) / 20)
+            gbw_req = required_gbw_sweep(
+                lambda model, plan=plan: stage_circuit(plan, model), ref,
+                dominant_poles(sec, ideal_zpk[k][1]), error, rule, a0=a0,
+                rout_ohm=0.0 if u.rout_ohm is None else u.rout_ohm)
         else:
             gbw_req = None
         req = OpAmpRequirement(

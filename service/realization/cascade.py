@@ -12,7 +12,6 @@ frequency grid and refined by zooming twice on the largest sample.
 
 from __future__ import annotations
 
-from dataclasses import replace
 from typing import Callable
 
 import numpy as np

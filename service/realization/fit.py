@@ -61,6 +61,11 @@ def _match(targets: np.ndarray, found: np.ndarray) -> np.ndarray:
     return np.array(out, dtype=complex)
 
 
+def dominant_poles(section: Section, poles) -> np.ndarray:
+    """The computed poles (rad/s) matched to the section's standard-form poles, shape (order,)."""
+    return _match(target_poles(section), np.asarray(poles, dtype=complex))
+
+
 def standard_shape(section: Section, s: np.ndarray, f0_hz: float, q: float | None,
                    fz_hz: float | None) -> np.ndarray:
     """The section's standard form with gain 1 at complex frequencies ``s`` (rad/s)."""
@@ -143,11 +148,3 @@ def fit_section(section: Section, zeros, poles, gain) -> dict:
         "fz_error": (fz / section.fz_hz - 1) if fz is not None and section.fz_hz else None,
     }
     return out
-
-
-def worst_error(achieved: dict) -> float:
-    """The larger of |f0_error| and |q_error| (first order: |f0_error|)."""
-    e = abs(achieved["f0_error"])
-    if achieved.get("q_error") is not None:
-        e = max(e, abs(achieved["q_error"]))
-    return e

@@ -7,8 +7,8 @@ Two figures per stage:
   memory); scaled here to a stated error ``e`` as ``GBW >= |G| * Q * f0 / e``.
   The exact figure is the smallest GBW for which the single-pole macromodel
   (``A(s) = A0 / (1 + s*A0/(2*pi*GBW))``) keeps the stage's f0 and Q within
-  ``e``; :func:`required_gbw` finds it with the circuit engine by a
-  log-log secant search bracketed by bisection.
+  ``e``; :func:`service.realization.gbw.required_gbw_sweep` finds it with the
+  circuit engine by a vectorized sweep.
 - slew rate.  A sine of peak ``V`` at ``f`` needs ``SR >= 2*pi*f*V`` [2]_
   (common practice), evaluated at the highest frequency where the stage output
   still carries signal.
@@ -25,9 +25,6 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from typing import Callable
-
-import numpy as np
 
 from service.realization.errors import RealizationError
 
@@ -119,93 +116,3 @@ def gbw_rule_of_thumb(gain: float, q: float | None, f0_hz: float, error: float) 
 def slew_required(frequency_hz: float, peak_v: float) -> float:
     """Slew rate (V/us) a sine of ``peak_v`` volts at ``frequency_hz`` needs [2]_."""
     return 2 * math.pi * frequency_hz * peak_v * 1e-6
-
-
-def _model_gbw(g1, d1, g2, d2, error):
-    """Smallest GBW with every ``|a_i + b_i/g| <= error`` for the line through two probes.
-
-    ``d1``, ``d2`` : signed errors (ndarray) at GBW ``g1`` and ``g2`` (Hz).
-    Returns inf when the floor ``a_i`` alone breaks the limit.
-    """
-    if g2 is None:
-        a = np.zeros_like(d1)
-        b = d1 * g1
-    else:
-        b = (d1 - d2) / (1.0 / g1 - 1.0 / g2)
-        a = d1 - b / g1
-    need = 0.0
-    for ai, bi in zip(a, b):
-        if abs(ai) >= error:
-            return math.inf
-        if bi > 0:
-            need = max(need, bi / (error - ai))
-        elif bi < 0:
-            need = max(need, -bi / (error + ai))
-    return need
-
-
-def required_gbw(errors_at: Callable[[float], np.ndarray], error: float, start_hz: float, *,
-                 max_iter: int = 6, rtol: float = 0.02) -> float | None:
-    """Smallest GBW (Hz) with every signed error of ``errors_at(gbw)`` within ``error``.
-
-    Parameters
-    ----------
-    errors_at : callable
-        ``gbw_hz -> ndarray`` of the stage's signed relative f0 and Q errors
-        with the macromodel (against the ideal-op-amp figures).
-    error : float
-        Allowed error (0.01 = 1 %).
-    start_hz : float
-        First probe (the rule of thumb).
-
-    Returns
-    -------
-    float or None
-        The GBW: either a probe whose errors lie within ``[1 - rtol, 1]`` of
-        ``error``, or the line's boundary when a probe no more than
-        ``4*rtol`` above it meets the error (the boundary is then bracketed
-        between the two), or None
-        when no GBW up to 1e4 times the probe meets ``error`` (an open-loop
-        gain floor).
-
-    Notes
-    -----
-    Well above the stage's frequencies each error of a stage with a
-    single-pole op-amp is, to first order in 1/GBW, ``a + b/GBW`` (``a`` the
-    floor set by the open-loop DC gain); Schaumann and Van Valkenburg, "Design
-    of Analog Filters", 2001, sec. 4.6 (active compensation and the effect of
-    GBW on f0 and Q).  Each step fits that line through the last two probes and
-    probes its answer; two circuit solutions usually settle it.
-    """
-    g_prev, d_prev = start_hz, np.asarray(errors_at(start_hz), dtype=float)
-    # First step: the floor taken as zero, aimed a little inside the boundary.
-    g_next = _model_gbw(g_prev, d_prev, None, None, error) * (1 + 2 * rtol)
-    if not math.isfinite(g_next) or g_next <= 0:
-        g_next = start_hz * 2
-    best_ok = g_prev if np.max(np.abs(d_prev)) <= error else None
-    for _ in range(max_iter):
-        g_next = min(max(g_next, start_hz * 1e-4), start_hz * 1e4)
-        d_next = np.asarray(errors_at(g_next), dtype=float)
-        worst = float(np.max(np.abs(d_next)))
-        if worst <= error:
-            best_ok = g_next if best_ok is None else min(best_ok, g_next)
-            if worst >= error * (1 - rtol):
-                return g_next
-        g_new = _model_gbw(g_prev, d_prev, g_next, d_next, error) if g_next != g_prev else math.inf
-        if worst <= error and math.isfinite(g_new) and g_new <= g_next <= g_new * (1 + 4 * rtol):
-            # The line through two solutions puts the boundary just below a probe that
-            # meets the error: the boundary lies in [g_new, g_next]; report the model's.
-            return g_new * (1 + rtol / 10)
-        g_prev, d_prev = g_next, d_next
-        if not math.isfinite(g_new):
-            if g_next >= start_hz * 1e4:
-                return best_ok
-            g_new = g_next * 10
-        elif worst > error and g_new <= g_next:
-            g_new = g_next * (1 + 2 * rtol)
-        if abs(g_new / g_next - 1) < rtol / 4:
-            g_new = g_next * (1 + rtol / 2) if worst > error else g_next
-            if worst <= error:
-                return g_next
-        g_next = g_new
-    return best_ok

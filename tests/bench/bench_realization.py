@@ -10,6 +10,7 @@ median and spread.
 
 from __future__ import annotations
 
+import os
 import statistics
 import sys
 import time
@@ -35,18 +36,20 @@ def main(runs: int = 50) -> None:
         return d
 
     d = once()  # warm-up (imports, caches of numpy/scipy)
-    times = []
+    wall, cpu = [], []
     for _ in range(runs):
-        t0 = time.perf_counter()
+        t0, c0 = time.perf_counter(), time.process_time()
         once()
-        times.append(time.perf_counter() - t0)
-    ms = np.array(times) * 1e3
-    q1, q3 = np.percentile(ms, [25, 75])
+        wall.append(time.perf_counter() - t0)
+        cpu.append(time.process_time() - c0)
     print("8th-order elliptic lowpass, auto topology, E96 resistors, E12 capacitors")
     print(f"stages: {', '.join(f'{s.topology}/{s.section.kind.value}' for s in d.stages)}")
-    print(f"runs: {runs}")
-    print(f"median: {statistics.median(ms):.1f} ms   IQR: {q1:.1f}-{q3:.1f} ms   "
-          f"min: {ms.min():.1f} ms   max: {ms.max():.1f} ms")
+    print(f"runs: {runs}   load average (1 min): {os.getloadavg()[0]:.2f} on {os.cpu_count()} cores")
+    for name, t in (("wall", wall), ("cpu", cpu)):
+        ms = np.array(t) * 1e3
+        q1, q3 = np.percentile(ms, [25, 75])
+        print(f"{name:4s} median: {statistics.median(ms):.1f} ms   IQR: {q1:.1f}-{q3:.1f} ms   "
+              f"min: {ms.min():.1f} ms   max: {ms.max():.1f} ms")
 
 
 if __name__ == "__main__":

@@ -11,8 +11,10 @@ from service.approximation import Section, SectionKind, design_by_order, section
 from service.circuit import ac_response
 from service.realization import OpAmpSpec, design_filter, design_to_circuit
 from service.realization.fit import fit_section, target_poles
-from service.realization.opamp import gbw_rule_of_thumb, required_gbw, slew_required
-from service.realization.analysis import _zpk
+from service.realization.opamp import gbw_rule_of_thumb, slew_required
+from service.circuit import OpAmpModel, transfer_function_zpk
+from service.realization.analysis import _zpk, stage_circuit
+from service.realization.gbw import poles_over_trials
 from tests.realization.spice_checks import one_section, sections_record
 
 
@@ -27,20 +29,6 @@ def test_slew_formula():
     assert slew_required(10e3, 5.0) == pytest.approx(2 * math.pi * 10e3 * 5.0 * 1e-6)
 
 
-def test_required_gbw_finds_the_boundary_of_a_known_law():
-    calls = []
-
-    def law(g):
-        calls.append(g)
-        return np.array([3e-4 + 2e4 / g, -1e4 / g])
-
-    g = required_gbw(law, 0.01, 1e5)
-    exact = 2e4 / (0.01 - 3e-4)
-    assert exact <= g <= exact * 1.05
-    assert len(calls) <= 4
-    assert required_gbw(lambda g: np.array([0.02 + 1.0 / g]), 0.01, 1e5) is None
-
-
 def test_required_gbw_is_the_smallest_meeting_the_error():
     sec = Section(SectionKind.LOWPASS, 2, 5000.0, 2.0, None, 1.0)
     d = design_filter(one_section(sec), topology="sallen_key")
@@ -52,9 +40,25 @@ def test_required_gbw_is_the_smallest_meeting_the_error():
         a = fit_section(plan.section, *_zpk(plan, plan.model(gbw_hz=g)))
         return max(abs(a["f0_hz"] / ref["f0_hz"] - 1), abs(a["q"] / ref["q"] - 1))
 
-    # source: the single-pole macromodel solved by the circuit engine (its own poles), at and below the figure
-    assert worst(req * 1.001) <= 0.01 * 1.001
-    assert worst(req * 0.9) > 0.01
+    # source: the single-pole macromodel solved by the circuit engine (transfer_function_zpk,
+    # independent of the sweep's batched eigenvalues): the figure meets the error, 5 % less does not
+    assert worst(req) <= 0.01 * (1 + 1e-6)
+    assert worst(req * 0.95) > 0.01
+
+
+def test_batched_poles_agree_with_the_engine():
+    sec = Section(SectionKind.LOWPASS_NOTCH, 2, 2000.0, 4.0, 3000.0, 1.0)
+    d = design_filter(one_section(sec))
+    plan = d.plans[0]
+    gbw = np.array([1e5, 1e6, 1e7])
+    batched = poles_over_trials(stage_circuit(plan, OpAmpModel(gbw_hz=gbw, a0=1e5)), 2 * np.pi * 2000.0)
+    for t, g in enumerate(gbw):
+        _, p, _ = transfer_function_zpk(stage_circuit(plan, OpAmpModel(gbw_hz=g, a0=1e5)))
+        got = np.sort_complex(batched[t][np.isfinite(batched[t])])
+        want = np.sort_complex(p)
+        # source: service.circuit.transfer_function_zpk (the engine's QZ poles)
+        assert got.size == want.size
+        np.testing.assert_allclose(np.sort(np.abs(got)), np.sort(np.abs(want)), rtol=1e-7)
 
 
 def test_given_opamp_shortfalls_are_flagged():
