@@ -1,0 +1,138 @@
+"""Per-trial figures of merit, vectorized over trials, on the metric grid.
+
+The definitions are those of :mod:`service.response.metrics` (A. B.
+Williams, F. J. Taylor, *Electronic Filter Design Handbook*, 4th ed., 2006,
+sec. 2.1-2.3), read on the metric grid of :mod:`service.tolerance.grids`
+instead of refined on one exact response:
+
+reference gain
+    The largest gain over the mask's passband points; without a mask the
+    DC gain (lowpass, bandstop) or the peak gain (highpass, bandpass -- an
+    op-amp macromodel takes a highpass's gain to 0 at high frequency); a
+    mask's ``reference_gain_db`` when it gives one.
+loss
+    reference gain minus gain, dB.
+f3db_hz
+    Where the gain crosses the reference minus 10 log10 2 dB, by linear
+    interpolation of dB in log frequency between adjacent metric points
+    (the dense window around the nominal 3 dB point keeps that within
+    ~1e-5 relative); NaN when the trial has no crossing in the grid.
+passband_ripple_db
+    Largest minus smallest gain over the passband points (needs a mask).
+mask margins
+    Per segment: ``max_loss_db - loss`` (passband) and ``loss - min_loss_db``
+    (stopband), the worst over the segment's points; a trial passes a
+    segment when that margin is >= -MARGIN_TOLERANCE_DB.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from service.approximation.types import ResponseType
+from service.response import MARGIN_TOLERANCE_DB
+from service.tolerance.grids import HALF_POWER_DB, Grids
+
+#: Smallest |H| before the logarithm (keeps an exact transmission zero finite, -3000 dB).
+MAGNITUDE_FLOOR = 1e-150
+
+
+def gain_db(h: np.ndarray) -> np.ndarray:
+    """``20 log10 |h|`` in dB, float64, same shape (|h| floored at 1e-150)."""
+    a = np.abs(h)
+    np.maximum(a, MAGNITUDE_FLOOR, out=a)
+    np.log10(a, out=a)
+    a *= 20.0
+    return a
+
+
+def reference_gain(g: np.ndarray, grids: Grids) -> np.ndarray:
+    """Reference gain (dB) per trial, shape (Tc,), from the metric-grid gains ``g`` (Tc, M)."""
+    mask = grids.mask
+    if mask is not None and mask.reference_gain_db is not None:
+        return np.full(g.shape[0], float(mask.reference_gain_db))
+    if grids.passband_columns is not None:
+        return g[:, grids.passband_columns].max(axis=1)
+    if grids.response in (ResponseType.LOWPASS, ResponseType.BANDSTOP) and grids.metric_hz[0] == 0.0:
+        return g[:, 0].copy()
+    return g.max(axis=1)
+
+
+def _interp(fa, fb, ga, gb, level):
+    la, lb = np.log(fa), np.log(fb)
+    d = gb - ga
+    t = np.divide(level - ga, d, out=np.full(d.shape, 0.5), where=d != 0)
+    return np.exp(la + t * (lb - la))
+
+
+def f3db(g: np.ndarray, ref: np.ndarray, grids: Grids) -> np.ndarray:
+    """3 dB frequencies (Hz) per trial: (Tc,) for lowpass/highpass, (Tc, 2) for band responses; NaN when absent."""
+    pos = grids.positive
+    f = grids.metric_hz[pos]
+    gp = g[:, pos]
+    level = (ref - HALF_POWER_DB)[:, None]
+    below = gp < level
+    tc, m = gp.shape
+    rows = np.arange(tc)
+    idx = np.arange(m)[None, :]
+    any_below = below.any(axis=1)
+
+    def first(sel):
+        k = np.where(sel.any(axis=1), np.argmax(sel, axis=1), -1)
+        return k
+
+    def last(sel):
+        k = np.where(sel.any(axis=1), m - 1 - np.argmax(sel[:, ::-1], axis=1), -1)
+        return k
+
+    def cross(a, b, ok):
+        a = np.clip(a, 0, m - 1)
+        b = np.clip(b, 0, m - 1)
+        out = _interp(f[a], f[b], gp[rows, a], gp[rows, b], level[:, 0])
+        return np.where(ok, out, np.nan)
+
+    rt = grids.response
+    if rt is ResponseType.LOWPASS:
+        k = first(below)
+        return cross(k - 1, k, any_below & (k > 0))
+    if rt is ResponseType.HIGHPASS:
+        k = last(below)
+        return cross(k, k + 1, any_below & (k >= 0) & (k < m - 1))
+    if rt is ResponseType.BANDPASS:
+        kp = np.argmax(gp, axis=1)[:, None]
+        lo = last(below & (idx < kp))
+        hi = first(below & (idx > kp))
+        return np.stack([cross(lo, lo + 1, lo >= 0), cross(hi - 1, hi, hi > 0)], axis=1)
+    k0, k1 = first(below), last(below)
+    ok = any_below & (k0 > 0) & (k1 < m - 1)
+    return np.stack([cross(k0 - 1, k0, ok), cross(k1, k1 + 1, ok)], axis=1)
+
+
+def ripple(g: np.ndarray, grids: Grids) -> np.ndarray | None:
+    """Passband ripple (dB) per trial, (Tc,), or None without a passband."""
+    if grids.passband_columns is None:
+        return None
+    gp = g[:, grids.passband_columns]
+    return gp.max(axis=1) - gp.min(axis=1)
+
+
+def margins(g: np.ndarray, ref: np.ndarray, grids: Grids) -> np.ndarray:
+    """Worst mask margin (dB) per trial and segment, shape (Tc, S)."""
+    out = np.empty((g.shape[0], len(grids.segment_columns)))
+    for j, (seg, cols) in enumerate(zip(grids.mask.segments, grids.segment_columns)):
+        loss = ref[:, None] - g[:, cols]
+        m = np.full(g.shape[0], np.inf)
+        if seg.max_loss_db is not None:
+            m = np.minimum(m, (seg.max_loss_db - loss).min(axis=1))
+        if seg.min_loss_db is not None:
+            m = np.minimum(m, (loss - seg.min_loss_db).min(axis=1))
+        out[:, j] = m
+    return out
+
+
+def passes(margin: np.ndarray) -> np.ndarray:
+    """Bool (Tc, S): the trial meets the segment (margin >= -MARGIN_TOLERANCE_DB)."""
+    return margin >= -MARGIN_TOLERANCE_DB
+
+
+__all__ = ["gain_db", "reference_gain", "f3db", "ripple", "margins", "passes", "MAGNITUDE_FLOOR"]

@@ -1,0 +1,265 @@
+"""``run_tolerance``: Monte Carlo, sensitivity, worst case and yield of a design document."""
+
+from __future__ import annotations
+
+import math
+from typing import Sequence
+
+import numpy as np
+
+from service.approximation.types import ResponseType
+from service.circuit import ac_response
+from service.errors import LimitExceeded
+from service.realization.analysis import cascade_circuit
+from service.realization.document import plans_from_document
+from service.response import Mask, resolve_frequencies
+from service.response.metrics import infer_response_type
+from service.tolerance import figures as fig
+from service.tolerance.errors import ToleranceError
+from service.tolerance.grids import HALF_POWER_DB, build_grids, crossings
+from service.tolerance.montecarlo import monte_carlo
+from service.tolerance.result import ToleranceResult
+from service.tolerance.sampling import (REFERENCE_TEMPERATURE_C, draw, resolve_distribution, resolve_temperature,
+                                        varied_parts)
+from service.tolerance.sensitivity import magnitude_sensitivity, rank, stage_sensitivity, worst_case, _key
+from service.tolerance.statistics import summary, wilson_interval
+
+DEFAULT_TRIALS = 1000
+DEFAULT_MAX_TRIALS = 100_000
+DEFAULT_MEMORY_LIMIT_BYTES = 512 * 2**20
+#: Most trials whose values and figures are returned one by one.
+MAX_INCLUDED_TRIALS = 1000
+#: Points of the dense nominal sweep that places the 3 dB windows.
+NOMINAL_POINTS = 2000
+
+
+def _int(value, name: str, lo: int) -> int:
+    if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < lo:
+        raise ToleranceError(f"{name} must be an integer >= {lo}, got {value!r}", field=name)
+    return int(value)
+
+
+def _response_type(document: dict, f: np.ndarray, g: np.ndarray) -> ResponseType:
+    try:
+        return ResponseType(document.get("response"))
+    except ValueError:
+        return infer_response_type(float(g[0]), float(g[-1]), float(np.max(g)))
+
+
+def run_tolerance(document: dict, *, trials: int = DEFAULT_TRIALS, seed: int = 0,
+                  distribution: str | dict = "gaussian", temperature: dict | None = None,
+                  tempco_ppm_per_c: dict | None = None, gbw_spread: float | None = None,
+                  frequencies_hz, mask: Mask | None = None, sensitivity_frequencies_hz: Sequence[float] = (),
+                  include_trials: int = 0, memory_limit_bytes: int = DEFAULT_MEMORY_LIMIT_BYTES,
+                  max_trials: int = DEFAULT_MAX_TRIALS, max_frequency_points: int = 10_000,
+                  chunk_trials: int | None = None, store_budget_bytes: int | None = None) -> ToleranceResult:
+    """Monte Carlo analysis, sensitivities, worst case and yield of a design.
+
+    Parameters
+    ----------
+    document : dict
+        A design document (see :mod:`service.realization.document`); each
+        part's ``tolerance`` (relative) or the default of its kind
+        (:data:`service.tolerance.sampling.DEFAULT_TOLERANCE`: 1 % R, 5 % C).
+    trials : int
+        Monte Carlo trials, 1 ... ``max_trials``.
+    seed : int
+        Seed of ``numpy.random.Generator(PCG64(seed))``; same request and
+        seed, same numbers.
+    distribution : str or dict
+        ``"uniform"`` (within +-tolerance), ``"gaussian"`` (tolerance = 3
+        sigma), or ``{"resistor": ..., "capacitor": ..., "opamp": ...}``.
+    temperature : dict or None
+        ``{"min_c", "max_c"}`` (degC): one board temperature per trial,
+        uniform over the range.
+    tempco_ppm_per_c : dict or None
+        Temperature-coefficient bounds (ppm/degC) by ref, dielectric or kind;
+        defaults in :data:`service.tolerance.sampling.DEFAULT_TEMPCO_PPM_PER_C`.
+    gbw_spread : float or None
+        Relative op-amp GBW tolerance (0.3 = +-30 %), distribution of kind
+        ``opamp``; only op-amps with a ``gbw_hz`` vary.
+    frequencies_hz : array_like or FrequencyGrid
+        Grid (Hz) of the percentiles; should contain the mask edges.
+    mask : Mask or None
+        Requirement mask for the yield, ripple, attenuation and worst case.
+    sensitivity_frequencies_hz : sequence of float
+        Frequencies (Hz) of the magnitude sensitivities; default the mask edges.
+    include_trials : int
+        Return the values and figures of the first N trials (N <= 1000).
+    memory_limit_bytes : int
+        Bound on the working memory of the sweep (bytes).
+    max_trials, max_frequency_points : int
+        Configured limits (``ROLLOFF_MAX_TRIALS``, ``ROLLOFF_MAX_FREQUENCY_POINTS``).
+    chunk_trials : int or None
+        Trials processed at once (rounded up to whole engine tiles); the
+        numbers do not depend on it.
+    store_budget_bytes : int or None
+        Bound of the per-frequency stores (default 160 MiB); larger runs are
+        split into frequency blocks.  Numbers are identical for a given
+        budget (see :mod:`service.tolerance.montecarlo`).
+
+    Returns
+    -------
+    ToleranceResult
+
+    Raises
+    ------
+    LimitExceeded
+        ``trials`` above ``max_trials`` (``limit="max_trials"``) or too many frequencies.
+    ToleranceError, InvalidDocument, InvalidGrid
+        With ``field`` naming the request field.
+    """
+    trials = _int(trials, "trials", 1)
+    if trials > max_trials:
+        raise LimitExceeded(f"trials: {trials} requested, at most {max_trials} allowed", limit="max_trials",
+                            value=max_trials, setting="ROLLOFF_MAX_TRIALS", field="trials")
+    seed = _int(seed, "seed", 0)
+    include_trials = _int(include_trials, "include_trials", 0)
+    if include_trials > min(trials, MAX_INCLUDED_TRIALS):
+        raise ToleranceError(f"include_trials must not exceed trials or {MAX_INCLUDED_TRIALS}, got {include_trials}",
+                             field="include_trials")
+    if chunk_trials is not None:
+        chunk_trials = _int(chunk_trials, "chunk_trials", 1)
+    memory_limit_bytes = _int(memory_limit_bytes, "memory_limit_bytes", 2**20)
+    if mask is not None and not isinstance(mask, Mask):
+        raise ToleranceError("mask must be a Mask", field="mask")
+    f = resolve_frequencies(frequencies_hz, max_frequency_points)
+    dist = resolve_distribution(distribution)
+    temp = resolve_temperature(temperature)
+
+    plans, _ = plans_from_document(document)
+    circuit = cascade_circuit(plans)
+    parts = varied_parts(plans, document, dist, tempco_ppm_per_c, gbw_spread)
+    samples = draw(parts, trials, seed, temp)
+
+    # nominal sweep: response type and where the 3 dB windows go
+    pos = f[f > 0]
+    lo, hi = (pos.min(), pos.max()) if pos.size else (1.0, 1e6)
+    dense = np.unique(np.concatenate([np.geomspace(lo, hi, NOMINAL_POINTS), f]))
+    g_dense = fig.gain_db(ac_response(circuit, dense, output="out"))[0]
+    response = _response_type(document, dense, g_dense)
+    if sensitivity_frequencies_hz is None or len(sensitivity_frequencies_hz) == 0:
+        sens_f = np.array(sorted({e for s in (mask.segments if mask else ()) for e in (s.start_hz, s.stop_hz)
+                                  if math.isfinite(e) and e > 0}))
+    else:
+        sens_f = np.asarray(sensitivity_frequencies_hz, dtype=float).ravel()
+        if not np.all(np.isfinite(sens_f) & (sens_f > 0)):
+            raise ToleranceError("sensitivity_frequencies_hz must be positive frequencies (Hz)",
+                                 field="sensitivity_frequencies_hz")
+    pre = build_grids(dense, response, mask, [], 0.0, sens_f)
+    g_pre = fig.gain_db(ac_response(circuit, pre.metric_hz, output="out"))
+    ref_pre = fig.reference_gain(g_pre, pre)
+    pos_pre = pre.metric_hz > 0
+    f3_nom = crossings(pre.metric_hz[pos_pre], g_pre[0, pos_pre], float(ref_pre[0]) - HALF_POWER_DB, response)
+    span = max([p.tolerance + p.tempco_ppm_per_c * 1e-6 * (0 if temp is None else max(
+        abs(temp[0] - REFERENCE_TEMPERATURE_C), abs(temp[1] - REFERENCE_TEMPERATURE_C))) for p in parts] + [0.0])
+    grids = build_grids(f, response, mask, f3_nom, 4.0 * span, sens_f)
+
+    h_nom = ac_response(circuit, grids.metric_hz, output="out")
+    g_nom = fig.gain_db(h_nom)
+    ref_nom = float(fig.reference_gain(g_nom, grids)[0])
+    nominal = h_nom[0, grids.caller_columns]
+    phase_nom = np.unwrap(np.angle(nominal))
+
+    sweep = monte_carlo(circuit, samples, trials, grids, nominal, phase_nom, memory_limit_bytes=memory_limit_bytes,
+                        chunk_trials=chunk_trials, store_budget_bytes=store_budget_bytes)
+    tf = sweep.figures
+
+    # metrics
+    metrics: dict = {}
+    if tf.f3db_hz.ndim == 1:
+        metrics["f3db_hz"] = summary(tf.f3db_hz)
+    else:
+        metrics["f3db_low_hz"] = summary(tf.f3db_hz[:, 0])
+        metrics["f3db_high_hz"] = summary(tf.f3db_hz[:, 1])
+    metrics["passband_ripple_db"] = summary(tf.ripple_db) if tf.ripple_db is not None else None
+    edge_loss = tf.reference_gain_db[:, None] - tf.edge_gain_db          # (T, E)
+    metrics["attenuation_db"] = {_key(e.frequency_hz): summary(edge_loss[:, j])
+                                 for j, e in enumerate(grids.edges) if e.band == "stopband"}
+    stage_figs = []
+    for k, plan in enumerate(plans):
+        vals = {c.role: samples.values[c.ref] for c in plan.components}
+        a = plan.topology.achieved(plan.section, plan.strategy, vals)
+        entry = {"f0_hz": summary(a["f0_hz"])}
+        entry["q"] = summary(a["q"]) if plan.section.order == 2 else None
+        stage_figs.append((a["f0_hz"], a["q"] if plan.section.order == 2 else None))
+        metrics.setdefault("stages", []).append(entry)
+
+    # yield
+    yld = None
+    if mask is not None:
+        ok = fig.passes(tf.margins_db)                                     # (T, S)
+        passed = ok.all(axis=1)
+        n_pass = int(passed.sum())
+        lo_ci, hi_ci = wilson_interval(n_pass, trials)
+        fails = []
+        for j, seg in enumerate(mask.segments):
+            d = seg.as_dict()
+            d.update(segment=j, band="passband" if seg.is_passband else "stopband", failures=int((~ok[:, j]).sum()),
+                     worst_margin_db=float(np.min(tf.margins_db[:, j])))
+            fails.append(d)
+        fails.sort(key=lambda r: (-r["failures"], r["segment"]))
+        yld = {"fraction": n_pass / trials, "ci95_low": lo_ci, "ci95_high": hi_ci, "trials": trials,
+               "passed": n_pass, "failures_by_criterion": fails,
+               "interval": "Wilson score, 95 % (E. B. Wilson, JASA 22 (1927) 209-212)"}
+
+    # sensitivity and worst case (nominal values, 25 degC)
+    edge_f = np.array([e.frequency_hz for e in grids.edges])
+    all_f = np.unique(np.concatenate([sens_f, edge_f]))
+    mag_all = magnitude_sensitivity(circuit, parts, all_f, max(2**20, memory_limit_bytes // 4))
+    mag_sens = mag_all[:, np.searchsorted(all_f, sens_f)] if sens_f.size else mag_all[:, :0]
+    sens = rank(parts, stage_sensitivity(plans, parts), mag_sens, sens_f)
+    wc = []
+    if grids.edges:
+        nominal_edge_loss = ref_nom - g_nom[0, [e.column for e in grids.edges]]
+        wc = worst_case(circuit, parts, grids, mag_all[:, np.searchsorted(all_f, edge_f)], nominal_edge_loss,
+                        edge_loss, max(2**20, memory_limit_bytes // 4))
+
+    # the first trials, one by one
+    rows = []
+    for i in range(include_trials):
+        r = {"trial": i, "values": {p.ref if p.kind != "opamp" else p.key: float(samples.values[p.key][i])
+                                    for p in parts}}
+        r["temperature_c"] = None if samples.temperature_c is None else float(samples.temperature_c[i])
+        if tf.f3db_hz.ndim == 1:
+            r["f3db_hz"] = _finite_or_none(tf.f3db_hz[i])
+        else:
+            r["f3db_low_hz"], r["f3db_high_hz"] = (_finite_or_none(x) for x in tf.f3db_hz[i])
+        r["passband_ripple_db"] = None if tf.ripple_db is None else float(tf.ripple_db[i])
+        r["reference_gain_db"] = float(tf.reference_gain_db[i])
+        r["edges"] = [{"frequency_hz": e.frequency_hz, "band": e.band, "gain_db": float(tf.edge_gain_db[i, j]),
+                       "loss_db": float(edge_loss[i, j])} for j, e in enumerate(grids.edges)]
+        r["stages"] = [{"f0_hz": float(f0[i]), "q": None if q is None else float(q[i])} for f0, q in stage_figs]
+        if mask is not None:
+            r["margins_db"] = [float(x) for x in tf.margins_db[i]]
+            r["passes"] = bool(ok[i].all())
+        else:
+            r["passes"] = None
+        rows.append(r)
+
+    notes = {
+        "nominal_reference_gain_db": ref_nom,
+        "group_delay": "forward difference of the phase at f(1 + 1e-5), relative error ~1e-5",
+        "stage_figures": "closed form of each topology with the sampled values, ideal op-amps",
+        "sensitivity": "central differences (h = 1e-4) with the circuit engine",
+        "gaussian": "tolerance read as 3 sigma, deviates truncated at 6 sigma",
+        "percentiles": "Hyndman and Fan (1996) definition 7",
+        "mask_check": "on the caller's grid, the mask edges and the dense 3 dB windows",
+        "engine_tile_trials": sweep.tile,
+        "frequency_blocks": sweep.blocks,
+        "reference_temperature_c": REFERENCE_TEMPERATURE_C,
+    }
+    temp_out = None if temp is None else {"min_c": temp[0], "max_c": temp[1]}
+    return ToleranceResult(
+        frequency_hz=f, magnitude_db=sweep.magnitude_db, phase_deg=sweep.phase_deg,
+        group_delay_s=sweep.group_delay_s, nominal_magnitude_db=g_nom[0, grids.caller_columns],
+        metrics=metrics, yield_=yld, sensitivity=sens, worst_case=wc, trials=rows, distribution=dist, seed=seed,
+        temperature=temp_out, trial_count=trials, mask=mask, notes=notes)
+
+
+def _finite_or_none(x) -> float | None:
+    x = float(x)
+    return x if math.isfinite(x) else None
+
+
+__all__ = ["run_tolerance", "DEFAULT_TRIALS", "DEFAULT_MAX_TRIALS", "MAX_INCLUDED_TRIALS"]
