@@ -86,6 +86,10 @@ def _snap(allowed: Allowed, ideal: np.ndarray, exact: bool) -> tuple[np.ndarray,
     NaN ideals give NaN and False.  A value counts as in range when it lies
     within half a step (by ratio) of the allowed list's ends.
     """
+    if ideal.size > 1 and ideal[0] == ideal[-1] and np.all(ideal == ideal[0]):
+        # A part only a ratio fixes has the same value in every candidate: snap it once.
+        one, rng = _snap(allowed, ideal[:1], exact)
+        return np.broadcast_to(one, ideal.shape), np.broadcast_to(rng, ideal.shape)
     finite = np.isfinite(ideal) & (ideal > 0)
     safe = np.where(finite, ideal, 1.0)
     v = allowed.values
