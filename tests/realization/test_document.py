@@ -174,3 +174,18 @@ def test_sallen_key_cannot_do_a_notch():
         design_filter(approx, topology="sallen_key")
     assert e.value.field == "topology"
     assert "notch" in e.value.message
+
+
+def test_roundtrip_with_a_given_opamp_keeps_macromodel_figures():
+    approx = design_by_order("highpass", "chebyshev1", 5, 2000.0, passband_ripple_db=0.5)
+    d = design_filter(approx, opamp={"gbw_hz": 1e6, "slew_v_per_us": 0.5, "a0_db": 100.0, "part_id": "OA-7"})
+    doc = json.loads(json.dumps(document_from_design(d), allow_nan=False))
+    again = evaluate_document(doc)
+    for a, b in zip(d.stages, again.stages):
+        if a.achieved_macromodel is None:
+            assert not a.opamps and b.achieved_macromodel is None
+            continue
+        assert b.achieved_macromodel["f0_hz"] == pytest.approx(a.achieved_macromodel["f0_hz"], rel=1e-12)
+        assert b.opamp_requirement.gbw_required_hz == pytest.approx(a.opamp_requirement.gbw_required_hz, rel=1e-12)
+    assert [w.code for w in again.warnings] == [w.code for w in d.warnings]
+    assert any(row["part_id"] == "OA-7" for row in again.bom)
