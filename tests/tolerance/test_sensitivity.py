@@ -1,0 +1,105 @@
+"""Sensitivities (identities, analytic cross-check, ranking) and worst-case corners."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from service.realization.document import plans_from_document
+from service.tolerance import run_tolerance
+from service.tolerance.sampling import resolve_distribution, varied_parts
+from service.tolerance.sensitivity import stage_sensitivity
+
+from .conftest import GRID
+
+TOPOLOGY_CASES = ["sallen_key_lowpass", "sallen_key_highpass", "multiple_feedback", "state_variable", "tow_thomas"]
+
+
+@pytest.mark.parametrize("name", TOPOLOGY_CASES)
+def test_sum_identities_of_active_rc_stages(designs, name):
+    # source: R. Schaumann, M. E. Van Valkenburg, Design of Analog Filters, Oxford UP, 2001, sec. 3.1:
+    # with ideal op-amps f0 scales as 1/R and 1/C, Q is dimensionless, so
+    # sum_R S^f0_R = -1, sum_C S^f0_C = -1, sum_R S^Q_R = 0, sum_C S^Q_C = 0 (from memory)
+    doc = designs[name]
+    plans, _ = plans_from_document(doc)
+    parts = varied_parts(plans, doc, resolve_distribution("gaussian"))
+    s = stage_sensitivity(plans, parts)
+    for k, plan in enumerate(plans):
+        for kind in ("resistor", "capacitor"):
+            refs = [p.ref for p in parts if p.stage == k and p.kind == kind]
+            assert sum(s[r][0] for r in refs) == pytest.approx(-1.0, abs=1e-6)
+            if plan.section.order == 2:
+                assert sum(s[r][1] for r in refs) == pytest.approx(0.0, abs=1e-6)
+
+
+@pytest.mark.parametrize("name", TOPOLOGY_CASES)
+def test_engine_sensitivities_match_the_closed_form(designs, name):
+    # the circuit engine's central differences against the topology's complex-step derivative
+    # of its own design equations (two independent routes to the same numbers)
+    doc = designs[name]
+    plans, _ = plans_from_document(doc)
+    parts = varied_parts(plans, doc, resolve_distribution("gaussian"))
+    s = stage_sensitivity(plans, parts)
+    for plan in plans:
+        analytic = plan.topology.sensitivities(plan.section, plan.strategy, plan.values)
+        for c in plan.components:
+            sf, sq = analytic[c.role]
+            assert s[c.ref][0] == pytest.approx(sf, abs=1e-6)
+            assert s[c.ref][1] == pytest.approx(sq, abs=1e-6)
+
+
+def test_sallen_key_unity_gain_published_values(designs):
+    # source: Schaumann & Van Valkenburg, Design of Analog Filters, 2001, sec. 3.1 / Huelsman, Active and
+    # Passive Analog Filter Design, 1993, ch. 5: unity-gain Sallen-Key lowpass S^f0 = -1/2 for each R and C,
+    # S^Q_C1 = +1/2 (feedback C), S^Q_C2 = -1/2 (from memory)
+    doc = designs["sallen_key_lowpass"]
+    r = run_tolerance(doc, trials=10, frequencies_hz=GRID)
+    rows = {x["ref"]: x for x in r.sensitivity}
+    plans, _ = plans_from_document(doc)
+    for c in plans[0].components:
+        assert rows[c.ref]["f0"] == pytest.approx(-0.5, abs=1e-6)
+    by_role = {c.role: c.ref for c in plans[0].components}
+    assert rows[by_role["C1"]]["q"] == pytest.approx(0.5, abs=1e-6)
+    assert rows[by_role["C2"]]["q"] == pytest.approx(-0.5, abs=1e-6)
+
+
+def test_magnitude_sensitivity_ranking_and_units(butter8_sk, lowpass_mask):
+    r = run_tolerance(butter8_sk, trials=10, frequencies_hz=GRID, mask=lowpass_mask)
+    rows = r.sensitivity
+    assert len(rows) == 16
+    keys = [repr(1000.0), repr(10 ** 3.4)]
+    assert all(list(x["magnitude_db_per_pct"]) == keys for x in rows)
+    contrib = [x["contribution_db"] for x in rows]
+    assert contrib == sorted(contrib, reverse=True)
+    # scaling every R by (1 + e) and every C by (1 - e) leaves the response unchanged: the magnitude
+    # sensitivities of all R sum to those of all C at every frequency (same dimensional argument)
+    for k in keys:
+        sr = sum(x["magnitude_db_per_pct"][k] for x in rows if x["kind"] == "resistor")
+        sc = sum(x["magnitude_db_per_pct"][k] for x in rows if x["kind"] == "capacitor")
+        assert sr == pytest.approx(sc, abs=1e-6)
+        assert abs(sr) > 1e-3
+
+
+def test_worst_case_bounds_the_uniform_monte_carlo(butter8_sk, lowpass_mask):
+    # extreme-value analysis: for small tolerances the response is nearly linear in the parts, so the
+    # sign corners bound every trial drawn uniformly inside the tolerance box
+    # (Schaumann & Van Valkenburg, sec. 3.5, worst-case analysis) (from memory)
+    r = run_tolerance(butter8_sk, trials=3000, seed=9, distribution="uniform", frequencies_hz=GRID, mask=lowpass_mask)
+    wc = r.worst_case
+    assert [(w["frequency_hz"], w["direction"]) for w in wc] == [
+        (1000.0, "max_loss"), (1000.0, "min_loss"), (10 ** 3.4, "max_loss"), (10 ** 3.4, "min_loss")]
+    sens = {x["ref"]: x for x in r.sensitivity}
+    for w in wc:
+        assert set(w["corner"]) == set(sens) and set(w["corner"].values()) <= {-1, 1}
+        if w["direction"] == "max_loss":
+            assert w["loss_db"] >= w["monte_carlo_max_loss_db"] - 1e-9
+            assert w["loss_db"] > w["nominal_loss_db"]
+        else:
+            assert w["loss_db"] <= w["monte_carlo_min_loss_db"] + 1e-9
+            assert w["loss_db"] < w["nominal_loss_db"]
+    # at the stopband edge the passband reference hardly moves: the corner's change is the linear
+    # prediction sum |S| tol to second order
+    k = repr(10 ** 3.4)
+    pred = sum(abs(x["magnitude_db_per_pct"][k]) * x["tolerance"] * 100 for x in r.sensitivity)
+    up = [w for w in wc if w["frequency_hz"] == 10 ** 3.4 and w["direction"] == "max_loss"][0]
+    assert up["loss_db"] - up["nominal_loss_db"] == pytest.approx(pred, rel=0.15)
