@@ -39,14 +39,15 @@ Example (Larkspur Fluidics PM-7 accelerometer anti-aliasing filter, PM-7 stock:
 E96 1 % thin-film resistors, E12 C0G capacitors 100 pF-100 nF).
 """
 
+# PM-7 stock: E96 1 % thin-film resistors, and the C0G capacitors the board already carries.
+PM7_CAPACITORS = ["1n", "1.5n", "2.2n", "3.3n", "4.7n", "6.8n", "10n", "15n", "22n", "33n", "47n"]
 EXAMPLE = {
     "response": "lowpass", "family": "elliptic", "passband_hz": "10kHz", "stopband_hz": "25.6kHz",
     "passband_ripple_db": 0.1, "stopband_attenuation_db": 80, "topology": "auto",
     "parts": {"resistors": {"series": "E96", "range": ["1k", "1M"], "tolerance": 0.01},
-              "capacitors": {"series": "E12", "range": ["100p", "100n"], "tolerance": 0.05, "dielectric": "C0G"},
-              "stock": [{"kind": "capacitor", "value": "10n", "tolerance": 0.02, "dielectric": "C0G",
-                         "part_id": "PM7-C-0805-10N"}]},
-    "opamp": {"gbw_hz": "10MHz", "slew_v_per_us": 5, "a0_db": 110, "part_id": "PM7-U-OPA-GP"},
+              "stock": [{"kind": "capacitor", "value": v, "tolerance": 0.02, "dielectric": "C0G",
+                         "part_id": f"PM7-C0G-{v.upper()}"} for v in PM7_CAPACITORS]},
+    "opamp": {"gbw_hz": "20MHz", "slew_v_per_us": 5, "a0_db": 110, "part_id": "PM7-U-OPA-GP"},
 }
 
 # A 2nd-order Butterworth lowpass at 1 kHz as one unity-gain Sallen-Key stage (PM-7 bearing-noise channel
