@@ -162,3 +162,36 @@ def response_system(args: dict, settings: Settings):
     circuit = design_to_circuit(design)
     roots = np.array([2 * np.pi * st.section.f0_hz for st in design.stages])
     return CircuitSystem(circuit), roots, design.response
+
+
+def tolerance_analysis(args: dict, settings: Settings):
+    """Run the tolerance analysis a loaded /v1/tolerance request asks for, after the limit checks."""
+    import numpy as np
+
+    from service.response import resolve_frequencies
+    from service.tolerance import run_tolerance
+
+    document = args["design"]
+    stages = len(document["stages"])
+    check_limit("max_trials", args["trials"], settings, field="trials", what="trials")
+    roots = [2 * np.pi * float(st["section"]["f0_hz"]) for st in document["stages"]]
+    grid = frequencies_of(args.get("frequencies"), roots, settings)
+    points = len(resolve_frequencies(grid, settings.max_frequency_points))
+    work = args["trials"] * points * stages
+    if work > settings.max_work:
+        raise LimitExceeded(
+            f"trials x frequency points x stages = {args['trials']} x {points} x {stages} = {work:,} exceeds the "
+            f"limit max_work = {settings.max_work:,} (set by ROLLOFF_MAX_WORK); use fewer trials or points",
+            limit="max_work", value=settings.max_work, setting="ROLLOFF_MAX_WORK", field="trials")
+    mask = mask_of(args.get("mask"))
+    requirement = document.get("requirement")
+    if mask is None and requirement and "passband_hz" in requirement:
+        mask = mask_of({"requirement": {k: requirement[k] for k in (
+            "response", "passband_hz", "stopband_hz", "passband_ripple_db", "stopband_attenuation_db")}})
+    return run_tolerance(
+        document, trials=args["trials"], seed=args["seed"], distribution=args["distribution"],
+        temperature=args.get("temperature"), tempco_ppm_per_c=args.get("tempco_ppm_per_c"),
+        gbw_spread=args.get("gbw_spread"), frequencies_hz=grid, mask=mask,
+        sensitivity_frequencies_hz=args.get("sensitivity_frequencies_hz") or (),
+        include_trials=args["include_trials"], memory_limit_bytes=settings.memory_limit_bytes,
+        max_trials=settings.max_trials, max_frequency_points=settings.max_frequency_points)

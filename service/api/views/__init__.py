@@ -5,9 +5,9 @@ from __future__ import annotations
 
 def register_views(api) -> None:
     """Register every blueprint on the flask-smorest ``api``."""
-    from service.api.views import approximations, catalog, designs, operations, responses, values
+    from service.api.views import approximations, catalog, designs, operations, responses, tolerance, values
 
-    for module in (operations, catalog, values, approximations, designs, responses):
+    for module in (operations, catalog, values, approximations, designs, responses, tolerance):
         api.register_blueprint(module.blp)
 
     from service.api.schemas.responses import REFERENCED_COMPONENTS

@@ -1,0 +1,113 @@
+"""Schemas of /v1/tolerance."""
+
+from __future__ import annotations
+
+import marshmallow as ma
+
+from service.api.fields import Quantity, StrictInteger
+from service.api.schemas.common import ReplySchema, StrictSchema, one_of
+from service.api.schemas.designs import DesignDocumentSchema
+from service.api.schemas.responses import FrequenciesField, MaskField
+
+DISTRIBUTIONS = ["uniform", "gaussian"]
+
+
+class DistributionField(ma.fields.Field):
+    """``"uniform"``, ``"gaussian"``, or one per kind ``{"resistor", "capacitor", "opamp"}``."""
+
+    KINDS = ("resistor", "capacitor", "opamp")
+
+    def _deserialize(self, value, attr, data, **kwargs):
+        if isinstance(value, str):
+            if value not in DISTRIBUTIONS:
+                raise ma.ValidationError(f"expected one of {', '.join(DISTRIBUTIONS)}")
+            return value
+        if isinstance(value, dict):
+            errors = {}
+            for key, v in value.items():
+                if key not in self.KINDS:
+                    errors[key] = [f"unknown part kind: expected {', '.join(self.KINDS)}"]
+                elif v not in DISTRIBUTIONS:
+                    errors[key] = [f"expected one of {', '.join(DISTRIBUTIONS)}"]
+            if errors:
+                raise ma.ValidationError(errors)
+            return dict(value)
+        raise ma.ValidationError("expected \"uniform\", \"gaussian\" or {resistor, capacitor, opamp: ...}")
+
+    def openapi_properties(self) -> dict:
+        one = {"type": "string", "enum": DISTRIBUTIONS}
+        per_kind = {"type": "object", "additionalProperties": False,
+                    "properties": {k: one for k in self.KINDS}}
+        return {"oneOf": [one, per_kind]}
+
+
+class TemperatureSchema(StrictSchema):
+    min_c = ma.fields.Float(required=True, validate=ma.validate.Range(min=-273.15, max=500),
+                            metadata={"description": "Lowest board temperature (°C)."})
+    max_c = ma.fields.Float(required=True, validate=ma.validate.Range(min=-273.15, max=500),
+                            metadata={"description": "Highest board temperature (°C)."})
+
+    @ma.validates_schema
+    def _ordered(self, data, **kwargs):
+        if "min_c" in data and "max_c" in data and data["min_c"] > data["max_c"]:
+            raise ma.ValidationError("min_c must not exceed max_c", "max_c")
+
+
+class ToleranceRequestSchema(StrictSchema):
+    design = ma.fields.Nested(DesignDocumentSchema, required=True, metadata={
+        "description": "A design document from /v1/designs (each part's tolerance, or 1 % R / 5 % C)."})
+    trials = StrictInteger(load_default=1000, validate=ma.validate.Range(min=1, max=100_000), metadata={
+        "description": "Monte Carlo trials, at most ROLLOFF_MAX_TRIALS; trials x frequency points x stages at most "
+                       "ROLLOFF_MAX_WORK."})
+    seed = StrictInteger(load_default=0, validate=ma.validate.Range(min=0, max=2**63 - 1), metadata={
+        "description": "Same request and seed, same numbers."})
+    distribution = DistributionField(load_default="gaussian", metadata={
+        "description": "`uniform` within ±tolerance, or `gaussian` with the tolerance at 3σ (common practice); "
+                       "or one per kind {resistor, capacitor, opamp}."})
+    temperature = ma.fields.Nested(TemperatureSchema, metadata={
+        "description": "Board temperature range: one temperature per trial, uniform over it."})
+    tempco_ppm_per_c = ma.fields.Dict(
+        keys=ma.fields.String(validate=ma.validate.Length(min=1, max=32)),
+        values=ma.fields.Float(validate=ma.validate.Range(min=-1e5, max=1e5)),
+        validate=ma.validate.Length(max=256), metadata={
+            "description": "Temperature-coefficient bounds (ppm/°C) by ref (\"C3\"), dielectric (\"C0G\") or kind."})
+    gbw_spread = ma.fields.Float(validate=ma.validate.Range(min=0, max=0.9), metadata={
+        "description": "Relative op-amp gain-bandwidth tolerance (0.3 = ±30 %)."})
+    frequencies = FrequenciesField(metadata={
+        "description": "Grid of the percentiles: {start_hz, stop_hz, points, spacing} or a list (Hz); default 501 "
+                       "log-spaced points around the stages' frequencies."})
+    mask = MaskField(metadata={"description": "Requirement mask for the yield (default: the design's requirement)."})
+    sensitivity_frequencies_hz = ma.fields.List(
+        Quantity(unit="Hz", validate=ma.validate.Range(min=0, max=1e10)), validate=ma.validate.Length(max=64),
+        metadata={"description": "Where to report the magnitude sensitivities (default: the mask edges)."})
+    include_trials = StrictInteger(load_default=0, validate=ma.validate.Range(min=0, max=1000), metadata={
+        "description": "Return the sampled part values and figures of the first N trials."})
+    format = one_of(["json", "csv", "svg"], load_default="json",
+                    description="`csv`: percentiles per frequency; `svg`: the magnitude envelope with the mask.")
+
+
+class ToleranceSchema(ReplySchema):
+    frequency_hz = ma.fields.List(ma.fields.Float())
+    magnitude_db_percentiles = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.List(ma.fields.Float()),
+                                              metadata={"description": "min, p0.135, p2.5, p50, p97.5, p99.865, max "
+                                                                       "of the magnitude (dB), each over frequency."})
+    phase_deg_percentiles = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.List(ma.fields.Float()))
+    group_delay_s_percentiles = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.List(ma.fields.Float()))
+    nominal_magnitude_db = ma.fields.List(ma.fields.Float())
+    metrics = ma.fields.Dict(metadata={"description": "Per metric: mean, std and percentiles (−3 dB frequency, "
+                                                      "passband ripple, stopband attenuation, each stage's f0 and Q)."})
+    yield_ = ma.fields.Dict(attribute="yield", data_key="yield", allow_none=True, metadata={
+        "description": "{fraction, ci95_low, ci95_high (Wilson score interval), trials, failures_by_criterion}."})
+    sensitivity = ma.fields.List(ma.fields.Dict(), metadata={
+        "description": "Per part, ranked: {ref, stage, f0, q, magnitude_db_per_pct}."})
+    worst_case = ma.fields.List(ma.fields.Dict(), allow_none=True, metadata={
+        "description": "Per mask edge: the corner from the sensitivity signs and its loss, against the Monte Carlo "
+                       "extremes."})
+    trials = ma.fields.List(ma.fields.Dict(), allow_none=True, metadata={
+        "description": "With include_trials: the sampled values {ref: value} and figures of each trial."})
+    trial_count = ma.fields.Integer()
+    distribution = ma.fields.Dict()
+    seed = ma.fields.Integer()
+    temperature = ma.fields.Dict(allow_none=True)
+    mask = ma.fields.Dict(allow_none=True)
+    notes = ma.fields.Dict()

@@ -1,0 +1,69 @@
+"""POST /v1/tolerance: Monte Carlo, sensitivity, worst case and yield of a design."""
+
+from __future__ import annotations
+
+from flask import current_app
+from flask.views import MethodView
+
+from service.api import metrics
+from service.api.dispatch import tolerance_analysis
+from service.api.extension import Blueprint
+from service.api.formats import CSV_MEDIA_TYPE, SVG_MEDIA_TYPE, alternative_content, csv_response, svg_response
+from service.api.schemas.tolerance import ToleranceRequestSchema, ToleranceSchema
+from service.api.views.designs import EVALUATE_EXAMPLE
+
+blp = Blueprint("tolerance", __name__, url_prefix="/v1/tolerance",
+                description="Monte Carlo, sensitivity, worst case and yield.")
+
+_DESCRIPTION = """\
+The question a design review asks: with real parts at their tolerances (and over
+temperature), how many boards meet the requirement, and which part is to blame
+when one does not.
+
+Monte Carlo over `trials` boards (each part drawn from `uniform` ±tolerance or
+`gaussian` with the tolerance at 3σ — common practice; optional board
+temperature range with temperature coefficients; optional op-amp GBW spread),
+evaluated at circuit level: per-frequency percentiles (min, 0.135, 2.5, 50,
+97.5, 99.865, max) of magnitude, phase and group delay; distributions of the
+−3 dB frequency, passband ripple, stopband attenuation and each stage's f0 and
+Q; the yield against the mask (default: the design's requirement) with its 95 %
+Wilson interval and which criterion fails most; normalized sensitivities of
+each stage's f0 and Q and of the magnitude (dB per % change) for every part,
+ranked; and worst-case corners at each mask edge. `include_trials: N` returns
+the first N boards' part values so a failing one can be rebuilt in a simulator.
+
+The same request and `seed` give the same numbers. `format=csv`: percentiles
+per frequency; `format=svg`: the magnitude envelope with the mask. At most
+ROLLOFF_MAX_TRIALS trials, and trials × frequency points × stages at most
+ROLLOFF_MAX_WORK.
+
+Example (PM-7 bearing-noise channel sketch): 2,000 boards, Gaussian, −20 to 70 °C.
+"""
+
+EXAMPLE = {"design": EVALUATE_EXAMPLE, "trials": 2000, "seed": 7, "distribution": "gaussian",
+           "temperature": {"min_c": -20, "max_c": 70},
+           "mask": [{"start_hz": 0, "stop_hz": "300Hz", "max_loss_db": 0.5},
+                    {"start_hz": "10kHz", "stop_hz": "50kHz", "min_loss_db": 35.0}],
+           "include_trials": 2}
+
+
+@blp.route("")
+class Tolerance(MethodView):
+    @blp.arguments(ToleranceRequestSchema, example=EXAMPLE)
+    @blp.response(200, ToleranceSchema)
+    @blp.alt_response(400, response="BAD_REQUEST", description="The body is not valid JSON.")
+    @blp.alt_response(413, response="REQUEST_ENTITY_TOO_LARGE", description="The body is too large.")
+    @blp.alt_response(415, response="UNSUPPORTED_MEDIA_TYPE", description="The body is not JSON.")
+    @blp.alt_response(422, response="UNPROCESSABLE_ENTITY", description="Invalid request or over a limit.")
+    @blp.doc(summary="Monte Carlo, sensitivity, worst case and yield", description=_DESCRIPTION,
+             **alternative_content(CSV_MEDIA_TYPE, SVG_MEDIA_TYPE, schema="Tolerance",
+                                   description="The analysis (JSON), percentiles per frequency (CSV) or the "
+                                               "envelope figure (SVG)."))
+    def post(self, args):
+        result = tolerance_analysis(args, current_app.config["ROLLOFF_SETTINGS"])
+        metrics.count_trials(args["trials"])
+        if args["format"] == "csv":
+            return csv_response(result.table(), filename="tolerance.csv")
+        if args["format"] == "svg":
+            return svg_response(result.svg())
+        return result.as_dict()
