@@ -104,3 +104,22 @@ def test_evaluate_errors_name_the_part(client, butter4):
 def test_bad_design_requests_name_the_field(client, change, field):
     body = problem(client.post(URL, json=dict(BUTTER4, **change)), 422)
     assert any(k.startswith(field) for k in body["errors"]), body
+
+
+def test_requirement_designs_keep_a_margin_for_part_errors(client):
+    req = {"response": "bandpass", "family": "butterworth", "passband_hz": ["35kHz", "45kHz"],
+           "stopband_hz": ["25kHz", "60kHz"], "passband_ripple_db": 1, "stopband_attenuation_db": 30}
+    body = client.post(URL, json=req).get_json()
+    assert body["summary"]["meets"] is True, body["summary"]
+    assert all(e["required_db"] in (1, 30) for e in body["summary"]["edges"])  # checked as asked
+    minimum = client.post(URL, json=dict(req, passband_margin_db=0, stopband_margin_db=0)).get_json()
+    approx = client.post("/v1/approximations", json=req).get_json()
+    assert minimum["order"] == approx["order"]
+
+
+def test_demo_design_meets_its_requirement(client):
+    body = client.post(URL, json=EXAMPLE).get_json()
+    assert body["summary"]["meets"] is True
+    assert {line["part_id"] for line in body["bom"] if line["kind"] == "capacitor"} <= {
+        f"PM7-C0G-{v.upper()}" for v in ("1n", "1.5n", "2.2n", "3.3n", "4.7n", "6.8n", "10n", "15n", "22n", "33n",
+                                           "47n")}

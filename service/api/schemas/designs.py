@@ -12,6 +12,10 @@ from service.components import SERIES
 from service.realization import TOPOLOGIES
 
 TOPOLOGY_NAMES = ["auto", *TOPOLOGIES]
+#: Default reserve for part errors: a quarter of the passband ripple, and this much stopband loss (dB).
+#: Our own defaults, chosen so that E96/E12 designs of the test requirements meet them with snapped values.
+DEFAULT_PASSBAND_MARGIN_FRACTION = 0.25
+DEFAULT_STOPBAND_MARGIN_DB = 2.0
 _TOLERANCE = ma.validate.Range(min=0.0, max=0.5)
 _ID = ma.validate.Length(max=128)
 _DIELECTRIC = ma.validate.Length(min=1, max=32)
@@ -133,8 +137,22 @@ class DesignRequestSchema(FilterSchema):
         "description": "Peak output voltage the slew-rate figures are for (V)."})
     gbw_error = ma.fields.Float(validate=ma.validate.Range(min=1e-4, max=0.5), metadata={
         "description": "Relative f0/Q error the GBW figures are for (0.01 = 1 %)."})
+    passband_margin_db = ma.fields.Float(validate=ma.validate.Range(min=0, max=3), metadata={
+        "description": "Requirement designs: passband loss kept in reserve for part errors (dB). The transfer "
+                       "function is computed for passband_ripple_db minus this. Default: a quarter of the ripple."})
+    stopband_margin_db = ma.fields.Float(load_default=DEFAULT_STOPBAND_MARGIN_DB,
+                                         validate=ma.validate.Range(min=0, max=60), metadata={
+        "description": "Requirement designs: extra stopband loss kept in reserve for part errors (dB). "
+                       "Set both margins to 0 for the minimum order of /v1/approximations."})
     format = one_of(["json", "csv", "spice"], load_default="json",
                     description="`csv`: the BOM as a table; `spice`: the netlist as text.")
+
+    @ma.validates_schema
+    def _margins(self, data, **kwargs):
+        ripple = data.get("passband_ripple_db")
+        margin = data.get("passband_margin_db")
+        if ripple is not None and margin is not None and margin >= ripple:
+            raise ma.ValidationError("passband_margin_db must be below passband_ripple_db", "passband_margin_db")
 
 
 class ComponentSchema(StrictSchema):

@@ -5,7 +5,7 @@ from __future__ import annotations
 from flask import current_app
 from flask.views import MethodView
 
-from service.api.dispatch import approximation_from_filter, design_document, evaluate
+from service.api.dispatch import design_approximation, design_document, evaluate
 from service.api.extension import Blueprint
 from service.api.formats import CSV_MEDIA_TYPE, TEXT_MEDIA_TYPE, alternative_content, csv_response, text_response
 from service.api.schemas.common import StrictSchema, one_of
@@ -26,6 +26,12 @@ output's peak gain (clipping risk), a BOM (`part_id`s returned), a SPICE netlist
 of the whole filter (`VIN in 0 AC 1`, output node `out`; runs in ngspice batch
 mode unchanged), a summary of achieved against required loss at each edge with
 the chosen parts, and `warnings`.
+
+By requirement, the transfer function is computed for a tighter requirement
+than asked (`passband_margin_db`, default a quarter of the ripple, less passband
+loss; `stopband_margin_db`, default 2 dB, more stopband loss), so that the
+snapped part values still meet the requirement as asked; `summary` checks that.
+Set both margins to 0 for the minimum order of /v1/approximations.
 
 Achieved f0, Q and gain are read back from the circuit built with the chosen
 values (circuit engine), not from the design formulas.
@@ -95,7 +101,7 @@ class Designs(MethodView):
     @blp.doc(summary="Design a filter with parts from stock", description=_DESCRIPTION, **_DOC)
     def post(self, args):
         settings = current_app.config["ROLLOFF_SETTINGS"]
-        approximation = approximation_from_filter(args, settings)
+        approximation = design_approximation(args, settings)
         document = design_document(approximation, args, settings)
         return _reply(document, args.get("format", "json"))
 
