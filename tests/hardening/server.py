@@ -31,7 +31,11 @@ def request(port: int, method: str, path: str, body: bytes | None = None,
     """One HTTP request to 127.0.0.1:``port``; returns (status, headers, body)."""
     conn = http.client.HTTPConnection("127.0.0.1", port, timeout=timeout)
     try:
-        conn.request(method, path, body=body, headers=headers or {})
+        try:
+            conn.request(method, path, body=body, headers=headers or {})
+        except (BrokenPipeError, ConnectionResetError):
+            # the server answered (e.g. 413) and closed before the whole body was sent: read its answer
+            pass
         resp = conn.getresponse()
         return resp.status, {k.lower(): v for k, v in resp.getheaders()}, resp.read()
     finally:
