@@ -95,12 +95,18 @@ def _check_options(impedance_ohm, stage_peak_margin_db, output_amplitude_v, gbw_
         raise RealizationError("gbw_error must be a relative error between 0 and 0.5", field="gbw_error")
 
 
-def _edges(approximation) -> list[dict]:
+def _edges(approximation, requirement: dict | None = None) -> list[dict]:
+    """The requirement's edges: frequencies from the approximation, required losses from ``requirement``
+    when it states them (the approximation may have been designed for a tighter requirement)."""
+    asked = {"passband": (requirement or {}).get("passband_ripple_db"),
+             "stopband": (requirement or {}).get("stopband_attenuation_db")}
     out = []
     for e in getattr(approximation, "edges", None) or []:
         band = getattr(e, "band", "passband")
-        band = getattr(band, "value", band)
-        out.append({"frequency_hz": float(e.frequency_hz), "band": str(band), "required_db": float(e.required_db)})
+        band = str(getattr(band, "value", band))
+        required = asked.get(band)
+        out.append({"frequency_hz": float(e.frequency_hz), "band": band,
+                    "required_db": float(e.required_db if required is None else required)})
     return out
 
 
@@ -264,7 +270,7 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
         plans.append(StagePlan(section=stage_sec, topology=t, strategy=s, components=comps, opamps=ops))
 
     req = dict(requirement) if requirement else {}
-    edges = _edges(approximation)
+    edges = _edges(approximation, requirement)
     if edges:
         req["edges"] = edges
     settings = {
