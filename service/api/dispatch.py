@@ -102,12 +102,25 @@ def design_approximation(args: dict, settings: Settings) -> Approximation:
     return approximation_from_filter(tightened, settings)
 
 
+def with_gain(approximation: Approximation, gain: float) -> Approximation:
+    """``approximation`` scaled by a passband ``gain`` (V/V), carried by its last section
+    (realization distributes the total over the stages)."""
+    import dataclasses
+
+    if gain == 1.0 or not approximation.sections:
+        return approximation
+    sections = list(approximation.sections)
+    sections[-1] = dataclasses.replace(sections[-1], gain=sections[-1].gain * gain)
+    return dataclasses.replace(approximation, gain=approximation.gain * gain, sections=sections)
+
+
 def design_document(approximation: Approximation, args: dict, settings: Settings) -> dict:
     """Realize ``approximation`` with the request's preferences; the design document as plain JSON."""
     from service.realization import design_filter, document_from_design
 
     options = {k: args[k] for k in ("impedance_ohm", "stage_peak_margin_db", "output_amplitude_v", "gbw_error")
                if args.get(k) is not None}
+    approximation = with_gain(approximation, args.get("gain", 1.0))
     design = design_filter(
         approximation, topology=args.get("topology", "auto"), strategy=args.get("strategy"),
         parts=parts_policy(args.get("parts"), settings), opamp=args.get("opamp"), exact=args.get("exact", False),

@@ -65,9 +65,16 @@ def check_realizes(topology, section: Section, field: str) -> tuple[str, ...]:
         except RealizationError:
             strategies = ()
     if not strategies:
+        why = f"it realizes {', '.join(sorted(k.value for k in kinds))}"
+        if ok and hasattr(topology, "strategy_applicable"):
+            reasons = [f"{name}: {topology.strategy_applicable(section, name)}"
+                       for name in topology.strategy_names(section.kind)
+                       if topology.strategy_applicable(section, name)]
+            if reasons:
+                why = "; ".join(reasons)
         raise UnsupportedSection(
-            f"the {topology.name} topology cannot realize a {section.kind.value} section of order "
-            f"{section.order}; it realizes {', '.join(sorted(k.value for k in kinds))}",
+            f"the {topology.name} topology cannot realize this {section.kind.value} section of order "
+            f"{section.order} (f0 {section.f0_hz:.6g} Hz, gain {section.gain:.6g}): {why}",
             field=field,
         )
     return strategies
