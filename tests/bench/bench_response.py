@@ -1,13 +1,21 @@
-"""Benchmark of the response layer: python tests/bench/bench_response.py
+"""Benchmark of the response layer: python tests/bench/bench_response.py [--quick]
 
-Prints median, interquartile range and min/max (ms) of repeated runs of:
+Prints median, interquartile range and min/max of repeated runs, both as wall
+time (``time.perf_counter``) and as CPU time of this process
+(``time.process_time``, less disturbed by other work on the machine), with the
+load average before and after, of:
 
 - the 10,000-point frequency response (magnitude, phase, group delay) of an
   8th-order lowpass built as four Sallen-Key stages with the circuit engine;
 - the whole ``analyze`` of that circuit (adds metrics, step/impulse);
 - the SVG figure of that result (after a first, warming call);
 - the 10,000-row table rendered as CSV text;
-- ``compare_families`` for one requirement (every family, in-process).
+- ``compare_families`` for three requirements (every family, in-process),
+  among them the accelerometer anti-alias requirement of the demo scenario
+  (flat within 0.1 dB to 10 kHz, 80 dB down at 25.6 kHz);
+- the parts of one compare row: the mask check and the step metrics of the
+  elliptic design of that requirement;
+- the SVG figure of a comparison.
 
 Small-matrix BLAS calls dominate the time response; under load, multithreaded
 OpenBLAS is much slower on such matrices, so the figures are printed for the
@@ -17,6 +25,7 @@ per worker, if it does).
 
 from __future__ import annotations
 
+import math
 import os
 import statistics
 import sys
@@ -30,24 +39,39 @@ from service.response import CircuitSystem, FrequencyGrid, analyze, compare_fami
 from service.response import zpk as _zpk  # noqa: E402
 from tests.response.circuits import butterworth_qs, sallen_key_lowpass  # noqa: E402
 
+QUICK = "--quick" in sys.argv
 
-def measure(fn, repeats: int) -> list[float]:
-    out = []
+
+def measure(fn, repeats: int) -> tuple[list[float], list[float]]:
+    """Wall and CPU milliseconds of ``repeats`` calls."""
+    if QUICK:
+        repeats = max(5, repeats // 3)
+    wall, cpu = [], []
     for _ in range(repeats):
-        t0 = time.perf_counter()
+        t0, c0 = time.perf_counter(), time.process_time()
         fn()
-        out.append((time.perf_counter() - t0) * 1e3)
-    return out
+        c1, t1 = time.process_time(), time.perf_counter()
+        wall.append((t1 - t0) * 1e3)
+        cpu.append((c1 - c0) * 1e3)
+    return wall, cpu
 
 
-def report(name: str, ms: list[float]) -> None:
+def _stats(ms: list[float]) -> str:
     q = statistics.quantiles(ms, n=4)
-    print(f"{name:<52} median {statistics.median(ms):8.2f} ms   IQR {q[0]:7.2f}-{q[2]:7.2f}   "
-          f"min {min(ms):7.2f}  max {max(ms):7.2f}  (n={len(ms)})")
+    return (f"median {statistics.median(ms):8.2f}  IQR {q[0]:7.2f}-{q[2]:7.2f}  "
+            f"min {min(ms):7.2f}  max {max(ms):7.2f}")
+
+
+def report(name: str, times: tuple[list[float], list[float]]) -> None:
+    wall, cpu = times
+    print(f"{name}  (n={len(wall)}, ms)")
+    print(f"    wall {_stats(wall)}")
+    print(f"    cpu  {_stats(cpu)}")
 
 
 def main() -> None:
-    print(f"OPENBLAS_NUM_THREADS={os.environ.get('OPENBLAS_NUM_THREADS', '(unset)')}")
+    print(f"OPENBLAS_NUM_THREADS={os.environ.get('OPENBLAS_NUM_THREADS', '(unset)')}  "
+          f"cores={os.cpu_count()}  load average at start {os.getloadavg()[0]:.2f} {os.getloadavg()[1]:.2f}")
     circuit = sallen_key_lowpass(1000.0, butterworth_qs(8))
     sysm = CircuitSystem(circuit)
     grid = FrequencyGrid(1.0, 1e6, 10_000)
@@ -65,15 +89,53 @@ def main() -> None:
            measure(lambda: analyze(CircuitSystem(circuit), grid, response_type="lowpass"), 20))
     result = analyze(sysm, grid, response_type="lowpass")
     result.svg()
-    report("SVG figure (after the first)", measure(result.svg, 10))
+    report("SVG figure of that result (after the first)", measure(result.svg, 15))
     table = result.table()
     report("10,000-row table as CSV text", measure(lambda: table_to_csv(table), 30))
-    args = ("lowpass", 1000.0, 2000.0, 0.5, 50.0)
-    compare_families(*args)
-    report("compare_families, all 7 families (lowpass 1k/2k, 0.5/50 dB)", measure(lambda: compare_families(*args), 20))
-    args = ("bandpass", [35e3, 45e3], [25e3, 60e3], 1.0, 30.0)
-    compare_families(*args)
-    report("compare_families, all 7 families (bandpass)", measure(lambda: compare_families(*args), 20))
+
+    cases = [
+        ("compare_families, 7 families (lowpass 10k/25.6k, 0.1/80 dB)", ("lowpass", 1e4, 2.56e4, 0.1, 80.0)),
+        ("compare_families, 7 families (lowpass 1k/2k, 0.5/50 dB)", ("lowpass", 1000.0, 2000.0, 0.5, 50.0)),
+        ("compare_families, 7 families (bandpass 35-45k / 25,60k)", ("bandpass", [35e3, 45e3], [25e3, 60e3],
+                                                                      1.0, 30.0)),
+    ]
+    for name, args in cases:
+        compare_families(*args)
+        report(name, measure(lambda args=args: compare_families(*args), 20))
+
+    # the parts of one row: mask check and step metrics of the elliptic design
+    from service.approximation import design_by_requirement
+    from service.response import Mask, check_mask
+    from service.response.metrics import ResponseMetrics, step_metrics
+    from service.response.timeresp import automatic_span, simulate
+    from service.response.grids import TimeGrid
+    from service.response.comparison import COMPARISON_TIME_POINTS
+
+    req = ("lowpass", 1e4, 2.56e4, 0.1, 80.0)
+    approx = design_by_requirement(req[0], "elliptic", *req[1:])
+    z, p, k = (np.asarray(approx.zeros, dtype=complex), np.asarray(approx.poles, dtype=complex),
+               float(np.real(approx.gain)))
+    mask = Mask.from_requirement(*req)
+
+    def gain_db(fr):
+        return _zpk.magnitude_db(_zpk.freqresp(z, p, k, 2 * math.pi * np.asarray(fr, dtype=float)))
+
+    report(f"  check_mask of the elliptic row (order {approx.order})",
+           measure(lambda: check_mask(mask, gain_db, z, p), 30))
+
+    def step_row():
+        stop, dt = automatic_span(p)
+        t = TimeGrid().times(stop, dt, automatic_points=COMPARISON_TIME_POINTS)
+        sim = simulate(z, p, k, t)
+        sim.final_value = float(np.real(_zpk.dc_gain(z, p, k)))
+        step_metrics(sim, ResponseMetrics())
+
+    report("  step metrics of the elliptic row (analyze's exact method)", measure(step_row, 30))
+
+    comp = compare_families(*req)
+    comp.svg()
+    report("SVG figure of that comparison (after the first)", measure(comp.svg, 10))
+    print(f"load average at end {os.getloadavg()[0]:.2f} {os.getloadavg()[1]:.2f}")
 
 
 if __name__ == "__main__":
