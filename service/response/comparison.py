@@ -27,12 +27,14 @@ from service.response import zpk as _zpk
 from service.errors import InvalidParameter
 from service.response.grids import TimeGrid
 from service.response.mask import Mask, check_mask
-from service.response.metrics import ResponseMetrics, _extreme, step_metrics
+from service.response.metrics import ResponseMetrics, delay_variation, step_metrics
+from service.response.modal import modal_step
 from service.response.refine import analysis_grid_hz
 from service.response.timeresp import automatic_span, simulate
 
 #: Samples of the automatic time grid of each family's step response; the
-#: settling and overshoot figures are refined on the exact continuous response.
+#: settling and overshoot figures are refined on the continuous response
+#: (partial fractions, or the exact state-space method for repeated poles).
 COMPARISON_TIME_POINTS = 400
 
 
@@ -111,9 +113,8 @@ class Comparison:
         for f in designed:
             a = f.approximation
             mag = _zpk.magnitude_db(_zpk.freqresp(a.zeros, a.poles, a.gain, 2 * math.pi * fr))
-            stop, dt = automatic_span(np.asarray(a.poles))
-            t = TimeGrid().times(stop, dt, automatic_points=COMPARISON_TIME_POINTS)
-            sim = simulate(a.zeros, a.poles, a.gain, t)
+            sim = _step_response(np.asarray(a.zeros, dtype=complex), np.asarray(a.poles, dtype=complex),
+                                 float(np.real(a.gain)))
             out[f.family.value] = (fr, mag, sim.time_s, sim.step)
         return out
 
@@ -122,6 +123,22 @@ class Comparison:
         from service.response.plotting import comparison_figure_svg
 
         return comparison_figure_svg(self)
+
+
+def _step_response(z: np.ndarray, p: np.ndarray, k: float):
+    """Step response on the comparison's automatic time grid.
+
+    By partial fractions (:func:`service.response.modal.modal_step`, every
+    candidate instant of the metric searches in one broadcast) when that is
+    accurate, else by the exact state-space method (repeated poles).
+    """
+    stop, dt = automatic_span(p)
+    t = TimeGrid().times(stop, dt, automatic_points=COMPARISON_TIME_POINTS)
+    sim = modal_step(z, p, k, t)
+    if sim is None:
+        sim = simulate(z, p, k, t, impulse=False)
+        sim.final_value = float(np.real(_zpk.dc_gain(z, p, k)))
+    return sim
 
 
 def _evaluate_family(family: Family, approx: Any, mask: Mask, overshoot_limit_pct, gd_limit_s) -> FamilyComparison:
@@ -145,15 +162,8 @@ def _evaluate_family(family: Family, approx: Any, mask: Mask, overshoot_limit_pc
     row.margin_db = mres.worst_margin_db
     row.meets = mres.passed
     grid = analysis_grid_hz(z, p, extra_hz=[e for s in mask.segments for e in (s.start_hz, s.stop_hz)])
-    top = grid[-1]
-    pbs = mask.passbands
-    dmax = max(_extreme(delay, a, min(b, top), grid, maximum=True)[1] for a, b in pbs)
-    dmin = min(_extreme(delay, a, min(b, top), grid, maximum=False)[1] for a, b in pbs)
-    row.group_delay_variation_s = float(dmax - dmin)
-    stop, dt = automatic_span(p)
-    t = TimeGrid().times(stop, dt, automatic_points=COMPARISON_TIME_POINTS)
-    sim = simulate(z, p, k, t)
-    sim.final_value = float(np.real(_zpk.dc_gain(z, p, k)))
+    row.group_delay_variation_s = delay_variation(delay, mask.passbands, grid)
+    sim = _step_response(z, p, k)
     m = ResponseMetrics()
     step_metrics(sim, m)
     row.overshoot_pct = m.overshoot_pct

@@ -8,12 +8,15 @@ gain is judged on its shape), or a fixed ``reference_gain_db``.
 
 The check is made on the dense internal grid of
 :func:`service.response.refine.analysis_grid_hz` restricted to each segment,
-plus the segment edges and the caller's own grid points, and the margin is then
-refined by a bracketed minimisation (nested uniform search with a final
-parabolic step, see :func:`service.response.refine.zoom_minimize`) around
-every sampled local minimum
-(segment edges included). A ripple peak between two display-grid samples
-therefore cannot hide a failure.
+plus the segment edges and the caller's own grid points. On a segment the
+margin is min(max_loss_db - loss, loss - min_loss_db), so its worst value
+sits where the gain is smallest or largest: those extremes (and the largest
+passband gain, the default reference) are refined for every segment at once
+by one bracketed minimisation (nested uniform search with a final parabolic
+step, see :func:`service.response.refine.refine_extrema`) around every
+sampled local extremum that can hold the segment's extreme (segment edges
+included). A ripple peak between two display-grid samples therefore cannot
+hide a failure.
 
 The margin of a passband point is ``max_loss_db - loss``; of a stopband point
 ``loss - min_loss_db``; a segment passes when its worst margin is >= -tol,
@@ -31,7 +34,7 @@ import numpy as np
 
 from service.approximation.types import ResponseType
 from service.response.errors import InvalidMask
-from service.response.refine import analysis_grid_hz, refine_minimum
+from service.response.refine import GAIN_TOLERANCE_DB, analysis_grid_hz, refine_extrema
 
 #: Margins above -1e-6 dB count as meeting the mask.
 MARGIN_TOLERANCE_DB = 1e-6
@@ -258,26 +261,41 @@ def check_mask(mask: Mask, gain_db, zeros, poles, extra_hz=(), peak_gain_db: flo
     extra = np.asarray(extra_hz, dtype=float).ravel()
     base = np.unique(np.concatenate([base, extra[np.isfinite(extra) & (extra > 0)]]))
 
-    def seg_grid(seg):
-        a, b = _segment_span(seg, top)
+    spans = [_segment_span(seg, top) for seg in mask.segments]
+    grids = []
+    for a, b in spans:
         g = base[(base > a) & (base < b)]
-        g = np.concatenate([[a] if a > 0 else [], g, [b]])
-        return g, a, b
+        grids.append(np.concatenate([[a] if a > 0 else [], g, [b]]))
+    # every sample of every segment in one evaluation
+    sizes = np.cumsum([g.size for g in grids])[:-1]
+    gains = np.split(np.asarray(gain_db(np.concatenate(grids)), dtype=float), sizes)
+    at_dc = any(a == 0.0 for a, _ in spans)
+    g_dc = float(gain_db(np.zeros(1))[0]) if at_dc else None
 
-    # reference gain: largest gain in the passbands, refined
-    if mask.reference_gain_db is not None:
+    # The margin of a segment is min(max_loss - (ref - g), (ref - g) - min_loss), so its
+    # worst value needs only the smallest and the largest gain g on the segment, and the
+    # reference is the largest gain on the passbands: all of them are refined in one search.
+    curves, where = [], []
+    need_ref = mask.reference_gain_db is None
+    for i, seg in enumerate(mask.segments):
+        want_max = seg.min_loss_db is not None or (need_ref and seg.is_passband)
+        if seg.max_loss_db is not None:
+            curves.append((grids[i], gains[i], 1.0))
+            where.append((i, "min"))
+        if want_max:
+            curves.append((grids[i], gains[i], -1.0))
+            where.append((i, "max"))
+    found = dict(zip(where, refine_extrema(gain_db, curves, log_axis=True, tolerance=GAIN_TOLERANCE_DB)))
+
+    if not need_ref:
         ref = float(mask.reference_gain_db)
     else:
         peaks = []
-        for seg in mask.segments:
-            if not seg.is_passband:
-                continue
-            g, a, b = seg_grid(seg)
-            neg = lambda f: -gain_db(f)  # noqa: E731
-            _, v = refine_minimum(neg, g, neg(g), log_axis=True)
-            peaks.append(-v)
-            if a == 0.0:
-                peaks.append(float(gain_db(np.zeros(1))[0]))
+        for i, seg in enumerate(mask.segments):
+            if seg.is_passband:
+                peaks.append(found[(i, "max")][1])
+                if spans[i][0] == 0.0:
+                    peaks.append(g_dc)
         if peaks:
             ref = max(peaks)
         elif peak_gain_db is not None:
@@ -285,24 +303,26 @@ def check_mask(mask: Mask, gain_db, zeros, poles, extra_hz=(), peak_gain_db: flo
         else:
             ref = float(np.max(gain_db(base)))
 
+    def margin(seg, g):
+        loss = ref - g
+        m = math.inf
+        if seg.max_loss_db is not None:
+            m = min(m, seg.max_loss_db - loss)
+        if seg.min_loss_db is not None:
+            m = min(m, loss - seg.min_loss_db)
+        return m
+
     results = []
-    for seg in mask.segments:
-        g, a, b = seg_grid(seg)
-
-        def margin(f, seg=seg):
-            loss = ref - gain_db(f)
-            m = np.full(loss.shape, np.inf)
-            if seg.max_loss_db is not None:
-                m = np.minimum(m, seg.max_loss_db - loss)
-            if seg.min_loss_db is not None:
-                m = np.minimum(m, loss - seg.min_loss_db)
-            return m
-
-        f_worst, m_worst = refine_minimum(margin, g, margin(g), log_axis=True)
-        if a == 0.0:
-            m0 = float(margin(np.zeros(1))[0])
-            if m0 < m_worst:
-                f_worst, m_worst = 0.0, m0
+    for i, seg in enumerate(mask.segments):
+        # any sampled point's margin is >= the worst, so an extra candidate never misleads
+        cands = [found[key] for key in ((i, "min"), (i, "max")) if key in found]
+        if spans[i][0] == 0.0:
+            cands.append((0.0, g_dc))
+        f_worst, m_worst = math.nan, math.inf
+        for f_c, g_c in cands:
+            m_c = margin(seg, g_c)
+            if m_c < m_worst:
+                f_worst, m_worst = f_c, m_c
         results.append(SegmentResult(seg, float(m_worst), float(f_worst), bool(m_worst >= -MARGIN_TOLERANCE_DB)))
     worst = min(results, key=lambda r: r.worst_margin_db)
     return MaskResult(all(r.passed for r in results), worst.worst_margin_db, worst.worst_frequency_hz,

@@ -52,7 +52,7 @@ from typing import Callable
 import numpy as np
 
 from service.approximation.types import ResponseType
-from service.response.refine import crossing, refine_minimum, zoom_minimize
+from service.response.refine import GAIN_TOLERANCE_DB, crossing, refine_extrema, zoom_minimize
 
 HALF_POWER_DB = 10.0 * math.log10(2.0)
 #: A peak no higher than the DC (or high-frequency) gain by more than this is
@@ -106,18 +106,58 @@ def infer_response_type(g0_db: float, ginf_db: float, peak_db: float) -> Respons
     return ResponseType.LOWPASS if g0_db >= ginf_db else ResponseType.HIGHPASS
 
 
+def extremes(func, requests, grid: np.ndarray, tolerance: float | None = None) -> list[tuple[float, float]]:
+    """Refined extremes of ``func`` on several intervals, in one bracketed search.
+
+    Parameters
+    ----------
+    func : callable
+        Vectorised function of frequency (Hz, >= 0).
+    requests : sequence of (a, b, maximum)
+        Interval [a, b] in Hz (b may be inf or exceed the grid: it then stops
+        at the grid's end) and whether the largest (True) or smallest value
+        is wanted.
+    grid : ndarray (G,)
+        Dense analysis grid (Hz, sorted, > 0) sampling the intervals.
+    tolerance : float, optional
+        Rounding level of ``func`` (its units), see
+        :func:`service.response.refine.refine_extrema`.
+
+    Returns
+    -------
+    list of (f_hz, value)
+        Where each extreme lies and its value (f = 0 when it is at DC).
+    """
+    samples, curves = [], []
+    for a, b, maximum in requests:
+        g = grid[(grid > a) & (grid < b)]
+        g = np.concatenate([[a] if a > 0 else [], g, [b] if math.isfinite(b) else [grid[-1]]])
+        samples.append(g)
+    sizes = np.cumsum([g.size for g in samples])[:-1]
+    values = np.split(np.asarray(func(np.concatenate(samples)), dtype=float), sizes) if samples else []
+    for (a, b, maximum), g, v in zip(requests, samples, values):
+        curves.append((g, v, -1.0 if maximum else 1.0))
+    found = refine_extrema(func, curves, log_axis=True, tolerance=tolerance)
+    if any(a == 0.0 for a, _, _ in requests):
+        v0 = float(func(np.zeros(1))[0])
+    out = []
+    for (a, b, maximum), (f, v) in zip(requests, found):
+        if a == 0.0 and ((v0 > v) if maximum else (v0 < v)):
+            f, v = 0.0, v0
+        out.append((f, v))
+    return out
+
+
 def _extreme(func, a: float, b: float, grid: np.ndarray, maximum: bool) -> tuple[float, float]:
     """Refined extreme (f, value) of func on [a, b] (b may exceed the grid)."""
-    g = grid[(grid > a) & (grid < b)]
-    g = np.concatenate([[a] if a > 0 else [], g, [b] if math.isfinite(b) else [grid[-1]]])
-    sign = -1.0 if maximum else 1.0
-    h = lambda f: sign * func(f)  # noqa: E731
-    f, v = refine_minimum(h, g, h(g), log_axis=True)
-    if a == 0.0:
-        v0 = float(h(np.zeros(1))[0])
-        if v0 < v:
-            f, v = 0.0, v0
-    return f, sign * v
+    return extremes(func, [(a, b, maximum)], grid)[0]
+
+
+def delay_variation(delay_s, passbands, grid: np.ndarray) -> float:
+    """Largest minus smallest group delay (s) over the passbands (each clipped at the grid's end)."""
+    top = grid[-1]
+    ext = extremes(delay_s, [(a, min(b, top), mx) for a, b in passbands for mx in (True, False)], grid)
+    return float(max(v for _, v in ext[0::2]) - min(v for _, v in ext[1::2]))
 
 
 def frequency_metrics(gain_db: Callable, delay_s: Callable, grid: np.ndarray, g0_db: float, ginf_db: float,
@@ -146,7 +186,6 @@ def frequency_metrics(gain_db: Callable, delay_s: Callable, grid: np.ndarray, g0
     """
     m = ResponseMetrics()
     gdb = gain_db(grid)
-    top = grid[-1]
     # peak
     kp = int(np.argmax(gdb))
     if g0_db >= gdb[kp] - PEAK_FLATNESS_DB:
@@ -165,9 +204,12 @@ def frequency_metrics(gain_db: Callable, delay_s: Callable, grid: np.ndarray, g0
         g0_db, ginf_db, m.peak_gain_db)
 
     # passband reference gain
-    pass_max = None
+    pass_max = pass_min = None
     if passbands:
-        pass_max = max(_extreme(gain_db, a, b, grid, maximum=True)[1] for a, b in passbands)
+        ext = extremes(gain_db, [(a, b, mx) for a, b in passbands for mx in (True, False)], grid,
+                       tolerance=GAIN_TOLERANCE_DB)
+        pass_max = max(v for _, v in ext[0::2])
+        pass_min = min(v for _, v in ext[1::2])
         ref = pass_max
     elif rt in (ResponseType.LOWPASS, ResponseType.BANDSTOP):
         ref = g0_db
@@ -225,9 +267,7 @@ def frequency_metrics(gain_db: Callable, delay_s: Callable, grid: np.ndarray, g0
     # passband intervals for ripple / delay variation
     pbs = passbands
     if pbs:
-        hi_ = pass_max
-        lo_ = min(_extreme(gain_db, a, b, grid, maximum=False)[1] for a, b in pbs)
-        m.passband_ripple_db = float(hi_ - lo_)
+        m.passband_ripple_db = float(pass_max - pass_min)
     else:
         m.unavailable["passband_ripple_db"] = "needs the passband edges (passband_hz)"
         if f3 is not None:
@@ -259,9 +299,7 @@ def frequency_metrics(gain_db: Callable, delay_s: Callable, grid: np.ndarray, g0
     else:
         m.group_delay_s = float(delay_s(np.array([f_gd]))[0])
     if pbs:
-        dmax = max(_extreme(delay_s, a, min(b, top), grid, maximum=True)[1] for a, b in pbs)
-        dmin = min(_extreme(delay_s, a, min(b, top), grid, maximum=False)[1] for a, b in pbs)
-        m.group_delay_variation_s = float(dmax - dmin)
+        m.group_delay_variation_s = delay_variation(delay_s, pbs, grid)
     else:
         m.unavailable["group_delay_variation_s"] = "needs the passband edges or a half-power frequency"
     return m, rt

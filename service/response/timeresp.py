@@ -286,13 +286,15 @@ def _powers_apply(Ad: np.ndarray, x0: np.ndarray, count: int) -> np.ndarray:
     return X[:count]
 
 
-def simulate(zeros, poles, gain, time_s: np.ndarray) -> StateSpaceResponse:
+def simulate(zeros, poles, gain, time_s: np.ndarray, impulse: bool = True) -> StateSpaceResponse:
     """Exact step and impulse responses on a uniform grid starting at 0.
 
     Parameters
     ----------
     zeros, poles : ndarray of complex (rad/s); gain : float
     time_s : ndarray of float, shape (N,), uniform, time_s[0] == 0.
+    impulse : bool
+        Also compute the impulse response (else ``impulse`` is left empty).
 
     Returns
     -------
@@ -316,7 +318,10 @@ def simulate(zeros, poles, gain, time_s: np.ndarray) -> StateSpaceResponse:
     X = _powers_apply(Ad_aug, x0, N)
     step = X @ C_aug
     # impulse: x(0+) = B, y = C x
-    Xi = _powers_apply(Ad_aug[:n, :n], B, N)
-    impulse = (Xi @ C) * w_ref
+    if impulse:
+        Xi = _powers_apply(Ad_aug[:n, :n], B, N)
+        imp = (Xi @ C) * w_ref
+    else:
+        imp = np.zeros(0)
     final = float(-C @ np.linalg.solve(A, B) + D)
-    return StateSpaceResponse(t, step, impulse, float(D), final, A_aug, C_aug, X, w_ref)
+    return StateSpaceResponse(t, step, imp, float(D), final, A_aug, C_aug, X, w_ref)
