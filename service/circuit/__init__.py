@@ -9,6 +9,9 @@ Circuit, OpAmpModel, Element, ElementKind
     Netlist model; values are scalars or arrays of one value per trial.
 ac_response(circuit, frequency_hz, output="out", *, memory_limit_bytes, method)
     Complex ``V(output)/V(input)``, shape (T, F).
+prepare_ac(circuit, frequency_hz, output="out", *, memory_limit_bytes, method) -> PreparedAc
+    The same, prepared once; ``PreparedAc.response(trials=slice(a, b))``
+    evaluates a range of trials (bit for bit the rows of the whole).
 transfer_function_zpk(circuit, output="out")
     Exact zeros, poles (rad/s) and gain of a single-trial circuit.
 to_spice(circuit, *, output, ac, trial, title)
@@ -17,7 +20,7 @@ CircuitError
     Every invalid circuit or request (an ``InvalidParameter``).
 """
 
-from .ac import ac_response
+from .ac import PreparedAc, ac_response, prepare_ac
 from .errors import CircuitError
 from .netlist import GROUND, Circuit, Element, ElementKind, OpAmpModel
 from .spice import format_value, to_spice
@@ -30,8 +33,10 @@ __all__ = [
     "ElementKind",
     "GROUND",
     "OpAmpModel",
+    "PreparedAc",
     "ac_response",
     "format_value",
+    "prepare_ac",
     "to_spice",
     "transfer_function_zpk",
 ]

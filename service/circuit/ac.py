@@ -16,6 +16,13 @@ Two methods give the same numbers:
 polynomial interpolation (more than :data:`MAX_STAGE_UNKNOWNS` unknowns, e.g.
 a long passive ladder), then ``"full"``.  Both are chunked over trials so
 that their working memory stays under ``memory_limit_bytes``.
+
+:func:`prepare_ac` does the structural work and (staged) the per-trial
+coefficients once; :meth:`PreparedAc.response` evaluates any range of trials
+on the grid.  :func:`ac_response` is the two in one call.  Neither method's
+numbers for a trial depend on the other trials: the staged evaluation is
+element by element (:mod:`.polyeval`), the full solve one LU factorization
+per (trial, frequency).
 """
 
 from __future__ import annotations
@@ -26,22 +33,15 @@ from .blocks import decompose
 from .errors import CircuitError
 from .mna import MnaSystem, build_mna
 from .netlist import Circuit
-from .staged import (_Evaluator, bytes_per_trial, coefficient_bytes_per_trial, evaluate_chunk, max_terms,
-                     plan_blocks, stage_representations)
+from .polyeval import GridEvaluator
+from .staged import (bytes_per_trial, coefficient_bytes_per_trial, evaluate_chunk, is_single_rational, plan_blocks,
+                     stage_representations)
 
 MAX_STAGE_UNKNOWNS = 10
 """Largest stage (unknowns) that ``method="auto"`` solves through polynomial coefficients."""
 
 STAGED_CHUNK_BYTES = 4 * 2**20
 """Working-set target of one staged evaluation chunk (small chunks stay in cache); never above the caller's limit."""
-
-GEMM_CHUNK_SIZE = 400_000
-"""Bound on rows x columns x inner size of one coefficient-times-Vandermonde product.
-
-Measured on 2 cores: OpenBLAS runs larger products multithreaded, and with
-the other core busy those run 5-40x slower than single-threaded ones; a
-product below this size stays on one thread and in cache.
-"""
 
 METHODS = ("auto", "full", "staged")
 
@@ -69,17 +69,18 @@ def output_column(system: MnaSystem, output: str) -> int:
     return system.node_index[output]
 
 
-def _full(system: MnaSystem, col: int, omega: np.ndarray, limit: int) -> np.ndarray:
-    n, t, nf = system.size, system.trials, omega.size
-    out = np.empty((t, nf), dtype=complex)
+def _full(system: MnaSystem, col: int, omega: np.ndarray, limit: int, trials: slice,
+          out: np.ndarray) -> np.ndarray:
+    n, nf = system.size, omega.size
+    t_first, t_stop, _ = trials.indices(system.trials)
     per_pair = 16 * (3 * n * n + 4 * n)
     fchunk = max(1, min(nf, limit // max(1, per_pair)))
     tchunk = max(1, limit // max(1, per_pair * nf)) if fchunk == nf else 1
     b = np.zeros(n, dtype=complex)
     b[system.rhs_row] = 1.0
     s = 1j * omega
-    for t0 in range(0, t, tchunk):
-        sl = slice(t0, min(t, t0 + tchunk))
+    for t0 in range(t_first, t_stop, tchunk):
+        sl = slice(t0, min(t_stop, t0 + tchunk))
         g, c = system.stamp(sl)
         for f0 in range(0, nf, fchunk):
             fs = slice(f0, min(nf, f0 + fchunk))
@@ -90,8 +91,107 @@ def _full(system: MnaSystem, col: int, omega: np.ndarray, limit: int) -> np.ndar
             except np.linalg.LinAlgError as exc:
                 raise CircuitError("the circuit is singular at an analysis frequency "
                                    "(e.g. an inductor loop at DC or a node isolated by capacitors at 0 Hz)") from exc
-            out[sl, fs] = x[..., col, 0]
+            out[sl.start - t_first: sl.stop - t_first, fs] = x[..., col, 0]
     return out
+
+
+class PreparedAc:
+    """A circuit's transfer function to one node, prepared for evaluation on a fixed frequency grid.
+
+    Made by :func:`prepare_ac`.  With the staged method the per-trial
+    polynomial coefficients of every stage are computed once, here; each
+    :meth:`response` call then only evaluates them on the grid.  Each
+    trial's numbers depend only on its own part values and on the grid:
+    ``response(slice(a, b))`` is bit for bit ``response()[a:b]`` for every
+    split of the trials.
+
+    Attributes
+    ----------
+    trials : int
+        Number of trials ``T`` of the circuit.
+    frequency_hz : ndarray, shape (F,)
+        The analysis grid, Hz.
+    method : str
+        ``"staged"`` or ``"full"`` (after resolving ``"auto"``).
+    """
+
+    def __init__(self, system: MnaSystem, col: int, f: np.ndarray, method: str, limit: int, blocks=None):
+        self.trials = system.trials
+        self.frequency_hz = f
+        self.method = method
+        self._system, self._col, self._limit = system, col, limit
+        self._omega = 2.0 * np.pi * f
+        if method == "staged":
+            blocks = decompose(system, col) if blocks is None else blocks
+            w_ref = reference_omega(f)
+            plans = plan_blocks(system, blocks)
+            coef_chunk = max(1, min(self.trials, limit // max(1, coefficient_bytes_per_trial(plans))))
+            self._reps = stage_representations(system, plans, w_ref, coef_chunk)
+            self._ev = GridEvaluator(self._omega, w_ref)
+            per = bytes_per_trial(self._reps, f.size)
+            self._tchunk = max(1, min(limit, STAGED_CHUNK_BYTES) // per)
+            # a single rational at the output is evaluated in cache-sized blocks by the evaluator itself
+            self._chunked = not is_single_rational(self._reps, col)
+
+    def response(self, trials: slice | None = None, out: np.ndarray | None = None) -> np.ndarray:
+        """Complex ``V(output)/V(input)`` of the trials in ``trials`` (default all).
+
+        Parameters
+        ----------
+        trials : slice, optional
+            Trials to evaluate (step 1).
+        out : ndarray, complex128, shape (Tc, F), optional
+            Where to write the result.
+
+        Returns
+        -------
+        ndarray, complex128, shape (Tc, F)
+        """
+        sl = slice(None) if trials is None else trials
+        t0, t1, step = sl.indices(self.trials)
+        if step != 1:
+            raise CircuitError("trials must be a slice with step 1", field="trials")
+        t1 = max(t0, t1)
+        if out is None:
+            out = np.empty((t1 - t0, self.frequency_hz.size), dtype=complex)
+        if self.method == "full":
+            return _full(self._system, self._col, self._omega, self._limit, slice(t0, t1), out)
+        step = self._tchunk if self._chunked else max(1, t1 - t0)
+        for a in range(t0, t1, step):
+            b = min(t1, a + step)
+            evaluate_chunk(self._reps, self._col, self._ev, slice(a, b), out[a - t0: b - t0])
+        return out
+
+
+def prepare_ac(circuit: Circuit, frequency_hz: np.ndarray, output: str = "out", *,
+               memory_limit_bytes: int = 512 * 2**20, method: str = "auto") -> PreparedAc:
+    """Prepare the AC analysis of ``circuit`` on a grid; evaluate with :meth:`PreparedAc.response`.
+
+    Parameters are those of :func:`ac_response`; ``memory_limit_bytes``
+    bounds the working memory of the preparation and of each evaluation.
+
+    Returns
+    -------
+    PreparedAc
+
+    Raises
+    ------
+    CircuitError
+        Invalid circuit, output node, frequencies or method; singular circuit.
+    """
+    if method not in METHODS:
+        raise CircuitError(f"method must be one of {', '.join(METHODS)}, got {method!r}", field="method")
+    if not isinstance(memory_limit_bytes, (int, np.integer)) or memory_limit_bytes < 2**20:
+        raise CircuitError("memory_limit_bytes must be an integer of at least 1 MiB", field="memory_limit_bytes")
+    f = _check_frequency(frequency_hz)
+    circuit.validate(output)
+    system = build_mna(circuit)
+    col = output_column(system, output)
+    blocks = None
+    if method == "auto":
+        blocks = decompose(system, col)
+        method = "staged" if max(len(b.cols) for b in blocks) <= MAX_STAGE_UNKNOWNS else "full"
+    return PreparedAc(system, col, f, method, int(memory_limit_bytes), blocks)
 
 
 def ac_response(circuit: Circuit, frequency_hz: np.ndarray, output: str = "out", *,
@@ -115,38 +215,14 @@ def ac_response(circuit: Circuit, frequency_hz: np.ndarray, output: str = "out",
     Returns
     -------
     ndarray, complex128, shape (T, F)
-        Transfer function in V/V for every trial and frequency.
+        Transfer function in V/V for every trial and frequency; with the
+        staged method each trial's values are independent of the other
+        trials of the circuit (bit for bit).
 
     Raises
     ------
     CircuitError
         Invalid circuit, output node, frequencies or method; singular circuit.
     """
-    if method not in METHODS:
-        raise CircuitError(f"method must be one of {', '.join(METHODS)}, got {method!r}", field="method")
-    if not isinstance(memory_limit_bytes, (int, np.integer)) or memory_limit_bytes < 2**20:
-        raise CircuitError("memory_limit_bytes must be an integer of at least 1 MiB", field="memory_limit_bytes")
-    f = _check_frequency(frequency_hz)
-    circuit.validate(output)
-    system = build_mna(circuit)
-    col = output_column(system, output)
-    omega = 2.0 * np.pi * f
-    blocks = decompose(system, col)
-    if method == "auto":
-        method = "staged" if max(len(b.cols) for b in blocks) <= MAX_STAGE_UNKNOWNS else "full"
-    if method == "full":
-        return _full(system, col, omega, int(memory_limit_bytes))
-    w_ref = reference_omega(f)
-    plans = plan_blocks(system, blocks)
-    t = system.trials
-    limit = int(memory_limit_bytes)
-    coef_chunk = max(1, min(t, limit // max(1, coefficient_bytes_per_trial(plans))))
-    reps = stage_representations(system, plans, w_ref, coef_chunk)
-    per = bytes_per_trial(reps, f.size)
-    tchunk = max(1, min(min(limit, STAGED_CHUNK_BYTES) // per, GEMM_CHUNK_SIZE // (2 * f.size * max_terms(reps))))
-    ev = _Evaluator(omega, w_ref)
-    out = np.empty((t, f.size), dtype=complex)
-    for t0 in range(0, t, tchunk):
-        sl = slice(t0, min(t, t0 + tchunk))
-        evaluate_chunk(reps, col, ev, sl, out[sl])
-    return out
+    return prepare_ac(circuit, frequency_hz, output, memory_limit_bytes=memory_limit_bytes,
+                      method=method).response()

@@ -13,10 +13,11 @@ ch. 9, "Symbolic analysis by polynomial interpolation" and Singhal and Vlach,
 The variable is scaled, ``sigma = s / w_ref``, for conditioning.
 
 Coefficients cost a few tiny determinants per trial; the response on
-``(T, F)`` is then two real matrix products per rational function (Horner's
-scheme replaced by a Vandermonde product, one BLAS call) and one division.
-Stages in cascade are merged into one numerator and denominator by
-multiplying their coefficient rows per trial.
+``(T, F)`` is then Horner's scheme on the even and odd parts of each
+polynomial and one division per point, element by element
+(:mod:`.polyeval`), so a trial's response does not depend on the batch it is
+computed in.  Stages in cascade are merged into one numerator and
+denominator by multiplying their coefficient rows per trial.
 """
 
 from __future__ import annotations
@@ -28,6 +29,7 @@ import numpy as np
 from .blocks import RHS, Block, degree_bounds
 from .errors import CircuitError
 from .mna import MnaSystem
+from .polyeval import GridEvaluator, multiply, quotient
 
 THETA = 0.3183098861837907
 """Rotation (rad) of the interpolation points off the real axis, so that a real pole never lands on one."""
@@ -195,30 +197,6 @@ def _trim(c: np.ndarray) -> np.ndarray:
     return c[:, : (nz[-1] + 1 if nz.size else 1)]
 
 
-class _Evaluator:
-    """Evaluate real-coefficient polynomials in ``sigma = j*w/w_ref`` on a fixed grid."""
-
-    def __init__(self, omega: np.ndarray, w_ref: float):
-        self.sig = 1j * omega / w_ref
-        self._v = np.zeros((1, 2 * omega.size))
-        self._v[0, 0::2] = 1.0
-
-    def _vander(self, n: int) -> np.ndarray:
-        while self._v.shape[0] < n:
-            k = self._v.shape[0]
-            row = np.zeros((1, self._v.shape[1]))
-            pw = self.sig ** k
-            row[0, 0::2] = pw.real
-            row[0, 1::2] = pw.imag
-            self._v = np.vstack([self._v, row])
-        return self._v[:n]
-
-    def __call__(self, coef: np.ndarray) -> np.ndarray:
-        """Values (Tc, F) complex of the polynomials in the rows of ``coef`` (Tc, d+1)."""
-        v = self._vander(coef.shape[1])
-        return np.ascontiguousarray(coef @ v).view(np.complex128)
-
-
 @dataclass
 class _Numeric:
     """An unknown evaluated on the grid: ``sum_c N_c/D * x_c`` (coefficients over all trials)."""
@@ -266,55 +244,62 @@ def stage_representations(system: MnaSystem, plans: list[_BlockPlan], w_ref: flo
     return reps
 
 
-def evaluate_chunk(reps: dict[int, object], output_col: int, ev: "_Evaluator", sl: slice,
+def evaluate_chunk(reps: dict[int, object], output_col: int, ev: GridEvaluator, sl: slice,
                    out: np.ndarray) -> None:
-    """Write the response of unknown ``output_col`` for trials ``sl`` into ``out`` (Tc, F) complex."""
-    cache: dict[int, np.ndarray] = {}
+    """Write the response of unknown ``output_col`` for trials ``sl`` into ``out`` (Tc, F) complex.
 
-    def value(c: int) -> np.ndarray:
-        if c in cache:
-            return cache[c]
-        r = reps[c]
-        if isinstance(r, _Rational):
-            if r.num.shape[1] == 1 and r.den.shape[1] == 1:
-                v = (r.num[sl] / r.den[sl]).astype(complex)
-            else:
-                v = ev(r.num[sl]) / ev(r.den[sl])
-        else:
-            acc = None
-            for n, src in r.terms:
-                term = ev(n[sl]) * value(src)
-                acc = term if acc is None else acc + term
-            if acc is None:
-                acc = np.zeros((len(range(*sl.indices(r.den.shape[0]))), ev.sig.size), dtype=complex)
-            v = acc / ev(r.den[sl])
-        cache[c] = v
-        return v
-
+    Element by element (:mod:`.polyeval`): a trial's values do not depend on
+    the other trials of ``sl``.
+    """
     r = reps[output_col]
-    if isinstance(r, _Rational) and (r.num.shape[1] > 1 or r.den.shape[1] > 1):
-        np.divide(ev(r.num[sl]), ev(r.den[sl]), out=out)
+    if is_single_rational(reps, output_col):
+        ev.ratio(r.num[sl], r.den[sl], out)
+        return
+    v = _planar_value(reps, output_col, ev, sl, {})
+    out.real[...] = v[:, 0]
+    out.imag[...] = v[:, 1]
+
+
+def is_single_rational(reps: dict[int, object], col: int) -> bool:
+    """Whether unknown ``col`` is one merged rational function of frequency (not a constant)."""
+    r = reps[col]
+    return isinstance(r, _Rational) and (r.num.shape[1] > 1 or r.den.shape[1] > 1)
+
+
+def _planar_value(reps: dict[int, object], c: int, ev: GridEvaluator, sl: slice, cache: dict) -> np.ndarray:
+    """Planar value (Tc, 2, F) -- or (Tc, 2, 1) when constant in frequency -- of unknown ``c``."""
+    if c in cache:
+        return cache[c]
+    r = reps[c]
+    if isinstance(r, _Rational):
+        if r.num.shape[1] == 1 and r.den.shape[1] == 1:
+            v = np.zeros((r.num[sl].shape[0], 2, 1))
+            v[:, 0, 0] = r.num[sl, 0] / r.den[sl, 0]
+        else:
+            d = ev.planar(r.den[sl])
+            n = r.num[sl, :1] if r.num.shape[1] == 1 else ev.planar(r.num[sl])
+            v = np.empty_like(d)
+            quotient(n, d, v[:, 0], v[:, 1])
     else:
-        out[...] = value(output_col)
+        acc = None
+        for n, src in r.terms:
+            term = multiply(ev.planar(n[sl]), _planar_value(reps, src, ev, sl, cache))
+            acc = term if acc is None else acc + term
+        d = ev.planar(r.den[sl])
+        if acc is None:
+            acc = np.zeros_like(d)
+        v = np.empty_like(d)
+        quotient(np.broadcast_to(acc, d.shape), d, v[:, 0], v[:, 1])
+    cache[c] = v
+    return v
 
 
 def bytes_per_trial(reps: dict[int, object], nfreq: int) -> int:
-    """Rough working memory of :func:`evaluate_chunk` per trial, bytes."""
+    """Rough working memory of :func:`evaluate_chunk` per trial, bytes (planar values and quotient scratch)."""
     numeric = sum(isinstance(r, _Numeric) for r in reps.values())
-    return 16 * nfreq * (3 + 2 * numeric)
+    return 16 * nfreq * (3 + 3 * numeric)
 
 
 def coefficient_bytes_per_trial(plans: list[_BlockPlan]) -> int:
     """Rough memory of :func:`block_coefficients` per trial, bytes (complex pencils at the interpolation points)."""
     return max(16 * p.points * len(p.block.cols) ** 2 * (3 + len(p.num_bounds)) for p in plans)
-
-
-def max_terms(reps: dict[int, object]) -> int:
-    """Largest number of coefficients of any polynomial evaluated on the grid (the inner size of its product)."""
-    sizes = [1]
-    for r in reps.values():
-        if isinstance(r, _Rational):
-            sizes += [r.num.shape[1], r.den.shape[1]]
-        else:
-            sizes += [r.den.shape[1]] + [n.shape[1] for n, _ in r.terms]
-    return max(sizes)
