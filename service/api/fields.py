@@ -70,13 +70,14 @@ class Quantity(ma.fields.Float):
     def openapi_properties(self) -> dict[str, Any]:
         """OpenAPI 3.1 description of the accepted JSON forms."""
         symbols = ", ".join(_UNIT_SYMBOL[u] for u in self.units)
-        return {
-            "oneOf": [
-                {"type": "number"},
-                {"type": "string", "pattern": _string_pattern(self.units), "maxLength": 64,
-                 "description": "SI-prefixed quantity" + (f" with optional unit {symbols}" if symbols else "")},
-            ]
-        }
+        forms = [
+            {"type": "number"},
+            {"type": "string", "pattern": _string_pattern(self.units), "maxLength": 64,
+             "description": "SI-prefixed quantity" + (f" with optional unit {symbols}" if symbols else "")},
+        ]
+        if self.allow_none:
+            forms.append({"type": "null"})
+        return {"oneOf": forms}
 
 
 class StrictInteger(ma.fields.Integer):

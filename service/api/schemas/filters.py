@@ -120,17 +120,22 @@ def _check_pair(data: dict, name: str, band: bool) -> None:
         raise ma.ValidationError({name: ["a lowpass or highpass needs one frequency, not a pair"]})
 
 
+SECTION_FREQ_RANGE = ma.validate.Range(min=1e-6, max=1e13)
+
+
 class SectionSchema(StrictSchema):
-    """One section in the standard forms (DESIGN.md)."""
+    """One section in the standard forms (DESIGN.md). The bounds are wide: band transforms of extreme
+    requirements give sections outside the input frequency range and Q far below 1/2."""
 
     kind = one_of(SectionKind, required=True, description="Standard form of the section.")
     order = StrictInteger(required=True, validate=ma.validate.OneOf([1, 2]))
-    f0_hz = Quantity(unit="Hz", required=True, validate=FREQ_RANGE, metadata={"description": "Pole frequency (Hz)."})
-    q = ma.fields.Float(allow_none=True, validate=ma.validate.Range(min=0.05, max=1000),
+    f0_hz = Quantity(unit="Hz", required=True, validate=SECTION_FREQ_RANGE,
+                     metadata={"description": "Pole frequency (Hz)."})
+    q = ma.fields.Float(allow_none=True, validate=ma.validate.Range(min=1e-9, max=1e6),
                         metadata={"description": "Pole Q (null for first order)."})
-    fz_hz = Quantity(unit="Hz", allow_none=True, validate=FREQ_RANGE,
+    fz_hz = Quantity(unit="Hz", allow_none=True, validate=SECTION_FREQ_RANGE,
                      metadata={"description": "Zero frequency (Hz) of the notch kinds, else null."})
-    gain = ma.fields.Float(required=True, validate=ma.validate.Range(min=-1e6, max=1e6),
+    gain = ma.fields.Float(required=True, validate=ma.validate.Range(min=-1e12, max=1e12),
                            metadata={"description": "Gain g of the standard form."})
 
 
