@@ -237,3 +237,35 @@ def test_partial_fractions_match_scipy_step_and_decline_repeated_poles():
     # two poles 1e-9 apart: residues of 1e9 would cancel to rounding noise
     close = np.array([-W0, -W0 * (1 + 1e-9)], dtype=complex)
     assert modal_step([], close, W0 * W0, t) is None
+
+
+def test_decimation_keeps_each_chunks_extremes_and_the_ends():
+    from service.response.plotting import decimate
+
+    rng = np.random.default_rng(7)
+    for n in (2001, 2999, 10_000):
+        x = np.arange(n, dtype=float)
+        y = rng.normal(size=n)
+        xd, yd = decimate(x, y, limit=2000)
+        assert xd.size <= 2002 and np.all(np.diff(xd) > 0)
+        assert xd[0] == 0 and xd[-1] == n - 1
+        edges = np.linspace(0, n, 1001).astype(int)
+        kept = set(xd.astype(int).tolist())
+        for a, b in zip(edges[:-1], edges[1:]):  # the chunk loop the vectorised form replaces
+            assert a + int(np.argmin(y[a:b])) in kept and a + int(np.argmax(y[a:b])) in kept
+        np.testing.assert_array_equal(yd, y[xd.astype(int)])
+    x = np.arange(10.0)
+    assert decimate(x, x**2)[0] is x
+
+
+def test_response_figure_has_every_panel_and_labelled_units():
+    z, p, k = SYSTEMS["chebyshev1_7"]
+    from service.response import FrequencyGrid, analyze
+
+    r = analyze(ZpkSystem(z, p, k), FrequencyGrid(10, 1e5, 2000),
+                mask=Mask.from_requirement("lowpass", 1000, 3000, 1.0, 40.0))
+    svg = r.svg().decode()
+    for text in ("Magnitude", "Phase", "Group delay", "Step response", "gain (dB)", "phase (deg)",
+                 "group delay (ms)", "step response (V/V)", "frequency (Hz)", "time (ms)"):
+        assert text in svg, text
+    assert 'width="576pt"' in svg  # 8 in at 72 pt/in: 800 px at 100 dpi
