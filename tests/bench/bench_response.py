@@ -14,7 +14,8 @@ load average before and after, of:
   among them the accelerometer anti-alias requirement of the demo scenario
   (flat within 0.1 dB to 10 kHz, 80 dB down at 25.6 kHz);
 - the parts of one compare row: the mask check and the step metrics of the
-  elliptic design of that requirement;
+  elliptic design of that requirement (by analyze's state-space method, and
+  by the comparison's own method where the code has one);
 - the SVG figure of a comparison.
 
 Small-matrix BLAS calls dominate the time response; under load, multithreaded
@@ -131,6 +132,11 @@ def main() -> None:
         step_metrics(sim, ResponseMetrics())
 
     report("  step metrics of the elliptic row (analyze's exact method)", measure(step_row, 30))
+    from service.response import comparison as _cmp
+
+    if hasattr(_cmp, "_step_response"):
+        report("  step metrics of the elliptic row (the comparison's method)",
+               measure(lambda: step_metrics(_cmp._step_response(z, p, k), ResponseMetrics()), 30))
 
     comp = compare_families(*req)
     comp.svg()
