@@ -19,6 +19,7 @@ The partition is exact: it is a reordering of the same equations.
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 
 import numpy as np
@@ -73,17 +74,25 @@ def decompose(system: MnaSystem, output_col: int) -> list[Block]:
         If the system is structurally singular (an unknown no equation can
         determine, e.g. an op-amp with both inputs tied to fixed voltages).
     """
+    pat = system.pattern()
+    blocks = _decompose_pattern(pat.tobytes(), system.size, system.rhs_row, output_col, tuple(system.unknowns))
+    return [Block(list(b.cols), list(b.rows), list(b.inputs), list(b.needed)) for b in blocks]
+
+
+@functools.lru_cache(maxsize=256)
+def _decompose_pattern(pattern: bytes, n: int, rhs_row: int, output_col: int, unknowns: tuple[str, ...]
+                       ) -> tuple[Block, ...]:
+    """:func:`decompose` of a structure (memoized: circuits of one topology share it)."""
     from scipy.sparse import csr_matrix
     from scipy.sparse.csgraph import connected_components, maximum_bipartite_matching
 
-    pat = system.pattern()
-    n = system.size
+    pat = np.frombuffer(pattern, dtype=bool).reshape(n, n)
     match = maximum_bipartite_matching(csr_matrix(pat.astype(np.int8)), perm_type="column")
     if np.any(match < 0):
         bad_rows = np.flatnonzero(match < 0)
         matched_cols = set(int(c) for c in match if c >= 0)
         bad_cols = [c for c in range(n) if c not in matched_cols]
-        names = ", ".join(system.unknowns[c] for c in bad_cols) or system.unknowns[int(bad_rows[0])]
+        names = ", ".join(unknowns[c] for c in bad_cols) or unknowns[int(bad_rows[0])]
         raise CircuitError(f"the circuit is structurally singular: no equation determines {names}")
     row_of = np.empty(n, dtype=int)
     row_of[match] = np.arange(n)
@@ -101,7 +110,7 @@ def decompose(system: MnaSystem, output_col: int) -> list[Block]:
         rows = row_of[cols]
         reads = np.flatnonzero(pat[rows, :].any(axis=0))
         ins = [int(c) for c in reads if labels[c] != comp]
-        if system.rhs_row in set(int(r) for r in rows):
+        if rhs_row in set(int(r) for r in rows):
             ins.append(RHS)
         comp_inputs.append(ins)
     # needed unknowns, walking back from the output (depth-first over inputs)
@@ -141,7 +150,7 @@ def decompose(system: MnaSystem, output_col: int) -> list[Block]:
         cols = members[c]
         blocks.append(Block(cols=list(cols), rows=[int(row_of[j]) for j in cols],
                             inputs=comp_inputs[c], needed=sorted(needed[c])))
-    return blocks
+    return tuple(blocks)
 
 
 def degree_bounds(g_pat: np.ndarray, c_pat: np.ndarray) -> tuple[int, int]:

@@ -10,11 +10,15 @@ with ``v = -x^2``.  ``E`` and ``O`` are evaluated by Horner's scheme in the
 real variable ``v`` (D. E. Knuth, *The Art of Computer Programming*,
 vol. 2, 3rd ed., 1997, sec. 4.6.4, "Evaluation of polynomials", which also
 splits a polynomial into its even and odd parts): half the steps of a complex
-Horner recurrence in ``sigma``, with real multiplications and additions only.  A quotient ``N/D`` is ``N conj(D) / |D|^2``, written as
-``(a + jb)(c - jd)/(c^2 + d^2)`` with the factors ``c/|D|^2`` and
-``d/|D|^2`` formed first so that no intermediate exceeds ``|N|/|D|``; points
-where ``|D|^2`` leaves the safe range of float64 fall back to numpy's complex
-division (Smith's algorithm) one element at a time.
+Horner recurrence in ``sigma``, with real multiplications and additions only.
+
+A quotient ``N/D`` is ``N conj(D) / |D|^2``: ``conj(D)`` is evaluated directly
+(the odd coefficients negated), ``r = 1/(c^2 + d^2)`` once, and the
+numerator's parts are scaled by ``r`` before they meet ``conj(D)``, so no
+intermediate exceeds ``|N|/|D|``; a constant numerator is folded into the
+denominator's coefficients (``a/D = 1/(D/a)``).  Points where ``|D|^2``
+leaves the safe range of float64 fall back to numpy's complex division
+(Smith's algorithm) one element at a time.
 
 Every output element is computed by the same sequence of correctly rounded
 IEEE 754 operations on its own trial's coefficients and its own frequency, so
@@ -38,13 +42,20 @@ SAFE_MAX = 1e290
 """Range of ``|D|^2`` where the real-arithmetic quotient is exact to rounding; outside, complex division."""
 
 
-def _split(coef: np.ndarray) -> np.ndarray:
-    """(Tb, n) ascending coefficients -> (L, Tb, 2, 1): ``[m, :, 0]`` = c_{2m}, ``[m, :, 1]`` = c_{2m+1} (zero padded)."""
+def _split(coef: np.ndarray, conjugate: bool = False) -> np.ndarray:
+    """(Tb, n) ascending coefficients -> (L, Tb, 2, 1): ``[m, :, 0]`` = c_{2m}, ``[m, :, 1]`` = +-c_{2m+1} (zero padded).
+
+    With ``conjugate`` the odd coefficients change sign: the planar value is
+    then that of ``conj(p(jx)) = p(-jx)``.
+    """
     tb, n = coef.shape
     half = (n + 1) // 2
     out = np.zeros((half, tb, 2, 1))
     out[:, :, 0, 0] = coef[:, 0::2].T
-    out[: n // 2, :, 1, 0] = coef[:, 1::2].T
+    if conjugate:
+        np.negative(coef[:, 1::2].T, out=out[: n // 2, :, 1, 0])
+    else:
+        out[: n // 2, :, 1, 0] = coef[:, 1::2].T
     return out
 
 
@@ -70,20 +81,33 @@ class GridEvaluator:
         self.v = -(self.x * self.x)
         self.size = self.x.size
         self.block = max(1, BLOCK_BYTES // (16 * max(1, self.size)))
+        self._v_block = None
 
-    def planar(self, coef: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
-        """Planar values (T, 2, F) of the polynomials in the rows of ``coef`` (T, n), ascending powers of sigma."""
+    def _v_rows(self, rows: int) -> np.ndarray:
+        """``v`` repeated over ``rows`` trials and both parts, (rows, 2, F): the Horner products then run contiguous."""
+        if rows > self.block:
+            return self.v
+        if self._v_block is None:
+            self._v_block = np.broadcast_to(self.v, (self.block, 2, self.size)).copy()
+        return self._v_block[:rows]
+
+    def planar(self, coef: np.ndarray, out: np.ndarray | None = None, conjugate: bool = False) -> np.ndarray:
+        """Planar values (T, 2, F) of the polynomials in the rows of ``coef`` (T, n), ascending powers of sigma.
+
+        With ``conjugate``, the values of the complex conjugates.
+        """
         if out is None:
             out = np.empty((coef.shape[0], 2, self.size))
-        c = _split(coef)
+        c = _split(coef, conjugate)
         half = c.shape[0]
         if half == 1:
             out[...] = c[0]
         else:
-            np.multiply(c[half - 1], self.v, out=out)
+            v = self._v_rows(out.shape[0])
+            np.multiply(c[half - 1], v, out=out)
             out += c[half - 2]
             for m in range(half - 3, -1, -1):
-                out *= self.v
+                out *= v
                 out += c[m]
         out[:, 1] *= self.x
         return out
@@ -101,20 +125,67 @@ class GridEvaluator:
         return out
 
     def ratio(self, num: np.ndarray, den: np.ndarray, out: np.ndarray) -> np.ndarray:
-        """Write ``N(sigma)/D(sigma)`` into ``out`` (T, F) complex; ``num`` (T, n) and ``den`` (T, d) coefficients."""
+        """Write ``N(sigma)/D(sigma)`` into ``out`` (T, F) complex; ``num`` (T, n) and ``den`` (T, d) coefficients.
+
+        A constant numerator ``a`` is folded into the denominator
+        (``N/D = 1/(D/a)``, ``0`` where ``a = 0``).
+        """
         t = den.shape[0]
+        const = num.shape[1] == 1
+        zero = None
+        if const:
+            a = num[:, 0]
+            zero = a == 0
+            den = den / np.where(zero, 1.0, a)[:, None]
+            zero = zero if zero.any() else None
         nb = min(t, self.block)
         dbuf = np.empty((nb, 2, self.size))
-        nbuf = np.empty((nb, 2, self.size)) if num.shape[1] > 1 else None
+        nbuf = None if const else np.empty((nb, 2, self.size))
         tmp = np.empty((4, nb, self.size))
         for t0 in range(0, t, self.block):
             t1 = min(t, t0 + self.block)
             k = t1 - t0
-            d = self.planar(den[t0:t1], dbuf[:k])
-            n = num[t0:t1, :1] if nbuf is None else self.planar(num[t0:t1], nbuf[:k])
+            d = self.planar(den[t0:t1], dbuf[:k], conjugate=True)
+            n = None if const else self.planar(num[t0:t1], nbuf[:k])
             o = out[t0:t1]
-            quotient(n, d, o.real, o.imag, tmp[:, :k])
+            _by_conjugate(n, d[:, 0], d[:, 1], o.real, o.imag, tmp[:, :k])
+        if zero is not None:
+            out[zero] = 0.0
         return out
+
+
+def _by_conjugate(n: np.ndarray | None, c: np.ndarray, ec: np.ndarray, out_re: np.ndarray, out_im: np.ndarray,
+                  tmp: np.ndarray) -> None:
+    """``N/D`` with ``conj(D) = c + j ec`` (T, F) and ``N`` planar (T, 2, F) or None (``N = 1``); see the module notes.
+
+    ``N conj(D) r`` with ``r = 1/|D|^2``, the numerator's parts scaled by ``r``
+    first: ``(a r c - b r ec) + j (a r ec + b r c)``.
+    """
+    mag2, r, ar, br = tmp
+    np.multiply(c, c, out=mag2)
+    np.multiply(ec, ec, out=r)
+    mag2 += r
+    safe = bool(mag2.min() > SAFE_MIN) and bool(mag2.max() < SAFE_MAX)
+    with contextlib.nullcontext() if safe else np.errstate(all="ignore"):
+        np.divide(1.0, mag2, out=r)
+        if n is None:
+            np.multiply(c, r, out=out_re)
+            np.multiply(ec, r, out=out_im)
+        else:
+            np.multiply(n[:, 0], r, out=ar)
+            np.multiply(n[:, 1], r, out=br)
+            np.multiply(ar, c, out=out_re)
+            np.multiply(br, ec, out=r)
+            out_re -= r
+            np.multiply(ar, ec, out=out_im)
+            np.multiply(br, c, out=r)
+            out_im += r
+    if not safe:
+        bad = ~((mag2 > SAFE_MIN) & (mag2 < SAFE_MAX))
+        nc = 1.0 if n is None else np.broadcast_to(n[:, 0], bad.shape)[bad] + 1j * np.broadcast_to(n[:, 1], bad.shape)[bad]
+        h = nc / (c[bad] - 1j * ec[bad])
+        out_re[bad] = h.real
+        out_im[bad] = h.imag
 
 
 def multiply(a: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -128,42 +199,12 @@ def multiply(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     return out
 
 
-def quotient(n: np.ndarray, d: np.ndarray, out_re: np.ndarray, out_im: np.ndarray,
-             tmp: np.ndarray | None = None) -> None:
-    """``N/D`` into ``out_re``, ``out_im`` (T, F); ``N`` planar or real (T, 1), ``D`` planar (T, 2, F).
-
-    ``tmp`` is optional scratch of shape (4, T, F).  See the module notes.
-    """
-    c, e = d[:, 0], d[:, 1]
-    if tmp is None:
-        tmp = np.empty((4,) + c.shape)
-    mag2, p, q, w = tmp
-    np.multiply(c, c, out=mag2)
-    np.multiply(e, e, out=p)
-    mag2 += p
-    safe = bool(mag2.min() > SAFE_MIN) and bool(mag2.max() < SAFE_MAX)
-    with contextlib.nullcontext() if safe else np.errstate(all="ignore"):
-        if n.ndim == 2:                      # real numerator a: c (a/|D|^2) + j e (-a/|D|^2)
-            np.divide(-n, mag2, out=p)
-            np.multiply(e, p, out=out_im)
-            np.negative(p, out=p)
-            np.multiply(c, p, out=out_re)
-        else:                                # (a + jb)(c - je)/|D|^2 = (a p + b q) + j (b p - a q)
-            np.divide(c, mag2, out=p)
-            np.divide(e, mag2, out=q)
-            a, b = n[:, 0], n[:, 1]
-            np.multiply(a, p, out=out_re)
-            np.multiply(b, q, out=w)
-            out_re += w
-            np.multiply(b, p, out=out_im)
-            np.multiply(a, q, out=w)
-            out_im -= w
-    if not safe:
-        bad = ~((mag2 > SAFE_MIN) & (mag2 < SAFE_MAX))
-        nc = np.broadcast_to(n, bad.shape)[bad] + 0j if n.ndim == 2 else n[:, 0][bad] + 1j * n[:, 1][bad]
-        h = nc / (c[bad] + 1j * e[bad])
-        out_re[bad] = h.real
-        out_im[bad] = h.imag
+def quotient(n: np.ndarray, d: np.ndarray) -> np.ndarray:
+    """Planar ``N/D`` (T, 2, F) of planar values ``N`` (T, 2, F or 1) and ``D`` (T, 2, F)."""
+    out = np.empty(d.shape)
+    n = np.broadcast_to(n, d.shape)
+    _by_conjugate(n, d[:, 0], -d[:, 1], out[:, 0], out[:, 1], np.empty((4,) + d[:, 0].shape))
+    return out
 
 
 __all__ = ["GridEvaluator", "multiply", "quotient", "BLOCK_BYTES", "SAFE_MIN", "SAFE_MAX"]

@@ -277,19 +277,19 @@ def _planar_value(reps: dict[int, object], c: int, ev: GridEvaluator, sl: slice,
             v[:, 0, 0] = r.num[sl, 0] / r.den[sl, 0]
         else:
             d = ev.planar(r.den[sl])
-            n = r.num[sl, :1] if r.num.shape[1] == 1 else ev.planar(r.num[sl])
-            v = np.empty_like(d)
-            quotient(n, d, v[:, 0], v[:, 1])
+            if r.num.shape[1] == 1:
+                n = np.zeros((d.shape[0], 2, 1))
+                n[:, 0, 0] = r.num[sl, 0]
+            else:
+                n = ev.planar(r.num[sl])
+            v = quotient(n, d)
     else:
         acc = None
         for n, src in r.terms:
             term = multiply(ev.planar(n[sl]), _planar_value(reps, src, ev, sl, cache))
             acc = term if acc is None else acc + term
         d = ev.planar(r.den[sl])
-        if acc is None:
-            acc = np.zeros_like(d)
-        v = np.empty_like(d)
-        quotient(np.broadcast_to(acc, d.shape), d, v[:, 0], v[:, 1])
+        v = quotient(np.zeros_like(d) if acc is None else acc, d)
     cache[c] = v
     return v
 
