@@ -83,13 +83,17 @@ class GridEvaluator:
         self.block = max(1, BLOCK_BYTES // (16 * max(1, self.size)))
         self._v_block = None
 
-    def _v_rows(self, rows: int) -> np.ndarray:
-        """``v`` repeated over ``rows`` trials and both parts, (rows, 2, F): the Horner products then run contiguous."""
+    def _tiles(self, rows: int) -> tuple[np.ndarray, np.ndarray]:
+        """``v`` repeated to (rows, 2, F) and ``x`` to (rows, F), so that the Horner products run contiguous.
+
+        For more rows than a block, the broadcast originals (same values, same arithmetic).
+        """
         if rows > self.block:
-            return self.v
+            return self.v, self.x
         if self._v_block is None:
             self._v_block = np.broadcast_to(self.v, (self.block, 2, self.size)).copy()
-        return self._v_block[:rows]
+            self._x_block = np.broadcast_to(self.x, (self.block, self.size)).copy()
+        return self._v_block[:rows], self._x_block[:rows]
 
     def planar(self, coef: np.ndarray, out: np.ndarray | None = None, conjugate: bool = False) -> np.ndarray:
         """Planar values (T, 2, F) of the polynomials in the rows of ``coef`` (T, n), ascending powers of sigma.
@@ -100,16 +104,15 @@ class GridEvaluator:
             out = np.empty((coef.shape[0], 2, self.size))
         c = _split(coef, conjugate)
         half = c.shape[0]
-        if half == 1:
-            out[...] = c[0]
-        else:
-            v = self._v_rows(out.shape[0])
-            np.multiply(c[half - 1], v, out=out)
-            out += c[half - 2]
-            for m in range(half - 3, -1, -1):
+        out[...] = c[half - 1]
+        if half > 1:
+            v, x = self._tiles(out.shape[0])
+            for m in range(half - 2, -1, -1):
                 out *= v
                 out += c[m]
-        out[:, 1] *= self.x
+            out[:, 1] *= x
+        else:
+            out[:, 1] *= self.x
         return out
 
     def values(self, coef: np.ndarray) -> np.ndarray:

@@ -1,23 +1,22 @@
-"""Monte Carlo sweep: every trial's response through the circuit engine, in tiles.
+"""Monte Carlo sweep: every trial's response through the circuit engine, in chunks.
 
-The trials are evaluated in fixed *tiles* of :func:`tile_trials` trials, one
-:func:`service.circuit.ac_response` call per tile.  The tile size depends only
-on the number of evaluated frequencies, never on the memory limit or the
-processing chunk: the engine's batched matrix products (BLAS) round a row
-differently depending on where it sits in the batch, so a fixed tile layout
-is what makes trial ``i`` give the same bits however the run is chunked.
-Tiles are grouped into processing chunks (``chunk_trials``); results are
-reduced per chunk and never depend on the grouping.
+The circuit with every trial's values is prepared once
+(:func:`service.circuit.prepare_ac`: structure and per-trial polynomial
+coefficients) for each set of evaluated frequencies, and evaluated a chunk of
+trials at a time.  The engine computes each trial element by element, so
+trial ``i`` gives the same bits whatever chunk it is evaluated in; results
+are reduced per chunk and never depend on the chunking (``chunk_trials``, or
+the default of :func:`tile_trials`, bounded by the memory limit).
 
 Magnitude, phase and group delay on the caller's grid are kept per trial as
 float32 in frequency-major stores (F_b, T), sorted in place per frequency for
 the percentiles (:mod:`service.tolerance.statistics`).  When the stores of all
-frequencies would exceed a third of ``memory_limit_bytes`` the caller's grid is
-split into frequency blocks, each swept over all trials again; the per-trial
-figures are then read in a first sweep of the metric grid alone.  The split
-depends on the request (trials x frequencies) and the fixed store budget
-only, never on ``memory_limit_bytes``: the engine's numbers depend in the last
-bits on the set of frequencies of a call.
+frequencies would exceed the store budget the caller's grid is split into
+frequency blocks, each swept over all trials again; the per-trial figures are
+then read in a first sweep of the metric grid alone.  The split depends on
+the request (trials x frequencies) and the fixed store budget only, never on
+``memory_limit_bytes``: the engine's numbers depend in the last bits on the
+set of frequencies of a call (its scaling frequency).
 
 A trial's phase is the nominal response's unwrapped phase plus the principal
 value of ``arg(H / H_nominal)``: exact while the trial stays within +-180
@@ -36,14 +35,14 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from service.circuit import Circuit, ac_response
+from service.circuit import Circuit, prepare_ac
 from service.tolerance import figures as fig
 from service.tolerance.grids import Grids
 from service.tolerance.sampling import Samples
 from service.tolerance.statistics import sorted_percentiles
 
-#: Trials per engine call for up to REFERENCE_COLUMNS evaluated frequencies.
-TILE_TRIALS = 2048
+#: Default trials per chunk for up to REFERENCE_COLUMNS evaluated frequencies (speed only, never the numbers).
+TILE_TRIALS = 1024
 REFERENCE_COLUMNS = 1024
 MIN_TILE_TRIALS = 64
 #: Bytes of working memory per trial and evaluated frequency while a chunk is processed (measured, rounded up).
@@ -55,7 +54,7 @@ STORE_BUDGET_BYTES = 160 * 2**20
 
 
 def tile_trials(columns: int) -> int:
-    """Fixed tile size (trials per engine call) for ``columns`` evaluated frequencies."""
+    """Default chunk (trials processed at once) for ``columns`` evaluated frequencies."""
     t = TILE_TRIALS
     while t > MIN_TILE_TRIALS and t * columns > TILE_TRIALS * REFERENCE_COLUMNS:
         t //= 2
@@ -112,14 +111,15 @@ class _Figures:
         return TrialFigures(self.ref, self.f3, self.rip, self.marg, self.edge)
 
 
-def _evaluate(circuit: Circuit, samples: Samples, t0: int, t1: int, tile: int, columns_hz: np.ndarray,
-              engine_limit: int) -> np.ndarray:
-    parts = []
-    for a in range(t0, t1, tile):
-        b = min(t1, a + tile)
-        c = circuit.with_values(samples.slice(slice(a, b)))
-        parts.append(ac_response(c, columns_hz, output="out", memory_limit_bytes=engine_limit))
-    return parts[0] if len(parts) == 1 else np.concatenate(parts)
+class _Engine:
+    """The circuit with every trial's values, prepared on one set of frequencies (Hz)."""
+
+    def __init__(self, circuit: Circuit, samples: Samples, columns_hz: np.ndarray, engine_limit: int):
+        self.prepared = prepare_ac(circuit.with_values(samples.values), columns_hz, output="out",
+                                   memory_limit_bytes=engine_limit)
+
+    def __call__(self, t0: int, t1: int) -> np.ndarray:
+        return self.prepared.response(slice(t0, t1))
 
 
 #: Largest |Im/Re| of a delay phase step read without the arctangent.
@@ -133,11 +133,13 @@ def _phase_delay(hc: np.ndarray, hs: np.ndarray, f: np.ndarray, fs: np.ndarray, 
     ph = np.angle(q.astype(np.complex64))
     ph += phase_nominal.astype(np.float32)[None, :]
     ph *= np.float32(180.0 / np.pi)
-    np.multiply(hs, np.conj(hc), out=q)
+    np.conjugate(hc, out=q)
+    np.multiply(hs, q, out=q)                    # H(f(1+d)) conj(H(f))
     x, y = q.real, q.imag
-    gd = np.divide(y, x, out=np.zeros(q.shape), where=x != 0)
-    big = (np.abs(gd) > SMALL_ANGLE) | (x <= 0)
-    if big.any():
+    with np.errstate(divide="ignore", invalid="ignore"):
+        gd = y / x                               # x = 0 is taken by the arctangent below
+    if not (gd.max() <= SMALL_ANGLE and gd.min() >= -SMALL_ANGLE and x.min() > 0):
+        big = (np.abs(gd) > SMALL_ANGLE) | (x <= 0) | np.isnan(gd)
         gd[big] = np.arctan2(y[big], x[big])
     gd *= (-1.0 / (2.0 * np.pi * (fs - f)))[None, :]
     return ph, gd
@@ -160,13 +162,15 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
     phase_nominal_rad : ndarray (F,)
         Its unwrapped phase, rad.
     memory_limit_bytes : int
-        Working-memory bound of the engine calls (a quarter of it each).
+        Working-memory bound: a quarter for the engine, half for a chunk's arrays.
     store_budget_bytes : int, optional
         Bound of the float32 stores (default :data:`STORE_BUDGET_BYTES`); it
         fixes the frequency blocks, so it is part of the request's identity:
         the same budget gives the same bits.
     chunk_trials : int, optional
-        Trials processed at once (rounded up to whole tiles); None: one tile.
+        Trials processed at once (at least :data:`MIN_TILE_TRIALS`); None:
+        :func:`tile_trials`.  Either is bounded by the memory limit; the
+        numbers never depend on it.
 
     Returns
     -------
@@ -179,20 +183,23 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
     nblocks = math.ceil(nf / fb)
     fb = math.ceil(nf / nblocks)
     single = nblocks == 1
-    tile = tile_trials(nm + nf if single else max(nm, 2 * fb))
-    chunk = tile if chunk_trials is None else max(tile, math.ceil(int(chunk_trials) / tile) * tile)
+    columns = nm + nf if single else max(nm, 2 * fb)
+    tile = tile_trials(columns)
+    chunk = tile if chunk_trials is None else max(MIN_TILE_TRIALS, int(chunk_trials))
+    chunk = min(chunk, max(MIN_TILE_TRIALS, memory_limit_bytes // 2 // (WORK_BYTES_PER_POINT * columns)))
     engine_limit = max(2**20, memory_limit_bytes // 4)
     figs = _Figures(trials, grids)
     out = {k: np.empty((7, nf)) for k in ("mag", "ph", "gd")}
 
     nx = grids.extra_hz.size
     if not single:
-        cols = grids.evaluation_hz(shifted=False)
+        engine = _Engine(circuit, samples, grids.evaluation_hz(shifted=False), engine_limit)
         for t0 in range(0, trials, chunk):
             t1 = min(trials, t0 + chunk)
-            h = _evaluate(circuit, samples, t0, t1, tile, cols, engine_limit)
+            h = engine(t0, t1)
             figs.add(slice(t0, t1), fig.gain_db(h)[:, grids.order])
             del h
+        del engine
     for b in range(nblocks):
         c0, c1 = b * fb, min(nf, (b + 1) * fb)
         w = c1 - c0
@@ -200,11 +207,12 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
             cols = grids.evaluation_hz(shifted=True)
         else:
             cols = np.concatenate([f[c0:c1], fs[c0:c1]])
+        engine = _Engine(circuit, samples, cols, engine_limit)
         stores = [np.empty((w, trials), dtype=np.float32) for _ in range(3)]
         for t0 in range(0, trials, chunk):
             t1 = min(trials, t0 + chunk)
             sl = slice(t0, t1)
-            h = _evaluate(circuit, samples, t0, t1, tile, cols, engine_limit)
+            h = engine(t0, t1)
             if single:
                 g = fig.gain_db(h[:, :nf + nx])
                 figs.add(sl, g[:, grids.order])
@@ -214,14 +222,14 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
                 hc, hs = h[:, :w], h[:, w:]
                 mag = fig.gain_db(hc)
             ph, gd = _phase_delay(hc, hs, f[c0:c1], fs[c0:c1], nominal[c0:c1], phase_nominal_rad[c0:c1])
-            stores[0][:, sl] = mag.astype(np.float32).T
+            stores[0][:, sl] = mag.T
             stores[1][:, sl] = ph.T
-            stores[2][:, sl] = gd.astype(np.float32).T
+            stores[2][:, sl] = gd.T
             del h, hc, hs, mag, ph, gd
         for key, st in zip(("mag", "ph", "gd"), stores):
             st.sort(axis=1)
             out[key][:, c0:c1] = sorted_percentiles(st)
-        del stores
+        del stores, engine
     return Sweep(out["mag"], out["ph"], out["gd"], figs.result(), nblocks, tile)
 
 
