@@ -39,6 +39,9 @@ accesslog = None  # the app writes one JSON line per request itself
 errorlog = "-"
 loglevel = _settings.log_level
 worker_tmp_dir = "/tmp"
+# No runtime control socket (gunicorn >= 25.1 would create $HOME/.gunicorn/gunicorn.ctl): the image's
+# root filesystem is read-only, and nothing should change the worker count of a running container.
+control_socket_disable = True
 limit_request_line = 8190
 
 
