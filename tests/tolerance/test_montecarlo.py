@@ -20,11 +20,13 @@ def _dump(r):
 
 
 def test_chunk_size_does_not_change_a_bit(butter8_sk, lowpass_mask):
-    trials = 2 * tile_trials(1024) + 123           # not a whole number of tiles
+    trials = 2 * tile_trials(1024) + 123           # not a whole number of default chunks
     kw = dict(trials=trials, seed=7, frequencies_hz=GRID, mask=lowpass_mask, include_trials=5)
     ref = run_tolerance(butter8_sk, **kw)
-    for chunk in (1, 3 * tile_trials(1024), trials):
-        other = run_tolerance(butter8_sk, chunk_trials=chunk, memory_limit_bytes=64 * 2**20, **kw)
+    # chunks of any size, aligned or not with the engine's internal blocks, and a memory limit that caps them
+    for chunk, limit in ((1, 64 * 2**20), (100, 64 * 2**20), (777, 64 * 2**20), (trials, 64 * 2**20),
+                         (trials, 4 * 2**20)):
+        other = run_tolerance(butter8_sk, chunk_trials=chunk, memory_limit_bytes=limit, **kw)
         assert _dump(other) == _dump(ref)
         for a, b in zip((ref.magnitude_db, ref.phase_deg, ref.group_delay_s),
                         (other.magnitude_db, other.phase_deg, other.group_delay_s)):
