@@ -29,5 +29,8 @@ EXPOSE 8000
 HEALTHCHECK --interval=30s --timeout=5s --start-period=20s --retries=3 \
     CMD ["python", "-c", "import sys, urllib.request; sys.exit(0 if urllib.request.urlopen('http://127.0.0.1:8000/healthz', timeout=4).status == 200 else 1)"]
 
+# Run read-only: `docker run --read-only --tmpfs /tmp ...`. Every write goes to /tmp: matplotlib's
+# cache (MPLCONFIGDIR), the metrics files (PROMETHEUS_MULTIPROC_DIR, emptied at start by the gunicorn
+# config) and gunicorn's worker heartbeat files (worker_tmp_dir); no control socket is made.
 # Workers, threads, timeouts and limits come from ROLLOFF_* variables (see README).
 CMD ["sh", "-c", "mkdir -p \"$PROMETHEUS_MULTIPROC_DIR\" && exec gunicorn --config python:service.gunicorn_conf service.wsgi:app"]
