@@ -295,10 +295,8 @@ def cases(design_document: dict | None) -> list[Case]:
         Case("designs: unknown topology", "POST", ds, _with(d, topology="flux_capacitor"), field="topology", route=ds),
         Case("designs: 10^4 topology names", "POST", ds, _with(d, topology=["sallen_key"] * 10_000),
              field="topology", route=ds),
-        # Known mismatch: marshmallow's Boolean takes "yes", "on", 1 ... while the document says boolean.
-        Case("designs: exact wrong type", "POST", ds, _with(d, exact="yes"), field="exact", route=ds,
-             known="service/api/schemas/designs.py: `exact` is a lenient ma.fields.Boolean; accept JSON "
-                   "true/false only (truthy={True}, falsy={False})"),
+        # marshmallow's Boolean would take "yes", "on", 1 ...; the document says boolean, so only true/false.
+        Case("designs: exact wrong type", "POST", ds, _with(d, exact="yes"), field="exact", route=ds),
         # --- /v1/responses -----------------------------------------------------------------
         Case("responses: nothing to evaluate", "POST", rs, {"frequencies": {"start_hz": 10, "stop_hz": 1e4}},
              field="filter", route=rs),

@@ -128,7 +128,8 @@ class DesignRequestSchema(FilterSchema):
         "description": "Design strategy for every section or one per section (see the catalog)."})
     parts = ma.fields.Nested(PartsSchema, metadata={"description": "What can be bought."})
     opamp = ma.fields.Nested(OpAmpSchema, metadata={"description": "The op-amp in every position (default ideal)."})
-    exact = ma.fields.Boolean(load_default=False, metadata={"description": "Keep computed values unsnapped."})
+    exact = ma.fields.Boolean(load_default=False, truthy={True}, falsy={False},
+                              metadata={"description": "Keep computed values unsnapped."})
     gain = ma.fields.Float(load_default=1.0, validate=ma.validate.Range(min=1e-3, max=1e4), metadata={
         "description": "Passband gain of the whole filter (V/V), distributed over the stages; default 1."})
     impedance_ohm = Quantity(unit="ohm", validate=ma.validate.Range(min=10, max=1e8), metadata={
