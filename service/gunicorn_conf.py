@@ -15,14 +15,7 @@ bookkeeping for a worker that has exited.
 import glob
 import os
 
-# One BLAS/OpenMP thread per worker: the workers are the parallelism. OpenBLAS's own thread pool in
-# forked workers on a 2-core machine made a 201-point response ~6x slower (median 166 ms against 25 ms,
-# measured here). Set before numpy is first imported (the app is preloaded after this file is read);
-# an explicit setting in the environment wins.
-for _var in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS"):
-    os.environ.setdefault(_var, "1")
-
-from service.config import Settings  # noqa: E402
+from service.config import Settings
 
 _settings = Settings.from_env()
 
@@ -43,6 +36,10 @@ worker_tmp_dir = "/tmp"
 # root filesystem is read-only, and nothing should change the worker count of a running container.
 control_socket_disable = True
 limit_request_line = 8190
+# One BLAS/OpenMP thread per worker: the workers are the parallelism. OpenBLAS's own thread pool in
+# forked workers on a 2-core machine made a 201-point response ~6x slower (median 166 ms against 25 ms,
+# measured here). gunicorn sets these in the master before it preloads the app (so before numpy loads).
+raw_env = ["OPENBLAS_NUM_THREADS=1", "OMP_NUM_THREADS=1", "MKL_NUM_THREADS=1"]
 
 
 def prepare_metrics_dir(path: str) -> None:

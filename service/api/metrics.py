@@ -38,7 +38,7 @@ import time
 from flask import Flask, Response, current_app, g, has_app_context, request
 from prometheus_client import (CONTENT_TYPE_LATEST, CollectorRegistry, Counter, Histogram, disable_created_metrics,
                                generate_latest)
-from prometheus_client import multiprocess
+from prometheus_client import multiprocess, values
 
 from service.config import Settings
 
@@ -60,9 +60,9 @@ class ServiceMetrics:
 
     def __init__(self, metrics_dir: str = ""):
         self.metrics_dir = metrics_dir
-        # prometheus_client picks its multi-process value store from the
-        # environment variable when it is imported; the setting must agree.
-        self.multiprocess = bool(metrics_dir) and os.environ.get("PROMETHEUS_MULTIPROC_DIR") == metrics_dir
+        # prometheus_client picks its value store from PROMETHEUS_MULTIPROC_DIR when it is
+        # imported (the same variable as the setting): sum the folder only when it did.
+        self.multiprocess = bool(metrics_dir) and getattr(values.ValueClass, "_multiprocess", False)
         self.registry = CollectorRegistry(auto_describe=True)
         self.requests = Counter("rolloff_http_requests", "HTTP requests answered.",
                                 ("method", "endpoint", "status"), registry=self.registry)
