@@ -103,7 +103,7 @@ def candidates(client, limits: dict) -> list[tuple[str, str, str, dict | None]]:
     return out
 
 
-class _Timeout(Exception):
+class _Timeout(BaseException):  # not an Exception: the app must not turn it into a 500
     pass
 
 
