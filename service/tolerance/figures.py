@@ -40,10 +40,24 @@ MAGNITUDE_FLOOR = 1e-150
 def gain_db(h: np.ndarray) -> np.ndarray:
     """``20 log10 |h|`` in dB, float64, same shape (|h| floored at 1e-150)."""
     a = np.abs(h)
-    np.maximum(a, MAGNITUDE_FLOOR, out=a)
+    if a.size and not a.min() >= MAGNITUDE_FLOOR:      # the floor touches only values below it (or NaN)
+        np.maximum(a, MAGNITUDE_FLOOR, out=a)
     np.log10(a, out=a)
     a *= 20.0
     return a
+
+
+def columns(selected: np.ndarray) -> slice | np.ndarray:
+    """A bool column selection (M,) as a slice when it is one run of columns (a view, not a copy), else as is."""
+    idx = np.flatnonzero(selected)
+    if idx.size and idx[-1] - idx[0] + 1 == idx.size:
+        return slice(int(idx[0]), int(idx[-1]) + 1)
+    return selected
+
+
+def positive_columns(grids: Grids) -> slice | np.ndarray:
+    """The metric points above 0 Hz (the grid is sorted: at most a leading DC point is left out)."""
+    return columns(grids.positive)
 
 
 def reference_gain(g: np.ndarray, grids: Grids) -> np.ndarray:
@@ -52,7 +66,7 @@ def reference_gain(g: np.ndarray, grids: Grids) -> np.ndarray:
     if mask is not None and mask.reference_gain_db is not None:
         return np.full(g.shape[0], float(mask.reference_gain_db))
     if grids.passband_columns is not None:
-        return g[:, grids.passband_columns].max(axis=1)
+        return g[:, columns(grids.passband_columns)].max(axis=1)
     if grids.response in (ResponseType.LOWPASS, ResponseType.BANDSTOP) and grids.metric_hz[0] == 0.0:
         return g[:, 0].copy()
     return g.max(axis=1)
@@ -67,7 +81,7 @@ def _interp(fa, fb, ga, gb, level):
 
 def f3db(g: np.ndarray, ref: np.ndarray, grids: Grids) -> np.ndarray:
     """3 dB frequencies (Hz) per trial: (Tc,) for lowpass/highpass, (Tc, 2) for band responses; NaN when absent."""
-    pos = grids.positive
+    pos = positive_columns(grids)
     f = grids.metric_hz[pos]
     gp = g[:, pos]
     level = (ref - HALF_POWER_DB)[:, None]
@@ -112,20 +126,26 @@ def ripple(g: np.ndarray, grids: Grids) -> np.ndarray | None:
     """Passband ripple (dB) per trial, (Tc,), or None without a passband."""
     if grids.passband_columns is None:
         return None
-    gp = g[:, grids.passband_columns]
+    gp = g[:, columns(grids.passband_columns)]
     return gp.max(axis=1) - gp.min(axis=1)
 
 
 def margins(g: np.ndarray, ref: np.ndarray, grids: Grids) -> np.ndarray:
-    """Worst mask margin (dB) per trial and segment, shape (Tc, S)."""
+    """Worst mask margin (dB) per trial and segment, shape (Tc, S).
+
+    ``max_loss - (ref - g)`` rises and ``(ref - g) - min_loss`` falls with
+    ``g`` (correctly rounded subtraction is monotonic), so their minimum
+    over a segment's points is the value at the segment's smallest
+    (largest) gain -- the same number as the minimum over every point.
+    """
     out = np.empty((g.shape[0], len(grids.segment_columns)))
     for j, (seg, cols) in enumerate(zip(grids.mask.segments, grids.segment_columns)):
-        loss = ref[:, None] - g[:, cols]
+        gs = g[:, columns(cols)]
         m = np.full(g.shape[0], np.inf)
         if seg.max_loss_db is not None:
-            m = np.minimum(m, (seg.max_loss_db - loss).min(axis=1))
+            m = np.minimum(m, seg.max_loss_db - (ref - gs.min(axis=1)))
         if seg.min_loss_db is not None:
-            m = np.minimum(m, (loss - seg.min_loss_db).min(axis=1))
+            m = np.minimum(m, (ref - gs.max(axis=1)) - seg.min_loss_db)
         out[:, j] = m
     return out
 
@@ -135,4 +155,4 @@ def passes(margin: np.ndarray) -> np.ndarray:
     return margin >= -MARGIN_TOLERANCE_DB
 
 
-__all__ = ["gain_db", "reference_gain", "f3db", "ripple", "margins", "passes", "MAGNITUDE_FLOOR"]
+__all__ = ["gain_db", "reference_gain", "f3db", "ripple", "margins", "passes", "columns", "MAGNITUDE_FLOOR"]

@@ -129,11 +129,12 @@ SMALL_ANGLE = 1e-2
 def _phase_delay(hc: np.ndarray, hs: np.ndarray, f: np.ndarray, fs: np.ndarray, nominal: np.ndarray,
                  phase_nominal: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Phase (degrees, float32) and group delay (s, float64), each (Tc, Fb); see the module notes."""
-    q = hc * np.conj(nominal)[None, :]
-    ph = np.angle(q.astype(np.complex64))
+    q32 = np.multiply(hc, np.conj(nominal)[None, :], out=np.empty(hc.shape, dtype=np.complex64))
+    ph = np.angle(q32)                           # the product in float64, rounded to complex64 on output
+    del q32
     ph += phase_nominal.astype(np.float32)[None, :]
     ph *= np.float32(180.0 / np.pi)
-    np.conjugate(hc, out=q)
+    q = np.conjugate(hc)
     np.multiply(hs, q, out=q)                    # H(f(1+d)) conj(H(f))
     x, y = q.real, q.imag
     with np.errstate(divide="ignore", invalid="ignore"):

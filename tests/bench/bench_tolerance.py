@@ -5,13 +5,23 @@ Eighth-order Butterworth lowpass (1 kHz) as four unity-gain Sallen-Key stages
 frequencies 10 Hz ... 100 kHz, lowpass mask (1 dB to 800 Hz, 40 dB from 2 kHz).
 
 Run:  python tests/bench/bench_tolerance.py [--trials 10000] [--spice-trials 500] [--repeat 7] [--big 100000]
+      python tests/bench/bench_tolerance.py --compare BEFORE [--after HEAD] [--rounds 8] [--repeat 5]
 
-Prints: wall time of the whole ``run_tolerance`` (percentiles, metrics,
-sensitivity, worst case and yield) over repeats (median, IQR, min, max, after
-a warm-up), peak traced memory (tracemalloc) and peak RSS of a fresh process
-(resource.getrusage ru_maxrss), the same for ``--big`` trials, and ngspice's
-wall time for ``--spice-trials`` trials of a ``.control`` loop that alters
-every part and reruns ``ac`` (scaled linearly to ``--trials``), with the ratio.
+Prints: wall and CPU time (``time.process_time``) of the whole
+``run_tolerance`` (percentiles, metrics, sensitivity, worst case and yield)
+over repeats (median, IQR, min, max, after a warm-up), peak traced memory
+(tracemalloc) and peak RSS of a fresh process (resource.getrusage
+ru_maxrss), the same for ``--big`` trials, and ngspice's wall time for
+``--spice-trials`` trials of a ``.control`` loop that alters every part and
+reruns ``ac`` (scaled linearly to ``--trials``), with the ratio.  The load
+average is printed with the figures.
+
+``--compare BEFORE`` times two commits in one run: both are extracted with
+``git archive`` (the AFTER tree whole, the BEFORE tree the same except
+``service/circuit`` and ``service/tolerance`` taken from BEFORE), and fresh
+processes of each alternate, round by round, with the default BLAS threads
+and with ``OPENBLAS_NUM_THREADS=1``.  It prints each side's wall and CPU
+times and the per-round ratios before/after (median, IQR, min, max).
 """
 
 from __future__ import annotations
@@ -20,6 +30,7 @@ import argparse
 import json
 import os
 import resource
+import shutil
 import subprocess
 import sys
 import tempfile
@@ -29,7 +40,9 @@ import tracemalloc
 import numpy as np
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
-sys.path.insert(0, ROOT)
+# a --compare child imports the service from the tree it is given
+TREE = sys.argv[sys.argv.index("--tree") + 1] if "--tree" in sys.argv else ROOT
+sys.path.insert(0, TREE)
 
 F = np.logspace(1, 5, 501)
 
@@ -49,17 +62,97 @@ def stats(xs, unit="s") -> str:
     return f"median {med:.3f} {unit}  IQR {q3 - q1:.3f}  min {xs.min():.3f}  max {xs.max():.3f}  (n={xs.size})"
 
 
+def load() -> str:
+    return "load average " + " ".join(f"{x:.2f}" for x in os.getloadavg())
+
+
+def timed_runs(doc, mask, trials: int, repeat: int) -> tuple[list[float], list[float]]:
+    """Wall and CPU times (s) of ``repeat`` whole runs (after the caller's warm-up)."""
+    from service.tolerance import run_tolerance
+    wall, cpu = [], []
+    for _ in range(repeat):
+        t0, c0 = time.perf_counter(), time.process_time()
+        run_tolerance(doc, trials=trials, frequencies_hz=F, mask=mask)
+        wall.append(time.perf_counter() - t0)
+        cpu.append(time.process_time() - c0)
+    return wall, cpu
+
+
+def compare_child(trials: int, repeat: int) -> None:
+    """One side of --compare (tree ``TREE``): warm-up, timed runs, traced peak; print JSON."""
+    from service.tolerance import run_tolerance
+    doc, mask = setup()
+    run_tolerance(doc, trials=200, frequencies_hz=F, mask=mask)
+    wall, cpu = timed_runs(doc, mask, trials, repeat)
+    tracemalloc.start()
+    run_tolerance(doc, trials=trials, frequencies_hz=F, mask=mask)
+    peak = tracemalloc.get_traced_memory()[1]
+    tracemalloc.stop()
+    print(json.dumps({"wall": wall, "cpu": cpu, "peak": peak}))
+
+
+def extract_trees(before: str, after: str, tmp: str) -> tuple[str, str]:
+    """``git archive`` AFTER whole into tmp/after and again into tmp/before with the packages of BEFORE."""
+    trees = {}
+    for name in ("after", "before"):
+        path = os.path.join(tmp, name)
+        os.makedirs(path)
+        subprocess.run(f"git -C {ROOT} archive {after} service tests | tar -x -C {path}", shell=True, check=True)
+        trees[name] = path
+    for pkg in ("service/circuit", "service/tolerance"):
+        shutil.rmtree(os.path.join(trees["before"], pkg))
+        subprocess.run(f"git -C {ROOT} archive {before} {pkg} | tar -x -C {trees['before']}", shell=True, check=True)
+    return trees["before"], trees["after"]
+
+
+def compare(before: str, after: str, rounds: int, repeat: int, trials: int) -> None:
+    """Alternate fresh processes of the two trees; print each side's times and the before/after ratios."""
+    print(f"compare {before} (before) with {after} (after), {rounds} rounds x {repeat} timed runs, "
+          f"{trials} trials x {F.size} frequencies; {load()}")
+    cmd = [sys.executable, os.path.abspath(__file__)]
+    with tempfile.TemporaryDirectory(prefix="bench-compare-") as tmp:
+        tb, ta = extract_trees(before, after, tmp)
+        for blas in ("default", "1"):
+            env = dict(os.environ)
+            env.pop("OPENBLAS_NUM_THREADS", None)
+            if blas == "1":
+                env["OPENBLAS_NUM_THREADS"] = "1"
+            res = {"before": {"wall": [], "cpu": [], "peak": []}, "after": {"wall": [], "cpu": [], "peak": []}}
+            ratio = {"wall": [], "cpu": []}
+            for r in range(rounds):
+                med = {}
+                order = (("before", tb), ("after", ta)) if r % 2 == 0 else (("after", ta), ("before", tb))
+                for side, tree in order:
+                    out = subprocess.run(cmd + ["--compare-child", "--tree", tree, "--trials", str(trials),
+                                                "--repeat", str(repeat)],
+                                         capture_output=True, text=True, env=env, check=True, cwd=tree)
+                    d = json.loads(out.stdout.strip().splitlines()[-1])
+                    for k in ("wall", "cpu"):
+                        res[side][k] += d[k]
+                    res[side]["peak"].append(d["peak"])
+                    med[side] = {k: float(np.median(d[k])) for k in ("wall", "cpu")}
+                for k in ratio:
+                    ratio[k].append(med["before"][k] / med["after"][k])
+            print(f"\n== OPENBLAS_NUM_THREADS={'(unset)' if blas == 'default' else blas}  ({load()})")
+            for side in ("before", "after"):
+                print(f"  {side:6s} wall {stats(res[side]['wall'])}")
+                print(f"  {side:6s} CPU  {stats(res[side]['cpu'])}   peak traced "
+                      f"{max(res[side]['peak']) / 2**20:.0f} MiB")
+            for k in ratio:
+                print(f"  ratio before/after, {k:4s} (per round): {stats(ratio[k], 'x')}")
+
+
 def child(trials: int) -> None:
     """Fresh process: one warm-up, one timed run; print JSON with wall time and ru_maxrss."""
     from service.tolerance import run_tolerance
     doc, mask = setup()
     run_tolerance(doc, trials=100, frequencies_hz=F, mask=mask)
     base = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
-    t0 = time.perf_counter()
+    t0, c0 = time.perf_counter(), time.process_time()
     run_tolerance(doc, trials=trials, frequencies_hz=F, mask=mask)
-    dt = time.perf_counter() - t0
+    dt, dc = time.perf_counter() - t0, time.process_time() - c0
     peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
-    print(json.dumps({"wall_s": dt, "maxrss_mib": peak / 1024, "before_mib": base / 1024}))
+    print(json.dumps({"wall_s": dt, "cpu_s": dc, "maxrss_mib": peak / 1024, "before_mib": base / 1024}))
 
 
 def fresh(trials: int, env_extra: dict | None = None) -> dict:
@@ -110,21 +203,29 @@ def main() -> None:
     ap.add_argument("--repeat", type=int, default=7)
     ap.add_argument("--big", type=int, default=100000)
     ap.add_argument("--child", type=int, default=0)
+    ap.add_argument("--compare", metavar="BEFORE", help="commit to time against --after, in one run")
+    ap.add_argument("--after", default="HEAD")
+    ap.add_argument("--rounds", type=int, default=8)
+    ap.add_argument("--compare-child", action="store_true", help=argparse.SUPPRESS)
+    ap.add_argument("--tree", help=argparse.SUPPRESS)
     a = ap.parse_args()
     if a.child:
         child(a.child)
         return
+    if a.compare_child:
+        compare_child(a.trials, a.repeat)
+        return
+    if a.compare:
+        compare(a.compare, a.after, a.rounds, a.repeat, a.trials)
+        return
     from service.tolerance import run_tolerance
     doc, mask = setup()
     print(f"reference design, {a.trials} trials x {F.size} frequencies, OPENBLAS_NUM_THREADS="
-          f"{os.environ.get('OPENBLAS_NUM_THREADS', '(unset)')}, load average {os.getloadavg()[0]:.2f}")
+          f"{os.environ.get('OPENBLAS_NUM_THREADS', '(unset)')}, {load()}")
     run_tolerance(doc, trials=200, frequencies_hz=F, mask=mask)
-    times = []
-    for _ in range(a.repeat):
-        t0 = time.perf_counter()
-        run_tolerance(doc, trials=a.trials, frequencies_hz=F, mask=mask)
-        times.append(time.perf_counter() - t0)
-    print("run_tolerance in-process:", stats(times))
+    times, cpu = timed_runs(doc, mask, a.trials, a.repeat)
+    print("run_tolerance in-process: wall", stats(times))
+    print("run_tolerance in-process: CPU ", stats(cpu), f"({load()})")
     tracemalloc.start()
     run_tolerance(doc, trials=a.trials, frequencies_hz=F, mask=mask)
     peak = tracemalloc.get_traced_memory()[1]
@@ -132,7 +233,7 @@ def main() -> None:
     print(f"  peak traced memory {peak / 2**20:.1f} MiB")
     for label, env in (("default BLAS threads", None), ("OPENBLAS_NUM_THREADS=1", {"OPENBLAS_NUM_THREADS": "1"})):
         rs = [fresh(a.trials, env) for _ in range(3)]
-        print(f"  fresh process ({label}): wall {stats([r['wall_s'] for r in rs])}; "
+        print(f"  fresh process ({label}): wall {stats([r['wall_s'] for r in rs])}; CPU {stats([r['cpu_s'] for r in rs])}; "
               f"ru_maxrss {max(r['maxrss_mib'] for r in rs):.0f} MiB (after import+warm-up "
               f"{min(r['before_mib'] for r in rs):.0f} MiB)")
     if a.big:
