@@ -99,9 +99,14 @@ class GridEvaluator:
 
         With ``conjugate``, the values of the complex conjugates.
         """
-        t, n = coef.shape
         if out is None:
-            out = np.empty((t, 2, self.size))
+            out = np.empty((coef.shape[0], 2, self.size))
+        self.parts(coef, out[:, 0], out[:, 1], conjugate)
+        return out
+
+    def parts(self, coef: np.ndarray, re: np.ndarray, im: np.ndarray, conjugate: bool = False) -> None:
+        """Real and imaginary parts of the polynomials in the rows of ``coef`` (T, n) into ``re``, ``im`` (T, F)."""
+        t, n = coef.shape
         half = (n + 1) // 2
         even = coef[:, 0::2]
         odd = np.zeros((t, half))
@@ -110,20 +115,19 @@ class GridEvaluator:
         width = max(8, min(PRODUCT_COLUMNS, PRODUCT_WORK // (TILE_ROWS * half)) // 8 * 8)
         ce = np.zeros((TILE_ROWS, half))
         co = np.zeros((TILE_ROWS, half))
-        res = np.empty((TILE_ROWS, 2, self.size))
+        pad = np.empty((2, TILE_ROWS, self.size))
         for t0 in range(0, t, TILE_ROWS):
             t1 = min(t, t0 + TILE_ROWS)
             k = t1 - t0
             ce[:k], ce[k:] = even[t0:t1], 0.0
             co[:k], co[k:] = odd[t0:t1], 0.0
-            dst = out[t0:t1] if k == TILE_ROWS else res
+            dr, di = (re[t0:t1], im[t0:t1]) if k == TILE_ROWS else (pad[0], pad[1])
             for f0 in range(0, self.size, width):
                 f1 = min(self.size, f0 + width)
-                np.matmul(ce, te[:, f0:f1], out=dst[:, 0, f0:f1])
-                np.matmul(co, to[:, f0:f1], out=dst[:, 1, f0:f1])
+                np.matmul(ce, te[:, f0:f1], out=dr[:, f0:f1])
+                np.matmul(co, to[:, f0:f1], out=di[:, f0:f1])
             if k < TILE_ROWS:
-                out[t0:t1] = res[:k]
-        return out
+                re[t0:t1], im[t0:t1] = pad[0, :k], pad[1, :k]
 
     def values(self, coef: np.ndarray) -> np.ndarray:
         """Complex values, shape (T, F), of the polynomials in the rows of ``coef`` (T, n)."""
@@ -152,16 +156,16 @@ class GridEvaluator:
             den = den / np.where(zero, 1.0, a)[:, None]
             zero = zero if zero.any() else None
         nb = min(t, self.block)
-        dbuf = np.empty((nb, 2, self.size))
+        dbuf = np.empty((2, nb, self.size))          # parts in separate planes: the quotient runs contiguous
         nbuf = None if const else np.empty((nb, 2, self.size))
         tmp = np.empty((4, nb, self.size))
         for t0 in range(0, t, self.block):
             t1 = min(t, t0 + self.block)
             k = t1 - t0
-            d = self.planar(den[t0:t1], dbuf[:k], conjugate=True)
+            self.parts(den[t0:t1], dbuf[0, :k], dbuf[1, :k], conjugate=True)
             n = None if const else self.planar(num[t0:t1], nbuf[:k])
             o = out[t0:t1]
-            _by_conjugate(n, d[:, 0], d[:, 1], o.real, o.imag, tmp[:, :k])
+            _by_conjugate(n, dbuf[0, :k], dbuf[1, :k], o.real, o.imag, tmp[:, :k])
         if zero is not None:
             out[zero] = 0.0
         return out
@@ -171,8 +175,9 @@ def _by_conjugate(n: np.ndarray | None, c: np.ndarray, ec: np.ndarray, out_re: n
                   tmp: np.ndarray) -> None:
     """``N/D`` with ``conj(D) = c + j ec`` (T, F) and ``N`` planar (T, 2, F) or None (``N = 1``); see the module notes.
 
-    ``N conj(D) r`` with ``r = 1/|D|^2``, the numerator's parts scaled by ``r``
-    first: ``(a r c - b r ec) + j (a r ec + b r c)``.
+    ``N = 1``: ``(c + j ec)/|D|^2``.  Otherwise ``N conj(D) r`` with
+    ``r = 1/|D|^2``, the numerator's parts scaled by ``r`` first:
+    ``(a r c - b r ec) + j (a r ec + b r c)``.
     """
     mag2, r, ar, br = tmp
     np.multiply(c, c, out=mag2)
@@ -180,11 +185,11 @@ def _by_conjugate(n: np.ndarray | None, c: np.ndarray, ec: np.ndarray, out_re: n
     mag2 += r
     safe = bool(mag2.min() > SAFE_MIN) and bool(mag2.max() < SAFE_MAX)
     with contextlib.nullcontext() if safe else np.errstate(all="ignore"):
-        np.divide(1.0, mag2, out=r)
-        if n is None:
-            np.multiply(c, r, out=out_re)
-            np.multiply(ec, r, out=out_im)
+        if n is None:                        # conj(D)/|D|^2
+            np.divide(c, mag2, out=out_re)
+            np.divide(ec, mag2, out=out_im)
         else:
+            np.divide(1.0, mag2, out=r)
             np.multiply(n[:, 0], r, out=ar)
             np.multiply(n[:, 1], r, out=br)
             np.multiply(ar, c, out=out_re)
