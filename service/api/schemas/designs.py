@@ -252,13 +252,13 @@ class DesignDocumentSchema(StrictSchema):
         "description": "The passband/stopband fields the design was made for (redo the summary)."})
     settings = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.Raw(allow_none=True), allow_none=True,
                               metadata={"description": "Realization settings (ranges, series, GBW error ...)."})
-    bom = ma.fields.Raw(metadata={"description": "Ignored on input (recomputed)."})
-    netlist = ma.fields.Raw(metadata={"description": "Ignored on input (recomputed)."})
-    summary = ma.fields.Raw(metadata={"description": "Ignored on input (recomputed)."})
-    warnings = ma.fields.Raw(metadata={"description": "Ignored on input (recomputed)."})
-    overall_gain = ma.fields.Raw(metadata={"description": "Ignored on input (recomputed)."})
-    output_peak_gain_db = ma.fields.Raw(metadata={"description": "Ignored on input (recomputed)."})
-    service_version = ma.fields.Raw(metadata={"description": "Ignored on input."})
+    bom = ma.fields.Raw(allow_none=True, metadata={"description": "Ignored on input (recomputed)."})
+    netlist = ma.fields.Raw(allow_none=True, metadata={"description": "Ignored on input (recomputed)."})
+    summary = ma.fields.Raw(allow_none=True, metadata={"description": "Ignored on input (recomputed)."})
+    warnings = ma.fields.Raw(allow_none=True, metadata={"description": "Ignored on input (recomputed)."})
+    overall_gain = ma.fields.Raw(allow_none=True, metadata={"description": "Ignored on input (recomputed)."})
+    output_peak_gain_db = ma.fields.Raw(allow_none=True, metadata={"description": "Ignored on input (recomputed)."})
+    service_version = ma.fields.Raw(allow_none=True, metadata={"description": "Ignored on input."})
 
     DERIVED = ("bom", "netlist", "summary", "warnings", "overall_gain", "output_peak_gain_db", "service_version")
 
