@@ -13,11 +13,11 @@ ch. 9, "Symbolic analysis by polynomial interpolation" and Singhal and Vlach,
 The variable is scaled, ``sigma = s / w_ref``, for conditioning.
 
 Coefficients cost a few tiny determinants per trial; the response on
-``(T, F)`` is then Horner's scheme on the even and odd parts of each
-polynomial and one division per point, element by element
-(:mod:`.polyeval`), so a trial's response does not depend on the batch it is
-computed in.  Stages in cascade are merged into one numerator and
-denominator by multiplying their coefficient rows per trial.
+``(T, F)`` is then two real products per polynomial (its even and odd parts
+times a table of the grid's powers, in fixed-shape tiles) and one division
+per point (:mod:`.polyeval`), so a trial's response does not depend on the
+batch it is computed in.  Stages in cascade are merged into one numerator
+and denominator by multiplying their coefficient rows per trial.
 """
 
 from __future__ import annotations
@@ -248,8 +248,8 @@ def evaluate_chunk(reps: dict[int, object], output_col: int, ev: GridEvaluator, 
                    out: np.ndarray) -> None:
     """Write the response of unknown ``output_col`` for trials ``sl`` into ``out`` (Tc, F) complex.
 
-    Element by element (:mod:`.polyeval`): a trial's values do not depend on
-    the other trials of ``sl``.
+    A trial's values do not depend on the other trials of ``sl``
+    (:mod:`.polyeval`).
     """
     r = reps[output_col]
     if is_single_rational(reps, output_col):

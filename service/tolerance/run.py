@@ -91,8 +91,8 @@ def run_tolerance(document: dict, *, trials: int = DEFAULT_TRIALS, seed: int = 0
     max_trials, max_frequency_points : int
         Configured limits (``ROLLOFF_MAX_TRIALS``, ``ROLLOFF_MAX_FREQUENCY_POINTS``).
     chunk_trials : int or None
-        Trials processed at once (rounded up to whole engine tiles); the
-        numbers do not depend on it.
+        Trials processed at once (at least 64; bounded by the memory limit);
+        the numbers do not depend on it.
     store_budget_bytes : int or None
         Bound of the per-frequency stores (default 160 MiB); larger runs are
         split into frequency blocks.  Numbers are identical for a given
@@ -245,7 +245,7 @@ def run_tolerance(document: dict, *, trials: int = DEFAULT_TRIALS, seed: int = 0
         "gaussian": "tolerance read as 3 sigma, deviates truncated at 6 sigma",
         "percentiles": "Hyndman and Fan (1996) definition 7",
         "mask_check": "on the caller's grid, the mask edges and the dense 3 dB windows",
-        "engine_tile_trials": sweep.tile,
+        "engine_tile_trials": sweep.tile,          # default trials per chunk (speed only)
         "frequency_blocks": sweep.blocks,
         "reference_temperature_c": REFERENCE_TEMPERATURE_C,
     }

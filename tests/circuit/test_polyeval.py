@@ -1,4 +1,4 @@
-"""Element-by-element evaluation on the grid: agreement with other evaluations, layout independence."""
+"""Polynomials and ratios on the grid: agreement with three other evaluations, layout independence."""
 
 from __future__ import annotations
 
@@ -31,6 +31,22 @@ def _vandermonde_values(coef: np.ndarray, omega: np.ndarray, w_ref: float) -> np
     return np.ascontiguousarray(coef @ v).view(np.complex128)
 
 
+def _horner_values(coef: np.ndarray, omega: np.ndarray, w_ref: float) -> np.ndarray:
+    """Horner's recurrence on the even and odd parts in v = -x^2, one numpy pass per step (element by element)."""
+    x = omega / w_ref
+    v = -x * x
+    even, odd = coef[:, 0::2], coef[:, 1::2]
+    re = np.broadcast_to(even[:, -1:], (coef.shape[0], x.size)).copy()
+    for m in range(even.shape[1] - 2, -1, -1):
+        re = re * v + even[:, m:m + 1]
+    im = np.zeros_like(re)
+    if odd.shape[1]:
+        im[...] = odd[:, -1:]
+        for m in range(odd.shape[1] - 2, -1, -1):
+            im = im * v + odd[:, m:m + 1]
+    return re + 1j * (im * x)
+
+
 def _scale(coef: np.ndarray, omega: np.ndarray, w_ref: float) -> np.ndarray:
     """sum_k |c_k| |sigma|^k: the size of the terms, against which rounding is measured (T, F)."""
     x = omega / w_ref
@@ -38,18 +54,32 @@ def _scale(coef: np.ndarray, omega: np.ndarray, w_ref: float) -> np.ndarray:
 
 
 @settings(max_examples=60, deadline=None)
-@given(degree=st.integers(min_value=0, max_value=24), seed=st.integers(min_value=0, max_value=2**32 - 1))
-def test_horner_agrees_with_the_vandermonde_product_and_polyval(degree, seed):
+@given(degree=st.integers(min_value=0, max_value=24), seed=st.integers(min_value=0, max_value=2**32 - 1),
+       trials=st.integers(min_value=1, max_value=40))
+def test_values_agree_with_vandermonde_horner_and_polyval(degree, seed, trials):
     rng = np.random.default_rng(seed)
-    coef = rng.standard_normal((7, degree + 1))
+    coef = rng.standard_normal((trials, degree + 1))
     ev = GridEvaluator(OMEGA, W_REF)
     got = ev.values(coef)
     scale = _scale(coef, OMEGA, W_REF)
-    old = _vandermonde_values(coef, OMEGA, W_REF)
+    old = _vandermonde_values(coef, OMEGA, W_REF)       # the engine's former evaluation
+    horner = _horner_values(coef, OMEGA, W_REF)
     # source: numpy.polynomial.polynomial.polyval (reference library), complex Horner in sigma
     ref = np.stack([np.polynomial.polynomial.polyval(1j * OMEGA / W_REF, c) for c in coef])
-    assert np.all(np.abs(got - old) <= 1e-12 * scale)
-    assert np.all(np.abs(got - ref) <= 1e-12 * scale)
+    for other in (old, horner, ref):
+        assert np.all(np.abs(got - other) <= 1e-12 * scale)
+
+
+def test_wide_grid_uses_several_column_blocks_with_the_same_bits():
+    f = np.geomspace(1.0, 1e6, 5003)                     # wider than one product's column block
+    omega, w_ref = 2 * np.pi * f, reference_omega(f)
+    rng = np.random.default_rng(8)
+    coef = rng.uniform(0.5, 1.5, (21, 25))
+    ev = GridEvaluator(omega, w_ref)
+    got = ev.values(coef)
+    assert np.all(np.abs(got - _vandermonde_values(coef, omega, w_ref)) <= 1e-12 * _scale(coef, omega, w_ref))
+    assert np.array_equal(ev.values(coef[5:6]), got[5:6])
+    assert np.array_equal(ev.values(coef[::-1])[::-1], got)
 
 
 @pytest.mark.parametrize("numerator_degree", [0, 3])
