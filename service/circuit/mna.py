@@ -24,6 +24,11 @@ from .errors import CircuitError
 from .netlist import GROUND, Circuit, ElementKind
 
 
+def _nonzero(v) -> bool:
+    """Whether a stamp value (float, or ndarray over trials) is non-zero in any trial (NaN counts as non-zero)."""
+    return bool(v.any()) if isinstance(v, np.ndarray) else v != 0
+
+
 @dataclass
 class MnaSystem:
     """Structure and stamp list of a circuit's MNA system.
@@ -58,7 +63,7 @@ class MnaSystem:
         """Structural non-zero pattern of ``G + s*C``, bool array of shape (n, n)."""
         pat = np.zeros((self.size, self.size), dtype=bool)
         for _, r, c, v in self.entries:
-            if np.any(np.asarray(v) != 0):
+            if _nonzero(v):
                 pat[r, c] = True
         return pat
 

@@ -28,7 +28,7 @@ import numpy as np
 
 from .blocks import RHS, Block, degree_bounds
 from .errors import CircuitError
-from .mna import MnaSystem
+from .mna import MnaSystem, _nonzero
 from .polyeval import GridEvaluator, multiply, quotient
 
 THETA = 0.3183098861837907
@@ -48,7 +48,7 @@ def _patterns(system: MnaSystem) -> tuple[np.ndarray, np.ndarray]:
     g = np.zeros((system.size, system.size), dtype=bool)
     c = np.zeros_like(g)
     for m, r, col, v in system.entries:
-        if np.any(np.asarray(v) != 0):
+        if _nonzero(v):
             (g if m == 0 else c)[r, col] = True
     return g, c
 

@@ -68,6 +68,8 @@ def _equilibrate(a: np.ndarray, b: np.ndarray, sweeps: int = 6) -> tuple[np.ndar
         c = 2.0 ** np.round(np.log2(c))
         a /= c[None, :]
         b /= c[None, :]
+        if np.all(r == 1.0) and np.all(c == 1.0):
+            break       # a fixed point: further sweeps divide by 1
     return a, b
 
 
