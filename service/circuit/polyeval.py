@@ -21,17 +21,20 @@ column blocks), so every trial goes through the same kernel, each output
 being one chain of multiply-adds over ``k`` in its own SIMD lane.  A trial's
 numbers then do not depend on the other trials, their number, or the
 chunking (the tests check this bit for bit, a trial alone against the same
-trial in batches).  The products stay below OpenBLAS's threading threshold
-(``m n k`` <= 4 * 65536, :data:`PRODUCT_WORK`), so their speed does not
-depend on the BLAS thread setting.  An element-by-element Horner recurrence
-gives the same independence with numpy ufuncs only, but measured 1.8-2.5x
-slower here (one pass over memory per multiply and per add).
+trial in batches).  The products stay at or below OpenBLAS's threading
+threshold (``m n k <= 4 * 65536``, :data:`PRODUCT_WORK`; OpenBLAS
+interface/gemm.c, from memory), so they run on one thread whatever the BLAS
+thread setting (the benchmarks measure both settings).  An element-by-element
+Horner recurrence gives the same independence with numpy ufuncs only, but
+measured 1.7-1.9x slower for the evaluation here (1.3-1.5x for a whole engine
+call): one pass over memory per multiply and per add.
 
 A quotient ``N/D`` is ``N conj(D) / |D|^2``: ``conj(D)`` is evaluated
-directly (the odd part's sign flipped), ``r = 1/(c^2 + d^2)`` once, and the
-numerator's parts are scaled by ``r`` before they meet ``conj(D)``, so no
-intermediate exceeds ``|N|/|D|``; a constant numerator is folded into the
-denominator's coefficients (``a/D = 1/(D/a)``).  Points where ``|D|^2``
+directly (the odd part's sign flipped).  A constant numerator is folded into
+the denominator's coefficients (``a/D = 1/(D/a)``) and the result is
+``conj(D)`` divided by ``c^2 + d^2``; otherwise ``r = 1/(c^2 + d^2)`` once,
+and the numerator's parts are scaled by ``r`` before they meet ``conj(D)``,
+so no intermediate exceeds ``|N|/|D|``.  Points where ``|D|^2``
 leaves the safe range of float64 fall back to numpy's complex division
 (Smith's algorithm) one element at a time.  These steps are element-wise
 numpy operations (correctly rounded, the same for every element).
