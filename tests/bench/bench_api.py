@@ -5,15 +5,20 @@ median <= 10 ms; POST /v1/approximations/compare over all families <= 50 ms;
 POST /v1/designs of an 8th-order elliptic lowpass (auto topology, E96/E12) <= 50 ms.
 
 Run: python tests/bench/bench_api.py [--repeat N]
+(with one BLAS thread, as the service's gunicorn workers run, unless OPENBLAS_NUM_THREADS is set)
 """
 
 from __future__ import annotations
 
-import argparse
-import statistics
-import time
+import os
 
-from service import create_app
+os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")  # before numpy is imported
+
+import argparse  # noqa: E402
+import statistics  # noqa: E402
+import time  # noqa: E402
+
+from service import create_app  # noqa: E402
 
 BANDPASS = {"response": "bandpass", "family": "elliptic", "passband_hz": ["35kHz", "45kHz"],
             "stopband_hz": ["30kHz", "52kHz"], "passband_ripple_db": 0.5, "stopband_attenuation_db": 60}
