@@ -27,6 +27,8 @@ per (trial, frequency).
 
 from __future__ import annotations
 
+import copy
+
 import numpy as np
 
 from .blocks import decompose
@@ -129,6 +131,7 @@ class PreparedAc:
         if method == "staged":
             blocks = decompose(system, col) if blocks is None else blocks
             w_ref = reference_omega(f)
+            self._w_ref = w_ref
             plans = plan_blocks(system, blocks)
             coef_chunk = max(1, min(self.trials, limit // max(1, coefficient_bytes_per_trial(plans))))
             self._reps = stage_representations(system, plans, w_ref, coef_chunk)
@@ -137,6 +140,34 @@ class PreparedAc:
             self._tchunk = max(1, min(limit // per, max(min(limit, STAGED_CHUNK_BYTES) // per, MIN_CHUNK_TRIALS)))
             # a single rational at the output is evaluated in cache-sized blocks by the evaluator itself
             self._chunked = not is_single_rational(self._reps, col)
+
+    def on_grid(self, frequency_hz: np.ndarray) -> "PreparedAc":
+        """The same prepared circuit on another frequency grid, reusing the per-trial coefficients.
+
+        For refining a metric between grid points: the staged coefficients (the
+        costly part) were computed once, scaled by this grid's reference
+        frequency; only their evaluation is new. The full method solves again.
+
+        Parameters
+        ----------
+        frequency_hz : array_like of float, shape (F',)
+            Hz, finite and >= 0.
+
+        Returns
+        -------
+        PreparedAc
+        """
+        f = _check_frequency(frequency_hz)
+        if self.method != "staged":
+            return PreparedAc(self._system, self._col, f, self.method, self._limit)
+        other = copy.copy(self)
+        other.frequency_hz = f
+        other._omega = 2.0 * np.pi * f
+        other._ev = GridEvaluator(other._omega, self._w_ref)
+        per = bytes_per_trial(self._reps, f.size)
+        other._tchunk = max(1, min(self._limit // per,
+                                   max(min(self._limit, STAGED_CHUNK_BYTES) // per, MIN_CHUNK_TRIALS)))
+        return other
 
     def response(self, trials: slice | None = None, out: np.ndarray | None = None) -> np.ndarray:
         """Complex ``V(output)/V(input)`` of the trials in ``trials`` (default all).

@@ -134,10 +134,17 @@ class CircuitSystem:
 
     def evaluate(self, frequency_hz: np.ndarray) -> np.ndarray:
         """H(j*2*pi*f) from the AC solution, complex128 of the shape of ``frequency_hz``."""
-        from service.circuit import ac_response
+        from service.circuit import prepare_ac
 
         f = np.asarray(frequency_hz, dtype=float)
-        h = np.asarray(ac_response(self.circuit, f.ravel(), output=self.output), dtype=complex)
+        prepared = self._cache.get("prepared")
+        if prepared is None:
+            # the first grid prepares the circuit (its per-stage coefficients); later grids, such as the
+            # refinement of metrics between grid points, only evaluate them again
+            prepared = self._cache["prepared"] = prepare_ac(self.circuit, f.ravel(), output=self.output)
+        else:
+            prepared = prepared.on_grid(f.ravel())
+        h = np.asarray(prepared.response(), dtype=complex)
         if h.ndim == 2:
             h = h[0]
         return h.reshape(f.shape)
