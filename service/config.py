@@ -73,8 +73,8 @@ SETTINGS: tuple[Setting, ...] = (
             "Most time points of a step/impulse response.", limit=True),
     Setting("max_trials", "ROLLOFF_MAX_TRIALS", _positive_int, 100_000,
             "Most Monte Carlo trials of one tolerance request.", limit=True),
-    Setting("max_work", "ROLLOFF_MAX_WORK", _positive_int, 30_000_000,
-            "Budget of one tolerance request: trials x frequency points x (2 + the sum over stages of (op-amps "
+    Setting("max_work", "ROLLOFF_MAX_WORK", _positive_int, 32_000_000,
+            "Budget of one tolerance request: trials x frequency points (at least 400) x (2 + the sum over stages of (op-amps "
             "in the stage)^2); about 2 s of CPU at the default.", limit=True),
     Setting("max_stock_entries", "ROLLOFF_MAX_STOCK_ENTRIES", _positive_int, 2_000,
             "Most entries of a caller's stock list.", limit=True),
@@ -110,7 +110,7 @@ class Settings:
     max_frequency_points: int = 10_000
     max_time_points: int = 10_000
     max_trials: int = 100_000
-    max_work: int = 30_000_000
+    max_work: int = 32_000_000
     max_stock_entries: int = 2_000
     memory_limit_bytes: int = 512 * MIB
     api_keys: tuple[str, ...] = field(default=(), repr=False)

@@ -202,6 +202,10 @@ def response_system(args: dict, settings: Settings):
     return CircuitSystem(circuit), roots, design.response
 
 
+#: Frequencies every trial is evaluated at whatever the caller's grid: the per-trial metric grid (dense
+#: windows around the -3 dB frequencies, the mask edges, DC) of service.tolerance is a few hundred points.
+METRIC_GRID_POINTS = 400
+
 #: Cost of one trial at one frequency apart from the circuit (three percentile stores, per-trial
 #: figures), in the units of :func:`stage_cost_weight`: measured, 1-stage designs at 100,000 trials.
 PER_TRIAL_POINT_WEIGHT = 2
@@ -232,10 +236,12 @@ def tolerance_analysis(args: dict, settings: Settings):
     grid = frequencies_of(args.get("frequencies"), roots, settings)
     points = len(resolve_frequencies(grid, settings.max_frequency_points))
     weight = stage_cost_weight(document) + PER_TRIAL_POINT_WEIGHT
+    points = max(points, METRIC_GRID_POINTS)
     work = args["trials"] * points * weight
     if work > settings.max_work:
         raise LimitExceeded(
-            f"the Monte Carlo work trials x frequency points x (stage weight + {PER_TRIAL_POINT_WEIGHT}) = {args['trials']} x {points} x "
+            f"the Monte Carlo work trials x frequency points (at least {METRIC_GRID_POINTS}) x (stage weight + "
+            f"{PER_TRIAL_POINT_WEIGHT}) = {args['trials']} x {points} x "
             f"{weight} = {work:,} exceeds the limit max_work = {settings.max_work:,} (set by ROLLOFF_MAX_WORK); "
             f"use at most {max(1, settings.max_work // (points * weight)):,} trials at {points} points",
             limit="max_work", value=settings.max_work, setting="ROLLOFF_MAX_WORK", field="trials")

@@ -76,8 +76,14 @@ def candidates(client, limits: dict) -> list[tuple[str, str, str, dict | None]]:
     doc = r.get_json() if r.status_code == 200 else None
     small = client.post("/v1/designs", json={"response": "lowpass", "family": "butterworth", "order": 2,
                                              "cutoff_hz": 1000}).get_json()
+    from service.api.dispatch import METRIC_GRID_POINTS, PER_TRIAL_POINT_WEIGHT, stage_cost_weight
+
+    def weight(document):  # the work units per trial and point the service charges (service/api/dispatch.py)
+        return stage_cost_weight(document) + PER_TRIAL_POINT_WEIGHT
+
     if doc is not None:
         stages = len(doc["stages"])
+        w = weight(doc)
         out += [
             ("designs/evaluate: the max-order document", "POST", "/v1/designs/evaluate", doc),
             ("responses: max-order design, max frequency and time points", "POST", "/v1/responses",
@@ -86,18 +92,22 @@ def candidates(client, limits: dict) -> list[tuple[str, str, str, dict | None]]:
             (f"tolerance: max-order design ({stages} stages), trials x points at the work budget", "POST",
              "/v1/tolerance", {"design": doc, "trials": max_trials, "seed": 1,
                                "frequencies": {"start_hz": 1e4, "stop_hz": 1e5,
-                                               "points": max(2, max_work // (max_trials * stages))}}),
+                                               "points": max(2, max_work // (max_trials * w))}}),
             ("tolerance: max-order design, 1000 trials, max points within the budget", "POST", "/v1/tolerance",
              {"design": doc, "trials": 1000, "seed": 1,
               "frequencies": {"start_hz": 1e4, "stop_hz": 1e5,
-                              "points": min(max_points, max_work // (1000 * stages))}}),
+                              "points": min(max_points, max_work // (1000 * w))}}),
+            ("tolerance: max-order design, points 2, the most trials within the budget", "POST", "/v1/tolerance",
+             {"design": doc, "trials": min(max_trials, max_work // (METRIC_GRID_POINTS * w)), "seed": 1,
+              "frequencies": {"start_hz": 1e4, "stop_hz": 1e5, "points": 2}}),
         ]
     out += [
         ("tolerance: 1-stage design, max trials, points at the work budget", "POST", "/v1/tolerance",
          {"design": small, "trials": max_trials, "seed": 1,
-          "frequencies": {"start_hz": 10, "stop_hz": 1e5, "points": min(max_points, max_work // max_trials)}}),
+          "frequencies": {"start_hz": 10, "stop_hz": 1e5,
+                          "points": min(max_points, max_work // (max_trials * weight(small)))}}),
         ("tolerance: 1-stage design, trials at the budget, max points", "POST", "/v1/tolerance",
-         {"design": small, "trials": min(max_trials, max_work // max_points), "seed": 1,
+         {"design": small, "trials": min(max_trials, max_work // (max_points * weight(small))), "seed": 1,
           "frequencies": {"start_hz": 10, "stop_hz": 1e5, "points": max_points}}),
     ]
     return out

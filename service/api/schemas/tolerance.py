@@ -57,7 +57,7 @@ class ToleranceRequestSchema(StrictSchema):
     design = ma.fields.Nested(DesignDocumentSchema, required=True, metadata={
         "description": "A design document from /v1/designs (each part's tolerance, or 1 % R / 5 % C)."})
     trials = StrictInteger(load_default=1000, validate=ma.validate.Range(min=1, max=100_000), metadata={
-        "description": "Monte Carlo trials, at most ROLLOFF_MAX_TRIALS; trials x frequency points x (2 + the sum "
+        "description": "Monte Carlo trials, at most ROLLOFF_MAX_TRIALS; trials x frequency points (at least 400) x (2 + the sum "
                        "over stages of (op-amps in the stage)^2) at most ROLLOFF_MAX_WORK."})
     seed = StrictInteger(load_default=0, validate=ma.validate.Range(min=0, max=2**63 - 1), metadata={
         "description": "Same request and seed, same numbers."})

@@ -34,7 +34,7 @@ the first N boards' part values so a failing one can be rebuilt in a simulator.
 
 The same request and `seed` give the same numbers. `format=csv`: percentiles
 per frequency; `format=svg`: the magnitude envelope with the mask. At most
-ROLLOFF_MAX_TRIALS trials, and trials × frequency points × (2 + the sum over
+ROLLOFF_MAX_TRIALS trials, and trials × frequency points (at least 400) × (2 + the sum over
 stages of (op-amps in the stage)²) at most ROLLOFF_MAX_WORK (about 2 s of CPU; a
 problem over the limit says how many trials fit).
 
