@@ -30,7 +30,6 @@ import argparse
 import json
 import os
 import resource
-import shutil
 import subprocess
 import sys
 import tempfile
@@ -38,6 +37,8 @@ import time
 import tracemalloc
 
 import numpy as np
+
+from benchlib import extract_trees, load  # noqa: E402  (tests/bench/benchlib.py)
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 # a --compare child imports the engine from the tree it is given
@@ -55,10 +56,6 @@ def stats(xs, unit: str = " s") -> str:
     q1, med, q3 = np.percentile(xs, [25, 50, 75])
     return (f"median {med:.4f}{unit}  IQR {q3 - q1:.4f}{unit}  min {xs.min():.4f}{unit}  max {xs.max():.4f}{unit}  "
             f"(n={xs.size})")
-
-
-def load() -> str:
-    return "load average " + " ".join(f"{x:.2f}" for x in os.getloadavg())
 
 
 def time_engine(ckt, repeat: int, method: str = "auto"):
@@ -120,20 +117,6 @@ def child(model: str, trials: int, repeat: int) -> None:
     ckt = butterworth8_sallen_key(MODELS[model], trials=trials, seed=2024)
     wall, cpu, peak, _ = time_engine(ckt, repeat)
     print(json.dumps({"wall": wall, "cpu": cpu, "peak": peak}))
-
-
-def extract_trees(before: str, after: str, tmp: str) -> tuple[str, str]:
-    """``git archive`` AFTER whole into tmp/after and again into tmp/before with the engine packages of BEFORE."""
-    trees = {}
-    for name in ("after", "before"):
-        path = os.path.join(tmp, name)
-        os.makedirs(path)
-        subprocess.run(f"git -C {ROOT} archive {after} service tests | tar -x -C {path}", shell=True, check=True)
-        trees[name] = path
-    for pkg in ("service/circuit", "service/tolerance"):
-        shutil.rmtree(os.path.join(trees["before"], pkg))
-        subprocess.run(f"git -C {ROOT} archive {before} {pkg} | tar -x -C {trees['before']}", shell=True, check=True)
-    return trees["before"], trees["after"]
 
 
 def compare(before: str, after: str, rounds: int, repeat: int, trials: int, cmd: list[str]) -> None:

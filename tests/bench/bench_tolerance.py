@@ -30,7 +30,6 @@ import argparse
 import json
 import os
 import resource
-import shutil
 import subprocess
 import sys
 import tempfile
@@ -38,6 +37,8 @@ import time
 import tracemalloc
 
 import numpy as np
+
+from benchlib import extract_trees, load  # noqa: E402  (tests/bench/benchlib.py)
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 # a --compare child imports the service from the tree it is given
@@ -60,10 +61,6 @@ def stats(xs, unit="s") -> str:
     xs = np.asarray(xs)
     q1, med, q3 = np.percentile(xs, [25, 50, 75])
     return f"median {med:.3f} {unit}  IQR {q3 - q1:.3f}  min {xs.min():.3f}  max {xs.max():.3f}  (n={xs.size})"
-
-
-def load() -> str:
-    return "load average " + " ".join(f"{x:.2f}" for x in os.getloadavg())
 
 
 def timed_runs(doc, mask, trials: int, repeat: int) -> tuple[list[float], list[float]]:
@@ -89,20 +86,6 @@ def compare_child(trials: int, repeat: int) -> None:
     peak = tracemalloc.get_traced_memory()[1]
     tracemalloc.stop()
     print(json.dumps({"wall": wall, "cpu": cpu, "peak": peak}))
-
-
-def extract_trees(before: str, after: str, tmp: str) -> tuple[str, str]:
-    """``git archive`` AFTER whole into tmp/after and again into tmp/before with the packages of BEFORE."""
-    trees = {}
-    for name in ("after", "before"):
-        path = os.path.join(tmp, name)
-        os.makedirs(path)
-        subprocess.run(f"git -C {ROOT} archive {after} service tests | tar -x -C {path}", shell=True, check=True)
-        trees[name] = path
-    for pkg in ("service/circuit", "service/tolerance"):
-        shutil.rmtree(os.path.join(trees["before"], pkg))
-        subprocess.run(f"git -C {ROOT} archive {before} {pkg} | tar -x -C {trees['before']}", shell=True, check=True)
-    return trees["before"], trees["after"]
 
 
 def compare(before: str, after: str, rounds: int, repeat: int, trials: int) -> None:
