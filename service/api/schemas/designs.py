@@ -185,6 +185,11 @@ class OpAmpUseSchema(StrictSchema):
     part_id = ma.fields.String(allow_none=True, validate=_ID)
 
 
+def _object_or_null(value) -> None:
+    if value is not None and not isinstance(value, dict):
+        raise ma.ValidationError("expected an object or null")
+
+
 _FIGURES = dict(keys=ma.fields.String(), values=ma.fields.Float(allow_none=True), allow_none=True)
 
 
@@ -202,9 +207,9 @@ class StageSchema(StrictSchema):
     achieved = ma.fields.Dict(**_FIGURES, metadata={
         "description": "f0_hz, q, gain, fz_hz and their relative errors with ideal op-amps (circuit engine)."})
     achieved_macromodel = ma.fields.Dict(**_FIGURES, metadata={"description": "The same with the given op-amp."})
-    opamp_requirement = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.Raw(allow_none=True),
-                                       allow_none=True, metadata={
-        "description": "GBW needed (rule of thumb and exact from the macromodel) and slew rate needed."})
+    opamp_requirement = ma.fields.Raw(allow_none=True, validate=_object_or_null, metadata={
+        "description": "An object, or null: GBW needed (rule of thumb and exact from the macromodel) and slew "
+                       "rate needed."})
     peak_gain_db = ma.fields.Float(allow_none=True, metadata={
         "description": "Largest gain from the filter input to this stage's output (dB)."})
     peak_frequency_hz = ma.fields.Float(allow_none=True)
@@ -248,10 +253,13 @@ class DesignDocumentSchema(StrictSchema):
     family = one_of(Family, description="Approximation family.", allow_none=True)
     order = StrictInteger(allow_none=True, validate=ma.validate.Range(min=0, max=64))
     stages = ma.fields.List(ma.fields.Nested(StageSchema), required=True, validate=ma.validate.Length(min=1, max=64))
-    requirement = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.Raw(), allow_none=True, metadata={
-        "description": "The passband/stopband fields the design was made for (redo the summary)."})
-    settings = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.Raw(allow_none=True), allow_none=True,
-                              metadata={"description": "Realization settings (ranges, series, GBW error ...)."})
+    # Free-form objects as /v1/designs returned them; documented without a schema of their own (their
+    # content is checked by the realization when it reads them).
+    requirement = ma.fields.Raw(allow_none=True, validate=_object_or_null, metadata={
+        "description": "An object, or null: the passband/stopband fields the design was made for (redo the "
+                       "summary)."})
+    settings = ma.fields.Raw(allow_none=True, validate=_object_or_null, metadata={
+        "description": "An object, or null: the realization settings (ranges, series, GBW error ...)."})
     bom = ma.fields.Raw(allow_none=True, metadata={"description": "Ignored on input (recomputed)."})
     netlist = ma.fields.Raw(allow_none=True, metadata={"description": "Ignored on input (recomputed)."})
     summary = ma.fields.Raw(allow_none=True, metadata={"description": "Ignored on input (recomputed)."})
