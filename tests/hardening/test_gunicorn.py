@@ -136,7 +136,8 @@ def test_metrics_sum_over_workers_and_survive_a_killed_worker():
         assert seen == [30.0] * 10
         files = os.listdir(server.metrics_dir)
         pids = {int(m.group(1)) for f in files if (m := re.match(r"\w+_(\d+)\.db$", f))}
-        assert set(server.worker_pids()) <= pids | {server.proc.pid}
+        # one metrics file per process that answered (sequential requests may all land on one worker)
+        assert pids and pids <= set(server.worker_pids()) | {server.proc.pid}
         victim = server.worker_pids()[0]
         os.kill(victim, signal.SIGKILL)
         _wait_for(lambda: len(server.worker_pids()) == 2 and victim not in server.worker_pids())
