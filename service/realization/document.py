@@ -114,6 +114,21 @@ def _section(data: Any, field: str) -> Section:
     return Section(kind=kind, order=int(order), f0_hz=f0, q=q if order == 2 else None, fz_hz=fz, gain=gain)
 
 
+def _claim_ref(entry: Any, field: str, seen: dict[str, str]) -> str:
+    """The ``ref`` of a component or op-amp entry, recorded in ``seen``; InvalidDocument when the entry is
+    not an object, its ref is missing or empty, or the ref was used before (refs are unique design-wide)."""
+    if not isinstance(entry, dict):
+        raise InvalidDocument(f"{field} must be an object", field=field)
+    ref = entry.get("ref")
+    if not isinstance(ref, str) or not ref:
+        raise InvalidDocument(f"{field}.ref must be a non-empty string", field=f"{field}.ref")
+    if ref in seen:
+        raise InvalidDocument(f"ref {ref} repeats (first used at {seen[ref]}); refs must be unique",
+                              field=f"{field}.ref")
+    seen[ref] = field
+    return ref
+
+
 def plans_from_document(document: dict) -> tuple[list[StagePlan], dict]:
     """Read a design document into stage plans (strictly; see the module notes).
 
@@ -161,15 +176,7 @@ def plans_from_document(document: dict) -> tuple[list[StagePlan], dict]:
         comps: dict[str, Component] = {}
         for j, c in enumerate(comps_in):
             cf = f"{sf}.components[{j}]"
-            if not isinstance(c, dict):
-                raise InvalidDocument(f"{cf} must be an object", field=cf)
-            ref = c.get("ref")
-            if not isinstance(ref, str) or not ref:
-                raise InvalidDocument(f"{cf}.ref must be a non-empty string", field=f"{cf}.ref")
-            if ref in seen:
-                raise InvalidDocument(f"ref {ref} repeats (first used at {seen[ref]}); refs must be unique",
-                                      field=f"{cf}.ref")
-            seen[ref] = cf
+            ref = _claim_ref(c, cf, seen)
             kind = c.get("kind")
             if kind not in _KINDS:
                 raise UnknownPartKind(f"{ref}: unknown part kind {kind!r}: expected resistor or capacitor",
@@ -215,15 +222,7 @@ def plans_from_document(document: dict) -> tuple[list[StagePlan], dict]:
         ops: dict[str, OpAmpUse] = {}
         for j, u in enumerate(ops_in):
             uf = f"{sf}.opamps[{j}]"
-            if not isinstance(u, dict):
-                raise InvalidDocument(f"{uf} must be an object", field=uf)
-            ref = u.get("ref")
-            if not isinstance(ref, str) or not ref:
-                raise InvalidDocument(f"{uf}.ref must be a non-empty string", field=f"{uf}.ref")
-            if ref in seen:
-                raise InvalidDocument(f"ref {ref} repeats (first used at {seen[ref]}); refs must be unique",
-                                      field=f"{uf}.ref")
-            seen[ref] = uf
+            ref = _claim_ref(u, uf, seen)
             role = u.get("role") or (left.pop(0) if left else None)
             if role not in op_roles or role in ops:
                 raise InvalidDocument(
