@@ -26,6 +26,7 @@ CircuitError
 """
 
 from .ac import PreparedAc, ac_response, prepare_ac
+from .dc import DcSolution, dc_contributions, dc_operating_point
 from .errors import CircuitError
 from .netlist import GROUND, Circuit, Element, ElementKind, OpAmpModel, OpAmpSources
 from .noise import DEFAULT_TEMPERATURE_K, NoiseKind, NoiseSource, OutputNoise, noise_spectra
@@ -34,6 +35,9 @@ from .zpk import transfer_function_zpk
 
 __all__ = [
     "Circuit",
+    "DcSolution",
+    "dc_contributions",
+    "dc_operating_point",
     "CircuitError",
     "Element",
     "ElementKind",
