@@ -20,7 +20,7 @@ from service.realization.cascade import distribute_gains, gain_freedom, order_se
 from service.realization.errors import (
     RealizationError, UnknownStrategy, UnknownTopology, UnsupportedSection, WrongLength,
 )
-from service.realization.opamp import OpAmpSpec
+from service.realization.opamp import FIGURES, OpAmpSpec
 from service.realization.parts import PartsPolicy, resolve_kind
 from service.realization.results import Component, Design, DesignWarning, OpAmpUse
 from service.realization.selection import select_values
@@ -273,7 +273,8 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
             else:
                 ops.append(OpAmpUse(ref=ref, role=role, gbw_hz=spec.gbw_hz, slew_v_per_us=spec.slew_v_per_us,
                                     a0_db=spec.a0_db, output_swing_v=spec.output_swing_v, supply_v=spec.supply_v,
-                                    rout_ohm=spec.rout_ohm, part_id=spec.part_id))
+                                    rout_ohm=spec.rout_ohm, part_id=spec.part_id,
+                                    **{k: getattr(spec, k) for k in FIGURES}))
         plans.append(StagePlan(section=stage_sec, topology=t, strategy=s, components=comps, opamps=ops))
 
     req = dict(requirement) if requirement else {}
