@@ -8,6 +8,21 @@ no intermediate output peaks more than a margin above the filter's own output
 level, the last stage with a free gain taking up whatever the earlier ones
 leave (ibid., "dynamic range scaling").  Peaks are found on a logarithmic
 frequency grid and refined by zooming twice on the largest sample.
+
+``section_order="max_dynamic_range"`` chooses the order that maximizes the
+dynamic range under the rule stated for cascade design by Schaumann and
+Van Valkenburg (ch. 6, from memory): with every intermediate output scaled
+to peak at the filter output's level (so that all stages reach their swing
+at the same input), the best order is the one with the least output noise.
+Each section is taken to add the same white noise at its input; the noise
+at the output is then ``sum_k M(S_<k)^2 / M(all)^2 * int |T_{S_>=k}|^2 df``,
+``S_<k`` the sections ahead of position ``k``, ``T_S`` the product of their
+standard shapes and ``M(S) = max_f |T_S|``.  Each term depends only on the
+*set* of sections after position ``k``, so the minimum over all ``n!``
+orders is a shortest path over the ``2^n`` subsets (dynamic programming,
+the formulation of E. Lueder for RC-active cascades, from memory), exact
+for this objective.  With stages whose gains are fixed the scaling is not
+available and the order is the same proxy.
 """
 
 from __future__ import annotations
@@ -20,7 +35,10 @@ from service.approximation.types import Section
 from service.realization.errors import RealizationError
 from service.realization.fit import standard_shape
 
-SECTION_ORDERS = ("ascending_q", "descending_q", "given")
+SECTION_ORDERS = ("ascending_q", "descending_q", "given", "max_dynamic_range")
+
+#: Most sections the dynamic-range order searches exactly (2^n subsets); beyond, ascending Q.
+MAX_DP_SECTIONS = 10
 
 #: Points per decade of the coarse peak-search grid, and decades beyond the section frequencies.
 GRID_POINTS_PER_DECADE = 60
@@ -31,7 +49,8 @@ def order_sections(sections: list[Section], section_order: str) -> list[int]:
     """Indices of ``sections`` in cascade order.
 
     ``"ascending_q"`` (first-order sections count as Q = 0.5 and come first),
-    ``"descending_q"`` or ``"given"``; ties keep the given order.
+    ``"descending_q"``, ``"given"``, or ``"max_dynamic_range"`` (see the
+    module notes; :func:`dynamic_range_order`); ties keep the given order.
     """
     if section_order not in SECTION_ORDERS:
         raise RealizationError(
@@ -41,8 +60,81 @@ def order_sections(sections: list[Section], section_order: str) -> list[int]:
     idx = list(range(len(sections)))
     if section_order == "given":
         return idx
+    if section_order == "max_dynamic_range":
+        if 1 < len(sections) <= MAX_DP_SECTIONS:
+            return dynamic_range_order(sections)[0]
+        section_order = "ascending_q"
     q = [0.5 if s.q is None else float(s.q) for s in sections]
     return sorted(idx, key=lambda i: q[i], reverse=(section_order == "descending_q"))
+
+
+def order_noise(sections: list[Section], grid_hz: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Per-subset terms of the dynamic-range objective.
+
+    Returns
+    -------
+    cost : ndarray, shape (2^n,)
+        ``M(all - S)^2 / M(all)^2 * int |T_S|^2 df`` for every subset ``S``
+        (bit ``i`` of the index: section ``i``), Hz (relative noise power
+        of a unit white source ahead of the sections of ``S``).
+    peak : ndarray, shape (2^n,)
+        ``M(S) = max_f |T_S(f)|`` on the grid.
+    """
+    n = len(sections)
+    grid = analysis_grid(sections) if grid_hz is None else np.asarray(grid_hz, dtype=float)
+    s = 2j * np.pi * grid
+    mag2 = np.array([np.abs(standard_shape(sec, s, sec.f0_hz, sec.q, sec.fz_hz)) ** 2 for sec in sections])
+    prod = np.ones((1 << n, grid.size))
+    for mask in range(1, 1 << n):
+        low = mask & -mask
+        prod[mask] = prod[mask ^ low] * mag2[low.bit_length() - 1]
+    peak = np.sqrt(prod.max(axis=1))
+    lnf = np.log(grid)
+    y = prod * grid[None, :]
+    power = np.sum(0.5 * (y[:, 1:] + y[:, :-1]) * np.diff(lnf)[None, :], axis=1)     # trapezoid in ln f
+    full = (1 << n) - 1
+    comp = full ^ np.arange(1 << n)
+    cost = (peak[comp] / peak[full]) ** 2 * power
+    return cost, peak
+
+
+def dynamic_range_order(sections: list[Section], grid_hz: np.ndarray | None = None) -> tuple[list[int], float]:
+    """The order of least output noise with equal intermediate peaks (module notes), by dynamic programming.
+
+    Returns
+    -------
+    order : list of int
+        Indices of ``sections``, first stage first.
+    noise : float
+        The objective of that order (relative noise power, Hz).
+    """
+    n = len(sections)
+    cost, _ = order_noise(sections, grid_hz)
+    size = 1 << n
+    best = np.full(size, np.inf)
+    first = np.full(size, -1, dtype=int)       # the section placed first among the set
+    for mask in sorted(range(1, size), key=lambda m: bin(m).count("1")):
+        if mask & (mask - 1) == 0:
+            best[mask] = cost[mask]
+            first[mask] = mask.bit_length() - 1
+            continue
+        m, i = mask, 0
+        cand, pick = np.inf, -1
+        while m:
+            if m & 1:
+                v = best[mask ^ (1 << i)]
+                if v < cand - 1e-12 * abs(cand) or (pick < 0):
+                    cand, pick = v, i
+            m >>= 1
+            i += 1
+        best[mask] = cost[mask] + cand
+        first[mask] = pick
+    order, mask = [], size - 1
+    while mask:
+        i = int(first[mask])
+        order.append(i)
+        mask ^= 1 << i
+    return order, float(best[size - 1])
 
 
 def analysis_grid(sections: list[Section]) -> np.ndarray:
