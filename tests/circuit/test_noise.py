@@ -65,7 +65,7 @@ def test_opamp_voltage_noise_and_corner_in_a_noninverting_amplifier():
     assert [s.name for s in en] == ["U1.en"]
     k = res.sources.index(en[0])
     np.testing.assert_allclose(res.density[0, k], (10 * 5e-9) ** 2 * np.array([2.0, 1.01]), rtol=1e-12)
-    # the resistors: RG's current into the virtual node sees RF, RF's own current too: 4kT (RG || RF) * (RF/RG... )
+    # RG's noise current flows into the virtual ground node and out through RF: 4kT/RG * RF^2 at the output
     rg, rf = 1e3, 9e3
     r_src = res.density[0, [res.sources.index(s) for s in res.sources if s.element == "RG"][0]]
     np.testing.assert_allclose(r_src, 4 * KT / rg * rf ** 2, rtol=1e-12)
