@@ -58,6 +58,9 @@ DECOUPLING_FACTOR = 100.0
 COUPLING_FACTOR = 50.0
 #: Largest change of the passband response the input coupling may cause, dB.
 COUPLING_CHANGE_DB = 0.005
+#: Range of the input coupling capacitor, F (it may exceed the filter's capacitor range: a film or
+#: electrolytic part, noted in the warnings).
+COUPLING_RANGE_F = (1e-9, 1e-3)
 #: An op-amp output whose DC level moves less than this per volt of input DC is DC-isolated from the input.
 DC_ISOLATION = 1e-9
 
@@ -250,7 +253,9 @@ class SupplyReport:
         DC offset at the filter output, V.
     ac_change_db : float or None
         Largest change of the response in the passband (within 3 dB of the
-        peak) that the supply's network causes, dB; None on split rails.
+        peak) that the supply's network causes, dB, on the design's analysis
+        grid (1/100 of the lowest to 100x the highest section frequency);
+        None on split rails.
     components, opamps : list
         Parts added for the supply.
     bom : list of dict
@@ -546,7 +551,7 @@ def _single_rail(plans, settings, base: Circuit, result: FilterCircuit, spec, mi
         r_in, c_in = f"R{nxt['R']}", f"C{nxt['C']}"
         nxt["R"] += 1
         nxt["C"] += 1
-        c_value = _coupling_capacitor(base, plans, stage_els, r_bias, settings_c)
+        c_value, change = _coupling_capacitor(base, plans, stage_els, r_bias, settings_c[1])
         c.add_voltage_source(src_el.name, "in", GROUND, src_el.value)
         c.add_capacitor(c_in, "in", "in_ac", c_value)
         c.add_resistor(r_in, "in_ac", mid, r_bias)
@@ -557,7 +562,18 @@ def _single_rail(plans, settings, base: Circuit, result: FilterCircuit, spec, mi
         f_c = 1 / (2 * math.pi * r_bias * c_value)
         result.notes.append(DesignWarning(
             "input_ac_coupled", f"the input is AC-coupled through {c_in} with {r_in} to mid-rail "
-            f"(corner about {f_c:.3g} Hz with {r_in} alone)"))
+            f"(corner about {f_c:.3g} Hz with {r_in} alone; the passband changes by {change:.2g} dB)"))
+        grid = analysis_grid([p.section for p in plans])
+        h = np.abs(ac_response(base, grid[:1])[0])
+        if h[0] >= np.abs(ac_response(base, grid)[0]).max() / math.sqrt(2):
+            result.notes.append(DesignWarning(
+                "input_ac_coupled_dc_passband", f"the response passes DC but the input is AC-coupled: {c_in} "
+                f"removes the passband below about {f_c:.3g} Hz (kept from {grid[0]:.3g} Hz up)"))
+        if c_value > settings_c[0][1] * (1 + 1e-9):
+            result.notes.append(DesignWarning(
+                "coupling_capacitor_large", f"{c_in} ({c_value:.3g} F) is above the design's capacitor range: a "
+                "film or electrolytic part (mind its polarity: the input side sits at the source's level, the "
+                f"other at {supply.bias_v:g} V)"))
     elif coupling == "dc":
         c.add_voltage_source(src_el.name, "in", mid, src_el.value)
         rename = {}
@@ -594,15 +610,18 @@ def _auto_coupling(base: Circuit, plans) -> str:
     return "ac" if h[0] < h.max() * 10 ** (-40 / 20) else "dc"
 
 
-def _coupling_capacitor(base: Circuit, plans, stage_els, r_bias: float, settings_c) -> float:
-    """The smallest capacitor of the series that keeps the passband within :data:`COUPLING_CHANGE_DB`."""
+def _coupling_capacitor(base: Circuit, plans, stage_els, r_bias: float, series: str) -> tuple[float, float]:
+    """The smallest capacitor of the series (within :data:`COUPLING_RANGE_F`) that keeps the passband within
+    :data:`COUPLING_CHANGE_DB`, and the change it causes (dB), found with the circuit engine (the stage's own
+    input impedance loads the coupling)."""
     grid = analysis_grid([p.section for p in plans])
     h0 = ac_response(base, grid)[0]
     band = _passband(h0)
     f_pass = float(grid[band].min())
     need = COUPLING_FACTOR / (2 * math.pi * r_bias * f_pass)
-    (lo, hi), series = settings_c
-    for _ in range(8):
+    lo, hi = COUPLING_RANGE_F
+    value, change = hi, math.inf
+    for _ in range(24):
         value = _series_value(series, (lo, hi), need, at_least=True, default_series="E12")
         probe = Circuit("probe")
         probe.add_voltage_source("VIN", "in", GROUND)
@@ -614,9 +633,9 @@ def _coupling_capacitor(base: Circuit, plans, stage_els, r_bias: float, settings
         h = ac_response(probe, grid)[0]
         change = float(np.max(np.abs(20 * np.log10(np.abs(h[band]) / np.abs(h0[band])))))
         if change <= COUPLING_CHANGE_DB or value >= hi * (1 - 1e-12):
-            return value
-        need = value * 2.0
-    return value
+            break
+        need = value * max(1.2, math.sqrt(change / COUPLING_CHANGE_DB))
+    return value, change
 
 
 # ------------------------------------------------------------------------------------------ the report
