@@ -177,7 +177,8 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
     impedance_ohm : float or None
         Preferred resistor level (ohm).
     section_order : str
-        ``"ascending_q"`` (default), ``"descending_q"`` or ``"given"``.
+        ``"ascending_q"`` (default), ``"descending_q"``, ``"given"`` or
+        ``"max_dynamic_range"`` (:func:`service.realization.cascade.dynamic_range_order`).
     stage_peak_margin_db : float
         How far (dB) an intermediate stage output may peak above the filter's output level.
     output_amplitude_v : float
@@ -222,7 +223,9 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
             s = check_strategy(t, sec, strat_in[i], strategies, sfield)
         chosen.append((t, s))
 
-    order = order_sections(sections, section_order)
+    order = order_sections(sections, section_order, margin_db=stage_peak_margin_db,
+                           freedoms=[gain_freedom(t, sec, s) for sec, (t, s) in zip(sections, chosen)],
+                           internal=[len(t.opamp_roles(sec, s)) > 1 for sec, (t, s) in zip(sections, chosen)])
     ordered = [sections[i] for i in order]
     picks = [chosen[i] for i in order]
     total = float(np.prod([s.gain for s in sections]))
