@@ -33,17 +33,17 @@ from __future__ import annotations
 
 import math
 import re
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from service.circuit import (GROUND, Circuit, ElementKind, OpAmpModel, ac_response, dc_contributions,
-                             dc_operating_point, to_spice)
+from service.circuit import (GROUND, Circuit, ElementKind, ac_response, dc_contributions, dc_operating_point,
+                             to_spice)
 from service.components import series_values_in_range
 from service.realization.analysis import StagePlan, cascade_circuit
 from service.realization.cascade import analysis_grid
 from service.realization.errors import RealizationError
-from service.realization.opamp import DEFAULT_A0_DB, OpAmpSpec, check_figures, sources_of
+from service.realization.opamp import FIGURES, OpAmpSpec, check_figures, sources_of
 from service.realization.results import Component, Design, DesignWarning, OpAmpUse
 
 #: Largest rail magnitude accepted, V.
@@ -304,10 +304,31 @@ def _plans(design) -> tuple[list[StagePlan], dict]:
         return list(design.plans), dict(design.settings or {})
     if isinstance(design, dict):
         from service.realization.document import plans_from_document
-        return plans_from_document(design)
+        plans, settings = plans_from_document(design)
+        return _document_figures(design, plans), settings
     if isinstance(design, (list, tuple)) and design and all(isinstance(p, StagePlan) for p in design):
         return list(design), {}
     raise RealizationError("expected a Design, a design document or a list of stage plans", field="design")
+
+
+def _document_figures(document: dict, plans: list[StagePlan]) -> list[StagePlan]:
+    """The plans with each op-amp's noise, DC and rail figures read from the document's ``opamps`` entries."""
+    entries = {}
+    for i, st in enumerate(document.get("stages") or []):
+        for j, u in enumerate((st or {}).get("opamps") or []):
+            if isinstance(u, dict) and isinstance(u.get("ref"), str):
+                entries[u["ref"]] = (u, f"design.stages[{i}].opamps[{j}]")
+    out = []
+    for p in plans:
+        uses = []
+        for u in p.opamps:
+            entry, where = entries.get(u.ref, ({}, ""))
+            figures = {k: entry.get(k) for k in FIGURES if entry.get(k) is not None}
+            use = replace(u, **figures)
+            check_figures(use, where)
+            uses.append(use)
+        out.append(replace(p, opamps=uses))
+    return out
 
 
 def _kind_settings(settings: dict, kind: str, default_range, default_series: str):
@@ -717,6 +738,31 @@ def supply_report(design, *, supply: Supply | dict | None, opamp: OpAmpSpec | di
                         ac_change, list(fc.components), list(fc.opamps), bom, netlist, warnings, circuit)
 
 
+def with_supply(design: Design, *, supply: Supply | dict | None, opamp: OpAmpSpec | dict | None = None,
+                mid_rail: str = "buffered", input_coupling: str = "auto") -> tuple[Design, SupplyReport | None]:
+    """The design on its supply: BOM, netlist and warnings of the circuit the board gets.
+
+    Parameters are those of :func:`supply_report`; ``supply=None`` returns ``(design, None)``.
+
+    Returns
+    -------
+    (Design, SupplyReport or None)
+        A copy of ``design`` whose ``bom`` and ``netlist`` are the report's
+        (bias network and coupling included on a single rail), whose
+        ``warnings`` add the report's, and whose ``settings["supply"]``
+        records the supply and options (so an evaluated document can redo it).
+    """
+    if supply is None:
+        return design, None
+    rep = supply_report(design, supply=supply, opamp=opamp, mid_rail=mid_rail, input_coupling=input_coupling)
+    settings = dict(design.settings or {})
+    settings["supply"] = {"v_pos": rep.supply.v_pos, "v_neg": rep.supply.v_neg, "mid_rail": mid_rail,
+                          "input_coupling": input_coupling}
+    out = replace(design, bom=list(rep.bom), netlist=rep.netlist, warnings=list(design.warnings) + rep.warnings,
+                  settings=settings)
+    return out, rep
+
+
 def _bom_row(c: Component) -> dict:
     return {"ref": c.ref, "kind": c.kind, "value": c.value, "tolerance": c.tolerance,
             "dielectric": c.dielectric if c.kind == "capacitor" else None, "part_id": c.part_id}
@@ -727,4 +773,4 @@ def _fmt(x) -> str:
 
 
 __all__ = ["FilterCircuit", "OpAmpBias", "StageOffset", "Supply", "SupplyReport", "filter_circuit",
-           "supply_report", "MID_RAIL_MODES", "INPUT_COUPLINGS"]
+           "supply_report", "with_supply", "MID_RAIL_MODES", "INPUT_COUPLINGS"]
