@@ -165,7 +165,8 @@ def check_figures(entry, prefix: str) -> None:
         if v is None:
             continue
         if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
-            raise RealizationError(f"{prefix}.{name} must be a finite number ({_UNITS[name]})", field=f"{prefix}.{name}")
+            raise RealizationError(f"{prefix}.{name} must be a finite number ({_UNITS[name]})",
+                                   field=f"{prefix}.{name}")
         mag = abs(v) if signed else v
         if mag < lo or mag > hi:
             what = "magnitude " if signed else ""

@@ -71,9 +71,14 @@ class OpAmpLevel:
     clip_input_v: float | None
 
     def as_dict(self) -> dict:
-        return {k: getattr(self, k) for k in ("ref", "stage", "node", "peak_gain", "peak_frequency_hz", "peak_v",
-                                              "dc_v", "low_v", "high_v", "limit_v", "headroom_db",
-                                              "clip_input_v")}
+        """Plain JSON values (a non-finite figure, e.g. no headroom at all, as None)."""
+        return {k: _json(getattr(self, k)) for k in ("ref", "stage", "node", "peak_gain", "peak_frequency_hz",
+                                                     "peak_v", "dc_v", "low_v", "high_v", "limit_v", "headroom_db",
+                                                     "clip_input_v")}
+
+
+def _json(x):
+    return None if isinstance(x, float) and not math.isfinite(x) else x
 
 
 @dataclass(frozen=True)

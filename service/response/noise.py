@@ -133,7 +133,7 @@ class NoiseReport:
             "band_hz": list(self.band_hz),
             "temperature_k": self.temperature_k,
             "output_rms_v": self.output_rms_v,
-            "input_rms_v": self.input_rms_v,
+            "input_rms_v": self.input_rms_v if math.isfinite(self.input_rms_v) else None,
             "reference_gain": self.reference_gain,
             "parts": [c.as_dict() for c in self.parts],
             "sources": [c.as_dict() for c in self.sources],

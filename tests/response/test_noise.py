@@ -81,7 +81,8 @@ def test_power_law_rule_is_exact_on_power_laws():
 
 def _noisy_design():
     op = {"gbw_hz": 2e6, "en_nv_rthz": 12.0, "in_pa_rthz": 0.8, "en_corner_hz": 20.0}
-    secs = [Section(SectionKind.LOWPASS, 2, 1000.0, 1.3, None, 1.0), Section(SectionKind.LOWPASS, 2, 1000.0, 0.54, None, 1.0)]
+    secs = [Section(SectionKind.LOWPASS, 2, 1000.0, 1.3, None, 1.0),
+            Section(SectionKind.LOWPASS, 2, 1000.0, 0.54, None, 1.0)]
     from tests.realization.spice_checks import sections_record
     return design_filter(sections_record(secs), opamp=op, section_order="given")
 
