@@ -13,6 +13,10 @@ Results: :class:`Design`, :class:`Stage`, :class:`Component`, :class:`OpAmpUse`,
 :class:`OpAmpRequirement`, :class:`DesignWarning`.
 Functions: :func:`design_filter`, :func:`evaluate_document`,
 :func:`design_to_circuit`, :func:`document_from_design`, :func:`auto_topology`.
+Supplies: :class:`Supply`, :func:`filter_circuit` (the filter on its supply, op-amps
+carrying their noise and DC figures, for the noise and headroom analyses),
+:func:`supply_report` (DC operating point, offsets, added parts, netlist),
+:func:`with_supply` (the design with the supply's BOM, netlist and warnings).
 Errors: :class:`RealizationError` and its subclasses in :mod:`service.realization.errors`.
 """
 
@@ -22,6 +26,7 @@ from service.realization.errors import RealizationError
 from service.realization.opamp import OpAmpSpec
 from service.realization.parts import KindPolicy, PartsPolicy, StockPart
 from service.realization.results import Component, Design, DesignWarning, OpAmpRequirement, OpAmpUse, Stage
+from service.realization.supply import FilterCircuit, Supply, SupplyReport, filter_circuit, supply_report, with_supply
 from service.realization.topologies import TOPOLOGIES, auto_topology
 
 __all__ = [
@@ -29,4 +34,5 @@ __all__ = [
     "Design", "Stage", "Component", "OpAmpUse", "OpAmpRequirement", "DesignWarning",
     "design_filter", "evaluate_document", "design_to_circuit", "document_from_design",
     "TOPOLOGIES", "auto_topology", "RealizationError",
+    "Supply", "SupplyReport", "FilterCircuit", "filter_circuit", "supply_report", "with_supply",
 ]

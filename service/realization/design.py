@@ -20,7 +20,7 @@ from service.realization.cascade import distribute_gains, gain_freedom, order_se
 from service.realization.errors import (
     RealizationError, UnknownStrategy, UnknownTopology, UnsupportedSection, WrongLength,
 )
-from service.realization.opamp import OpAmpSpec
+from service.realization.opamp import FIGURES, OpAmpSpec
 from service.realization.parts import PartsPolicy, resolve_kind
 from service.realization.results import Component, Design, DesignWarning, OpAmpUse
 from service.realization.selection import select_values
@@ -177,7 +177,8 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
     impedance_ohm : float or None
         Preferred resistor level (ohm).
     section_order : str
-        ``"ascending_q"`` (default), ``"descending_q"`` or ``"given"``.
+        ``"ascending_q"`` (default), ``"descending_q"``, ``"given"`` or
+        ``"max_dynamic_range"`` (:func:`service.realization.cascade.dynamic_range_order`).
     stage_peak_margin_db : float
         How far (dB) an intermediate stage output may peak above the filter's output level.
     output_amplitude_v : float
@@ -222,7 +223,9 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
             s = check_strategy(t, sec, strat_in[i], strategies, sfield)
         chosen.append((t, s))
 
-    order = order_sections(sections, section_order)
+    order = order_sections(sections, section_order, margin_db=stage_peak_margin_db,
+                           freedoms=[gain_freedom(t, sec, s) for sec, (t, s) in zip(sections, chosen)],
+                           internal=[len(t.opamp_roles(sec, s)) > 1 for sec, (t, s) in zip(sections, chosen)])
     ordered = [sections[i] for i in order]
     picks = [chosen[i] for i in order]
     total = float(np.prod([s.gain for s in sections]))
@@ -273,7 +276,8 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
             else:
                 ops.append(OpAmpUse(ref=ref, role=role, gbw_hz=spec.gbw_hz, slew_v_per_us=spec.slew_v_per_us,
                                     a0_db=spec.a0_db, output_swing_v=spec.output_swing_v, supply_v=spec.supply_v,
-                                    rout_ohm=spec.rout_ohm, part_id=spec.part_id))
+                                    rout_ohm=spec.rout_ohm, part_id=spec.part_id,
+                                    **{k: getattr(spec, k) for k in FIGURES}))
         plans.append(StagePlan(section=stage_sec, topology=t, strategy=s, components=comps, opamps=ops))
 
     req = dict(requirement) if requirement else {}

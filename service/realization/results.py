@@ -88,12 +88,21 @@ class OpAmpUse:
     supply_v: float | None = None
     rout_ohm: float | None = None
     part_id: str | None = None
+    en_nv_rthz: float | None = None
+    in_pa_rthz: float | None = None
+    en_corner_hz: float | None = None
+    in_corner_hz: float | None = None
+    vos_v: float | None = None
+    ib_a: float | None = None
+    rail_headroom_v: float | None = None
 
     def as_dict(self) -> dict:
         return {
             "ref": self.ref, "role": self.role, "gbw_hz": self.gbw_hz, "slew_v_per_us": self.slew_v_per_us,
             "a0_db": self.a0_db, "output_swing_v": self.output_swing_v, "supply_v": self.supply_v,
-            "rout_ohm": self.rout_ohm, "part_id": self.part_id,
+            "rout_ohm": self.rout_ohm, "part_id": self.part_id, "en_nv_rthz": self.en_nv_rthz,
+            "in_pa_rthz": self.in_pa_rthz, "en_corner_hz": self.en_corner_hz, "in_corner_hz": self.in_corner_hz,
+            "vos_v": self.vos_v, "ib_a": self.ib_a, "rail_headroom_v": self.rail_headroom_v,
         }
 
 

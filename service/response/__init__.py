@@ -8,7 +8,8 @@ Public surface::
     analyze -> ResponseResult (metrics: ResponseMetrics; step/impulse: TimeResponse)
     compare_families -> Comparison (families: list of FamilyComparison)
     table_to_csv
-    InvalidGrid, InvalidMask, ImproperSystem
+    analyze_noise -> NoiseReport (NoiseContribution); analyze_headroom -> HeadroomReport (OpAmpLevel)
+    InvalidGrid, InvalidMask, ImproperSystem, InvalidLevel
 
 Everything takes and returns plain Python/numpy values; no I/O. Frequencies
 are in Hz at this surface, roots in rad/s.
@@ -16,7 +17,9 @@ are in Hz at this surface, roots in rad/s.
 
 from service.response.analysis import analyze
 from service.response.comparison import Comparison, FamilyComparison, compare_families
-from service.response.errors import ImproperSystem, InvalidGrid, InvalidMask
+from service.response.errors import ImproperSystem, InvalidGrid, InvalidLevel, InvalidMask
+from service.response.headroom import HeadroomReport, OpAmpLevel, analyze_headroom
+from service.response.noise import NoiseContribution, NoiseReport, analyze_noise
 from service.response.formats import table_to_csv
 from service.response.grids import FrequencyGrid, TimeGrid, resolve_frequencies
 from service.response.mask import MARGIN_TOLERANCE_DB, Mask, MaskResult, MaskSegment, SegmentResult, check_mask
@@ -29,5 +32,6 @@ __all__ = [
     "analyze", "Comparison", "FamilyComparison", "compare_families", "ImproperSystem", "InvalidGrid", "InvalidMask", "table_to_csv", "FrequencyGrid", "TimeGrid",
     "resolve_frequencies", "MARGIN_TOLERANCE_DB", "Mask", "MaskResult", "MaskSegment", "SegmentResult",
     "check_mask", "ResponseMetrics", "ResponseResult", "TimeResponse", "CircuitSystem", "ZpkSystem",
-    "section_zpk", "MAGNITUDE_FLOOR_DB",
+    "section_zpk", "MAGNITUDE_FLOOR_DB", "InvalidLevel", "analyze_noise", "NoiseReport", "NoiseContribution",
+    "analyze_headroom", "HeadroomReport", "OpAmpLevel",
 ]
