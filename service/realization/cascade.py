@@ -36,11 +36,12 @@ from typing import Callable
 
 import numpy as np
 
+from service.approximation.enums import SectionOrder
 from service.approximation.types import Section
 from service.realization.errors import RealizationError
 from service.realization.fit import standard_shape
 
-SECTION_ORDERS = ("ascending_q", "descending_q", "given", "max_dynamic_range")
+SECTION_ORDERS = tuple(o.value for o in SectionOrder)
 
 #: Most sections whose every order the dynamic-range search evaluates; beyond, neighbour swaps.
 EXHAUSTIVE_SECTIONS = 6
@@ -56,19 +57,20 @@ def order_sections(sections: list[Section], section_order: str, *,
     """Indices of ``sections`` in cascade order.
 
     ``"ascending_q"`` (first-order sections count as Q = 0.5 and come first),
-    ``"descending_q"``, ``"given"``, or ``"max_dynamic_range"`` (see the
+    ``"descending_q"``, ``"as_computed"`` (the given order), or ``"max_dynamic_range"`` (see the
     module notes; :func:`dynamic_range_order`, with the sections' gain
     ``freedoms`` (:func:`gain_freedom`, in the given order; default all
     fixed at their gains), the stage peak ``margin_db`` and which sections'
     topologies have ``internal`` op-amps); ties keep the given order.
     """
+    section_order = getattr(section_order, "value", section_order)
     if section_order not in SECTION_ORDERS:
         raise RealizationError(
             f"unknown section_order {section_order!r}: expected one of {', '.join(SECTION_ORDERS)}",
             field="section_order",
         )
     idx = list(range(len(sections)))
-    if section_order == "given":
+    if section_order == "as_computed":
         return idx
     if section_order == "max_dynamic_range":
         if len(sections) < 2:

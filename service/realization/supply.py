@@ -297,38 +297,15 @@ class SupplyReport:
 
 
 def _plans(design) -> tuple[list[StagePlan], dict]:
-    """Stage plans and settings of a Design, a design document or a list of plans."""
+    """Stage plans and part settings (``ranges``, ``series`` per kind) of a Design or a list of plans."""
     if isinstance(design, Design):
         if not design.plans:
             raise RealizationError("the design carries no stage plans to build a circuit from", field="design")
-        return list(design.plans), dict(design.settings or {})
-    if isinstance(design, dict):
-        from service.realization.document import plans_from_document
-        plans, settings = plans_from_document(design)
-        return _document_figures(design, plans), settings
+        return list(design.plans), {"ranges": {k: list(v) for k, v in design.part_ranges.items()},
+                                    "series": dict(design.part_series)}
     if isinstance(design, (list, tuple)) and design and all(isinstance(p, StagePlan) for p in design):
         return list(design), {}
-    raise RealizationError("expected a Design, a design document or a list of stage plans", field="design")
-
-
-def _document_figures(document: dict, plans: list[StagePlan]) -> list[StagePlan]:
-    """The plans with each op-amp's noise, DC and rail figures read from the document's ``opamps`` entries."""
-    entries = {}
-    for i, st in enumerate(document.get("stages") or []):
-        for j, u in enumerate((st or {}).get("opamps") or []):
-            if isinstance(u, dict) and isinstance(u.get("ref"), str):
-                entries[u["ref"]] = (u, f"design.stages[{i}].opamps[{j}]")
-    out = []
-    for p in plans:
-        uses = []
-        for u in p.opamps:
-            entry, where = entries.get(u.ref, ({}, ""))
-            figures = {k: entry.get(k) for k in FIGURES if entry.get(k) is not None}
-            use = replace(u, **figures)
-            check_figures(use, where)
-            uses.append(use)
-        out.append(replace(p, opamps=uses))
-    return out
+    raise RealizationError("expected a Design or a list of stage plans", field="design")
 
 
 def _kind_settings(settings: dict, kind: str, default_range, default_series: str):
@@ -749,17 +726,12 @@ def with_supply(design: Design, *, supply: Supply | dict | None, opamp: OpAmpSpe
     (Design, SupplyReport or None)
         A copy of ``design`` whose ``bom`` and ``netlist`` are the report's
         (bias network and coupling included on a single rail), whose
-        ``warnings`` add the report's, and whose ``settings["supply"]``
-        records the supply and options (so an evaluated document can redo it).
+        ``warnings`` add the report's.
     """
     if supply is None:
         return design, None
     rep = supply_report(design, supply=supply, opamp=opamp, mid_rail=mid_rail, input_coupling=input_coupling)
-    settings = dict(design.settings or {})
-    settings["supply"] = {"v_pos": rep.supply.v_pos, "v_neg": rep.supply.v_neg, "mid_rail": mid_rail,
-                          "input_coupling": input_coupling}
-    out = replace(design, bom=list(rep.bom), netlist=rep.netlist, warnings=list(design.warnings) + rep.warnings,
-                  settings=settings)
+    out = replace(design, bom=list(rep.bom), netlist=rep.netlist, warnings=list(design.warnings) + rep.warnings)
     return out, rep
 
 

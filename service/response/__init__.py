@@ -4,7 +4,7 @@ Public surface::
 
     FrequencyGrid, TimeGrid, resolve_frequencies
     ZpkSystem, CircuitSystem, section_zpk
-    Mask, MaskSegment, MaskResult, SegmentResult, check_mask
+    Band, LossLimit, DelayLimit, Criteria, Verdict, BatchVerdict, verify
     analyze -> ResponseResult (metrics: ResponseMetrics; step/impulse: TimeResponse)
     compare_families -> Comparison (families: list of FamilyComparison)
     table_to_csv
@@ -22,7 +22,8 @@ from service.response.headroom import HeadroomReport, OpAmpLevel, analyze_headro
 from service.response.noise import NoiseContribution, NoiseReport, analyze_noise
 from service.response.formats import table_to_csv
 from service.response.grids import FrequencyGrid, TimeGrid, resolve_frequencies
-from service.response.mask import MARGIN_TOLERANCE_DB, Mask, MaskResult, MaskSegment, SegmentResult, check_mask
+from service.response.verification import (Band, BatchVerdict, Criteria, DelayLimit, LossLimit, Verdict,
+                                           verify)
 from service.response.metrics import ResponseMetrics
 from service.response.result import ResponseResult, TimeResponse
 from service.response.systems import CircuitSystem, ZpkSystem, section_zpk
@@ -30,8 +31,8 @@ from service.response.zpk import MAGNITUDE_FLOOR_DB
 
 __all__ = [
     "analyze", "Comparison", "FamilyComparison", "compare_families", "ImproperSystem", "InvalidGrid", "InvalidMask", "table_to_csv", "FrequencyGrid", "TimeGrid",
-    "resolve_frequencies", "MARGIN_TOLERANCE_DB", "Mask", "MaskResult", "MaskSegment", "SegmentResult",
-    "check_mask", "ResponseMetrics", "ResponseResult", "TimeResponse", "CircuitSystem", "ZpkSystem",
+    "resolve_frequencies", "Band", "LossLimit", "DelayLimit", "Criteria", "Verdict", "BatchVerdict",
+    "verify", "ResponseMetrics", "ResponseResult", "TimeResponse", "CircuitSystem", "ZpkSystem",
     "section_zpk", "MAGNITUDE_FLOOR_DB", "InvalidLevel", "analyze_noise", "NoiseReport", "NoiseContribution",
     "analyze_headroom", "HeadroomReport", "OpAmpLevel",
 ]

@@ -251,6 +251,29 @@ class Verdict:
         return all(s.proved for s in self.segments) and (self.delay is None or self.delay.proved)
 
     @property
+    def worst(self) -> SegmentVerdict | None:
+        """The segment with the smallest margin (None when unstable or without segments)."""
+        if not self.stable or not self.segments:
+            return None
+        return min(self.segments, key=lambda s: s.margin_db)
+
+    def as_dict(self) -> dict:
+        """Plain JSON: meets, status, worst margin and where, reference, segments, delay, stability."""
+        worst = self.worst
+        return {
+            "meets": self.meets, "pass": self.meets, "status": self.status,
+            "worst_margin_db": self.worst_margin_db,
+            "worst_frequency_hz": None if worst is None else worst.worst_hz,
+            "reference_gain_db": self.reference_gain_db,
+            "segments": [s.as_dict() for s in self.segments],
+            "group_delay": None if self.delay is None else self.delay.as_dict(),
+            "stability": {"stable": self.stable,
+                          "unstable_poles": [{"group": p.group, "frequency_hz": p.frequency_hz,
+                                              "real_rad_s": p.pole_rad_s.real, "imag_rad_s": p.pole_rad_s.imag}
+                                             for p in self.unstable_poles]},
+        }
+
+    @property
     def status(self) -> str:
         """``unstable``, ``meets``, ``misses`` or ``unproved`` (margins not all proved, none failed)."""
         if not self.stable:
