@@ -206,7 +206,8 @@ def run_tolerance(plans: list[StagePlan], *, draw_order: Sequence[str] = (), res
     verdicts = None
     if criteria is not None:
         roots = design_roots(plans, samples.values)
-        verdicts = verify(roots, criteria, precision_db=precision_db)
+        verdicts = verify(roots, criteria, precision_db=precision_db, nominal=design_roots(plans),
+                          located_trials=include_trials)
         ok = verdicts.segment_met()                                         # (T, S)
         passed = verdicts.meets()
         n_pass = int(passed.sum())

@@ -45,6 +45,19 @@ def check_limit(name: str, asked: float, settings: Settings, *, field: str, what
             limit=name, value=value, setting=setting_env(name), field=field)
 
 
+def grid_points(grid, settings: Settings, *, field: str = "frequencies") -> int:
+    """Points of a frequency grid (a FrequencyGrid, a list, or None for the default), checked against
+    ``ROLLOFF_MAX_FREQUENCY_POINTS`` with the request's field name."""
+    if grid is None:
+        return 0
+    points = getattr(grid, "points", None)
+    if points is not None:
+        check_limit("max_frequency_points", points, settings, field=f"{field}.points", what="frequency points")
+        return int(points)
+    check_limit("max_frequency_points", len(grid), settings, field=field, what="frequency points")
+    return len(grid)
+
+
 @dataclass(frozen=True)
 class CircuitShape:
     """What a design's circuit costs to evaluate: its stages, op-amps per stage, and whether it is loaded."""
