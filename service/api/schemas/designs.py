@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import marshmallow as ma
 
-from service.api.fields import Quantity, StrictInteger
+from service.api.fields import PART_REF, Quantity, StrictInteger
 from service.api.schemas.common import ReplySchema, StrictSchema, one_of
 from service.api.schemas.filters import FilterSchema, SectionSchema
 from service.approximation import Family, ResponseType
@@ -68,6 +68,8 @@ class RangeField(ma.fields.List):
                          validate=ma.validate.Length(equal=2), **kwargs)
 
     def _deserialize(self, value, attr, data, **kwargs):
+        if isinstance(value, (list, tuple)) and len(value) != 2:
+            raise ma.ValidationError(f"expected [low, high]: 2 values, got {len(value)}")
         low, high = super()._deserialize(value, attr, data, **kwargs)
         if not low <= high:
             raise ma.ValidationError("expected [low, high] with low <= high")
@@ -159,7 +161,7 @@ class DesignRequestSchema(FilterSchema):
 
 
 class ComponentSchema(StrictSchema):
-    ref = ma.fields.String(required=True, validate=ma.validate.Length(min=1, max=32),
+    ref = ma.fields.String(required=True, validate=[ma.validate.Length(min=1, max=32), PART_REF],
                            metadata={"description": "Reference unique across the design (R7, C3)."})
     role = ma.fields.String(validate=ma.validate.Length(max=32), metadata={
         "description": "Position in the topology (R1, Rf ...); optional when editing."})
@@ -173,7 +175,7 @@ class ComponentSchema(StrictSchema):
 
 
 class OpAmpUseSchema(StrictSchema):
-    ref = ma.fields.String(required=True, validate=ma.validate.Length(min=1, max=32))
+    ref = ma.fields.String(required=True, validate=[ma.validate.Length(min=1, max=32), PART_REF])
     role = ma.fields.String(validate=ma.validate.Length(max=32))
     gbw_hz = Quantity(unit="Hz", allow_none=True, validate=ma.validate.Range(min=1.0, max=1e12),
                       metadata={"description": "Null: ideal op-amp."})
