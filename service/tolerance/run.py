@@ -11,6 +11,7 @@ from service.approximation.types import ResponseType
 from service.circuit import ac_response
 from service.errors import LimitExceeded
 from service.realization.analysis import cascade_circuit
+from service.realization.conditioning import check_plans
 from service.realization.document import plans_from_document
 from service.response import Mask, resolve_frequencies
 from service.response.metrics import infer_response_type
@@ -128,6 +129,7 @@ def run_tolerance(document: dict, *, trials: int = DEFAULT_TRIALS, seed: int = 0
     temp = resolve_temperature(temperature)
 
     plans, _ = plans_from_document(document)
+    check_plans(plans)
     circuit = cascade_circuit(plans)
     parts = varied_parts(plans, document, dist, tempco_ppm_per_c, gbw_spread)
     samples = draw(parts, trials, seed, temp)
