@@ -77,7 +77,11 @@ class AllocatedMmapedDict(mmap_dict.MmapedDict):
             fd = os.open(filename, os.O_RDWR | os.O_CREAT, 0o644)
             try:
                 if os.fstat(fd).st_size == 0:
-                    _allocate(fd, mmap_dict._INITIAL_MMAP_SIZE)
+                    try:
+                        _allocate(fd, mmap_dict._INITIAL_MMAP_SIZE)
+                    except OSError:
+                        os.unlink(filename)  # an empty file would break every reader of the folder
+                        raise
             finally:
                 os.close(fd)
         super().__init__(filename, read_mode)
@@ -155,7 +159,7 @@ class ServiceMetrics:
                 text = generate_latest(registry)
             else:
                 text = generate_latest(self.registry)
-        except (OSError, ValueError, RuntimeError) as exc:
+        except Exception as exc:  # an unreadable metric file (truncated, half-written): report, do not fail
             text = b""
             self.degraded = self.degraded or f"{exc.__class__.__name__}: {exc}"
         flag = b"1" if self.degraded is not None else b"0"
