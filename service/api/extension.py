@@ -5,9 +5,9 @@
   errors through :mod:`service.api.problems`.
 - :class:`Blueprint` reads JSON bodies with :func:`service.api.body.read_json_body`
   (strict: duplicate keys, depth, UTF-8, media type) and rejects unknown query
-  parameters, a scalar query parameter given more than once, and numbers
-  written as text with other than ASCII digits (``"４.７"``: Python's ``float``
-  would read it) in any number field of a body or query.
+  parameters, a scalar query parameter given more than once, numbers written
+  with other than ASCII digits (``"４.７"``: Python's ``float`` would read it) in
+  a query, and strings in a body's plain number fields (documented as numbers).
 """
 
 from __future__ import annotations
@@ -50,11 +50,14 @@ class ProblemSchema(ma.Schema):
 
 
 _NUMBER_TEXT = "Not a valid number: write ASCII digits 0-9, without spaces around."
+_NUMBER_TYPE = "Not a valid number: expected a JSON number."
 
 
-def _field_text_errors(field: ma.fields.Field, value: Any):
-    """Messages for number text in ``value`` that ``field`` (plain marshmallow numbers) would read loosely."""
+def _field_text_errors(field: ma.fields.Field, value: Any, body: bool = True):
+    """Messages for a value that a plain marshmallow number field would read although the document refuses it."""
     if isinstance(field, ma.fields.Number) and not isinstance(field, (Quantity, StrictInteger)):
+        if isinstance(value, str) and body:
+            return [_NUMBER_TYPE]
         if isinstance(value, str) and not (value.isascii() and value.strip() == value):
             return [_NUMBER_TEXT]
         return None
@@ -65,21 +68,23 @@ def _field_text_errors(field: ma.fields.Field, value: Any):
             return out or None
         return number_text_errors(inner, value) or None
     if isinstance(field, ma.fields.List) and isinstance(value, list):
-        out = {i: e for i, v in enumerate(value) if (e := _field_text_errors(field.inner, v))}
+        out = {i: e for i, v in enumerate(value) if (e := _field_text_errors(field.inner, v, body))}
         return out or None
     if isinstance(field, ma.fields.Dict) and field.value_field is not None and isinstance(value, Mapping):
-        out = {k: e for k, v in value.items() if (e := _field_text_errors(field.value_field, v))}
+        out = {k: e for k, v in value.items() if (e := _field_text_errors(field.value_field, v, body))}
         return out or None
     return None
 
 
 def number_text_errors(schema: ma.Schema, data: Any) -> dict:
-    """Field path -> messages for every plain number field of ``schema`` given non-ASCII or padded digits.
+    """Field path -> messages for every plain number field of a JSON body that the document would refuse.
 
-    marshmallow's ``Float`` and ``Integer`` read strings with Python's ``float``
-    and ``int``, which accept any script's digits and surrounding white space;
-    the documented number forms are ASCII. (:class:`Quantity` and
-    :class:`StrictInteger` check their text themselves.)
+    marshmallow's ``Float`` and ``Integer`` also read strings, with Python's
+    ``float`` and ``int`` (any script's digits, surrounding white space),
+    where the OpenAPI document of those fields says ``type: number``: in a
+    body, a plain number field takes a JSON number only. (:class:`Quantity`
+    documents and checks its strings itself; :class:`StrictInteger` refuses
+    strings.)
     """
     if not isinstance(data, Mapping):
         return {}
@@ -125,7 +130,7 @@ class _StrictParser(FlaskParser):
                 errors[key] = [f"given {len(values)} times; this parameter takes one value"]
                 continue
             for v in values:
-                if (e := _field_text_errors(getattr(field, "inner", field), v)):
+                if (e := _field_text_errors(getattr(field, "inner", field), v, body=False)):
                     errors[key] = e if isinstance(e, list) else [_NUMBER_TEXT]
         if errors:
             raise ma.ValidationError(errors)
