@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import http.client
 import os
+import random
 import signal
 import socket
 import subprocess
@@ -20,10 +21,25 @@ ROOT = Path(__file__).resolve().parents[2]
 
 
 def free_port() -> int:
-    """A TCP port free on 127.0.0.1 at the time of the call."""
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
+    """A TCP port free on 127.0.0.1 at the time of the call.
+
+    ``ROLLOFF_TEST_PORTS=first-last`` confines it to a range (a shared machine's allotment);
+    otherwise the system picks one.
+    """
+    span = os.environ.get("ROLLOFF_TEST_PORTS", "")
+    candidates = [0]
+    if span:
+        first, last = (int(x) for x in span.split("-"))
+        candidates = list(range(first, last + 1))
+        random.shuffle(candidates)
+    for port in candidates:
+        with socket.socket() as s:
+            try:
+                s.bind(("127.0.0.1", port))
+            except OSError:
+                continue
+            return s.getsockname()[1]
+    raise RuntimeError(f"no free port in {span}")
 
 
 def request(port: int, method: str, path: str, body: bytes | None = None,
