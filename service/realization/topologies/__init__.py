@@ -17,6 +17,7 @@ from __future__ import annotations
 from service.realization.errors import UnknownTopology
 from service.realization.topologies.base import PartSpec, Topology
 from service.realization.topologies.auto import auto_topology
+from service.realization.topologies.delyiannis_friend import DELYIANNIS_FRIEND_NOTCH
 from service.realization.topologies.first_order import INVERTING_FIRST_ORDER, NONINVERTING_FIRST_ORDER, RC_FIRST_ORDER
 from service.realization.topologies.multiple_feedback import MULTIPLE_FEEDBACK
 from service.realization.topologies.sallen_key import SALLEN_KEY
@@ -35,6 +36,7 @@ TOPOLOGIES: dict[str, Topology] = {
         STATE_VARIABLE,
         TOW_THOMAS,
         TWIN_T_NOTCH,
+        DELYIANNIS_FRIEND_NOTCH,
     )
 }
 
