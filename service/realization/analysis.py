@@ -41,6 +41,7 @@ class StagePlan:
     components: list[Component]
     opamps: list[OpAmpUse]
     notes: list = field(default_factory=list)
+    predistortion: object = None
 
     @property
     def refs(self) -> dict[str, str]:

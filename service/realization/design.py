@@ -15,6 +15,7 @@ from dataclasses import replace
 import numpy as np
 
 from service.approximation.types import Section
+from service.circuit import OpAmpModel
 from service.realization.analysis import StagePlan, analyze
 from service.realization.cascade import distribute_gains, gain_freedom, order_sections
 from service.realization.errors import (
@@ -247,12 +248,13 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
     kinds = {p.kind for sec, (t, s) in zip(stage_secs, picks) for p in t.parts(sec, s)}
     allowed = {k: resolve_kind(policy, k) for k in sorted(kinds)}
 
+    model = None if spec is None else OpAmpModel(gbw_hz=spec.gbw_hz, a0=spec.a0, rout_ohm=spec.rout_ohm)
     plans: list[StagePlan] = []
     counters = {"resistor": 0, "capacitor": 0, "opamp": 0}
     prefix = {"resistor": "R", "capacitor": "C", "opamp": "U"}
     for k, (stage_sec, (t, s)) in enumerate(zip(stage_secs, picks)):
         sel = select_values(t, stage_sec, s, allowed, exact=exact, impedance_ohm=impedance_ohm,
-                            field=f"stages[{k}]")
+                            field=f"stages[{k}]", opamp_model=model)
         comps = []
         for p in t.parts(stage_sec, s):
             counters[p.kind] += 1
@@ -274,7 +276,8 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
                 ops.append(OpAmpUse(ref=ref, role=role, gbw_hz=spec.gbw_hz, slew_v_per_us=spec.slew_v_per_us,
                                     a0_db=spec.a0_db, output_swing_v=spec.output_swing_v, supply_v=spec.supply_v,
                                     rout_ohm=spec.rout_ohm, part_id=spec.part_id))
-        plans.append(StagePlan(section=stage_sec, topology=t, strategy=s, components=comps, opamps=ops))
+        plans.append(StagePlan(section=stage_sec, topology=t, strategy=s, components=comps, opamps=ops,
+                               predistortion=sel.predistortion))
 
     req = dict(requirement) if requirement else {}
     edges = _edges(approximation, requirement)
