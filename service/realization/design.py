@@ -58,7 +58,7 @@ def get_topology(name: str, field: str):
 def check_realizes(topology, section: Section, field: str) -> tuple[str, ...]:
     """The strategies ``topology`` offers for ``section``; :class:`UnsupportedSection` if none."""
     kinds = getattr(topology, "kinds", frozenset())
-    ok = section.kind in kinds
+    ok = section.kind in kinds and section.order == getattr(topology, "order", section.order)
     strategies: tuple[str, ...] = ()
     if ok:
         try:
@@ -208,13 +208,25 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
     topo_in = _per_section(topology, n, "topology")
     strat_in = _per_section(strategy, n, "strategy")
 
+    model = None if spec is None else OpAmpModel(gbw_hz=spec.gbw_hz, a0=spec.a0, rout_ohm=spec.rout_ohm)
     chosen = []
     for i, sec in enumerate(sections):
         name = topo_in[i]
-        tfield = f"topology[{i}]" if isinstance(topology, (list, tuple)) else "topology"
-        sfield = f"strategy[{i}]" if isinstance(strategy, (list, tuple)) else "strategy"
+        listed = isinstance(topology, (list, tuple))
+        tfield = f"topology[{i + 1}]" if listed else "topology"
+        sfield = f"strategy[{i + 1}]" if isinstance(strategy, (list, tuple)) else "strategy"
+        given = TOPOLOGIES.get(name) if isinstance(name, str) else None
+        if given is not None and given.order != sec.order:
+            if listed:
+                raise UnsupportedSection(
+                    f"section {i + 1} is of order {sec.order}; the {name} topology named for it realizes "
+                    f"order-{given.order} sections", field=tfield)
+            # One name for every section: a section of the other order takes the automatic choice.
+            name = "auto"
+            if not isinstance(strategy, (list, tuple)):
+                strat_in[i] = None
         if name == "auto" or name is None:
-            t, auto_s = auto_topology(sec, opamp_gbw_hz=spec.gbw_hz if spec else None)
+            t, auto_s = auto_topology(sec, opamp_model=model, gbw_error=gbw_error)
             strategies = check_realizes(t, sec, tfield)
             s = check_strategy(t, sec, strat_in[i], strategies, sfield) if strat_in[i] is not None else auto_s
         else:
@@ -248,7 +260,6 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
     kinds = {p.kind for sec, (t, s) in zip(stage_secs, picks) for p in t.parts(sec, s)}
     allowed = {k: resolve_kind(policy, k) for k in sorted(kinds)}
 
-    model = None if spec is None else OpAmpModel(gbw_hz=spec.gbw_hz, a0=spec.a0, rout_ohm=spec.rout_ohm)
     plans: list[StagePlan] = []
     counters = {"resistor": 0, "capacitor": 0, "opamp": 0}
     prefix = {"resistor": "R", "capacitor": "C", "opamp": "U"}
