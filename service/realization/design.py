@@ -209,6 +209,7 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
     strat_in = _per_section(strategy, n, "strategy")
 
     model = None if spec is None else OpAmpModel(gbw_hz=spec.gbw_hz, a0=spec.a0, rout_ohm=spec.rout_ohm)
+    spans = tuple(float(a.values[-1] / a.values[0]) for a in (resolve_kind(policy, k) for k in ("resistor", "capacitor")))
     chosen = []
     for i, sec in enumerate(sections):
         name = topo_in[i]
@@ -226,7 +227,7 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
             if not isinstance(strategy, (list, tuple)):
                 strat_in[i] = None
         if name == "auto" or name is None:
-            t, auto_s = auto_topology(sec, opamp_model=model, gbw_error=gbw_error)
+            t, auto_s = auto_topology(sec, opamp_model=model, gbw_error=gbw_error, spans=spans)
             strategies = check_realizes(t, sec, tfield)
             s = check_strategy(t, sec, strat_in[i], strategies, sfield) if strat_in[i] is not None else auto_s
         else:

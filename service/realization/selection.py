@@ -46,7 +46,6 @@ from dataclasses import dataclass
 import numpy as np
 
 from service.approximation.types import Section, SectionKind
-from service.components import snap_to_series
 from service.realization.errors import InfeasibleStage, RealizationError
 from service.realization.parts import Allowed
 from service.realization.predistortion import Predistortion, model_figures, predistort, target_gain
@@ -68,7 +67,13 @@ CAP_CANDIDATES_KEPT = 16
 BEAM_WIDTH = 32
 #: Allowed values tried for each part around its continuous best value.
 BEAM_OPTIONS = 4
-#: Farthest a part moves from its ideal value in the beam search, in steps of its list of values.
+#: Decades beyond the allowed range a dependent part may go when no candidate keeps every part in range.
+OUT_OF_RANGE_DECADES = 2.0
+#: Score per decade a part lies outside its range (when no candidate keeps every part in).
+EXCESS_WEIGHT = 0.1
+#: Ridge (relative to the trace of J J^T) of the beam search's least-squares steps.
+RIDGE = 1e-10
+#: Farthest a part moves from its ideal value in the beam search, in steps of the coarsest list of values.
 BEAM_REACH = 1.5
 #: Weight of the largest move (log value) in the beam's ranking: among equally good choices,
 #: the one nearer the ideal values (where the linearization is accurate) goes first.
@@ -392,7 +397,8 @@ def _beam(jac: np.ndarray, e0: np.ndarray, x0: np.ndarray, logv: list, order: np
         The order the parts are fixed in.
     steps : ndarray, shape (m,)
         Typical log step of each part's allowed values; a part moves at most
-        :data:`BEAM_REACH` steps from its ideal value (the linearization holds near it).
+        :data:`BEAM_REACH` times the largest of them from its ideal value (the linearization
+        holds near it, and a fine-series part can still make up for a coarse one).
 
     Returns
     -------
@@ -403,12 +409,27 @@ def _beam(jac: np.ndarray, e0: np.ndarray, x0: np.ndarray, logv: list, order: np
     beam_ix = np.zeros((k, 1, m), dtype=int)
     beam_d = np.zeros((k, 1, m))                 # chosen log offsets (0 where not fixed yet)
     err = e0[:, None, :]                          # (K, B, F) error with the fixed parts' offsets
+    max_step = float(np.max(steps))
+    eye = np.eye(f)
+    # Gram matrices J J^T (K, F, F) of the parts not yet fixed, from the last part backwards; the
+    # minimum-norm least-squares step of a set of parts is J^T (J J^T)^-1 applied to the error,
+    # with a tiny ridge where the remaining parts cannot move some figure (rank-deficient J).
+    cols = jac[:, :, order]                                              # (K, F, m) in fixing order
+    outer = cols[:, :, None, :] * cols[:, None, :, :]                    # (K, F, F, m)
+    gram = np.cumsum(outer[..., ::-1], axis=-1)[..., ::-1]               # gram[..., t]: parts t.. m-1
+    scale = np.trace(gram[..., 0], axis1=1, axis2=2)[:, None, None] + 1e-300
+    ridge = RIDGE * scale * eye
+
+    def inv(t):
+        return np.linalg.inv(gram[..., t] + ridge) if t < m else np.zeros((k, f, f))
+
+    inv_next = inv(0)
     for t, p in enumerate(order):
         rest = order[t + 1:]
-        both = np.concatenate([[p], rest])
-        pin = np.linalg.pinv(jac[:, :, both])                           # (K, 1+r, F)
-        target = x0[:, p][:, None] - (err @ pin[:, 0, :, None])[..., 0]  # continuous value of part p, (K, B)
-        reach = BEAM_REACH * steps[p]
+        inv_both, inv_next = inv_next, inv(t + 1)
+        row = jac[:, :, p][:, None, :] @ inv_both                         # (K, 1, F): p's row of J^T (J J^T)^-1
+        target = x0[:, p][:, None] - (err @ row.transpose(0, 2, 1))[..., 0]   # continuous value of part p, (K, B)
+        reach = BEAM_REACH * max_step
         target = np.clip(target, x0[:, p][:, None] - reach, x0[:, p][:, None] + reach)
         lv = logv[p]
         n = lv.size
@@ -418,8 +439,7 @@ def _beam(jac: np.ndarray, e0: np.ndarray, x0: np.ndarray, logv: list, order: np
         new_err = err[:, :, None, :] + d[..., None] * jac[:, None, None, :, p]      # (K, B, O, F)
         bsz, o = d.shape[1], d.shape[2]
         if rest.size:
-            jr = jac[:, :, rest]                                         # (K, F, r)
-            comp = np.eye(f) - jr @ np.linalg.pinv(jr)                  # (K, F, F): what the rest cannot absorb
+            comp = eye - gram[..., t + 1] @ inv_next                     # (K, F, F): what the rest cannot absorb
             resid = new_err.reshape(k, bsz * o, f) @ comp.transpose(0, 2, 1)
         else:
             resid = new_err.reshape(k, bsz * o, f)
@@ -528,13 +548,22 @@ def select_values(topology, section: Section, strategy: str, allowed: dict[str, 
             field=field,
         )
 
+    dep_allowed = allowed
     if not all_in.any():
-        return _out_of_range_choice(topology, section, design_section, strategy, allowed, specs, fixed, chosen,
-                                    ideal, levels, finite, r_pref, weight, exact, field, opamp_model, pre)
+        # Every candidate pushes some part outside its range: the dependent parts may then take series
+        # values beyond it (stock values stay as they are), ranked by how far out they are.
+        dep_allowed = {kind: _extended(a) if (a.series is not None and not exact) else a
+                       for kind, a in allowed.items()}
+        for p in fixed:
+            if not exact:
+                chosen[p.role], _ = _snap(dep_allowed[p.kind], ideal[p.role], exact)
 
     # Step 1: rank the capacitor choices by their nearest-snapped closed-form score.
     score = _score(topology, design_section, section, strategy, chosen, specs, levels, weight, n)
-    score = np.where(all_in & finite, score, np.inf)
+    if all_in.any():
+        score = np.where(all_in & finite, score, np.inf)
+    else:
+        score = np.where(finite, score + _excess(allowed, specs, chosen, n), np.inf)
     if not np.isfinite(score).any():
         raise InfeasibleStage(
             f"the {topology.name} topology ({strategy}) gives no candidate with finite f0 and Q for the "
@@ -557,7 +586,7 @@ def select_values(topology, section: Section, strategy: str, allowed: dict[str, 
 
     # Step 2: a linear screen of the dependent parts' combinations, then the closed form on the best.
     with np.errstate(all="ignore"):
-        values, origin = _screen(topology, design_section, section, strategy, allowed, specs, free, snapped,
+        values, origin = _screen(topology, design_section, section, strategy, dep_allowed, specs, free, snapped,
                                  chosen, ideal, keep, gain_t, ratio)
     lv = levels[keep][origin]
     total = lv.size
@@ -565,6 +594,8 @@ def select_values(topology, section: Section, strategy: str, allowed: dict[str, 
     if ratio is not None:
         figs = _corrected(figs, {kk: v[origin] for kk, v in ratio.items()})
     err = _figure_error(section, gain_t, figs, total) + _impedance(specs, values, lv, weight, total)
+    if not all_in.any():
+        err = err + _excess(allowed, specs, values, total)
     err = np.where(np.isfinite(err), err, np.inf)
     predicted_model = None
     if opamp_model is not None and np.isfinite(err).any():
@@ -575,6 +606,8 @@ def select_values(topology, section: Section, strategy: str, allowed: dict[str, 
         with np.errstate(all="ignore"):
             mod = model_figures(topology, design_section, strategy, sub, opamp_model, target=section)
         exact_err = _figure_error(section, gain_t, mod, top.size) + _impedance(specs, sub, lv[top], weight, top.size)
+        if not all_in.any():
+            exact_err = exact_err + _excess(allowed, specs, sub, top.size)
         exact_err = np.where(np.isfinite(exact_err), exact_err, np.inf)
         if np.isfinite(exact_err).any():
             i = int(np.argmin(exact_err))
@@ -617,38 +650,23 @@ def _selection(topology, design_section, strategy, allowed, specs, values, ideal
                      combinations=combinations)
 
 
-def _out_of_range_choice(topology, section, design_section, strategy, allowed, specs, fixed, chosen, ideal, levels,
-                         finite, r_pref, weight, exact, field, opamp_model, pre) -> Selection:
-    """Every candidate pushes some part outside its range: re-snap those to the whole series
-    (stock values stay as they are) and rank by how far out they are (no joint search)."""
-    n = levels.size
-    for p in fixed:
-        a = allowed[p.kind]
-        if a.series is not None and not exact:
-            ideal_p = ideal[p.role]
-            ok = np.isfinite(ideal_p) & (ideal_p > 0)
-            chosen[p.role] = np.where(ok, snap_to_series(np.where(ok, ideal_p, 1.0), a.series), np.nan)
-    score = _score(topology, design_section, section, strategy, chosen, specs, levels, weight, n)
+def _extended(a: Allowed) -> Allowed:
+    """``a`` with its series values continued :data:`OUT_OF_RANGE_DECADES` beyond its range on both sides."""
+    from service.components import series_values_in_range
+
+    span = 10.0 ** OUT_OF_RANGE_DECADES
+    values = np.asarray(series_values_in_range(a.series, a.low / span, a.high * span), dtype=float)
+    m = values.size
+    return Allowed(kind=a.kind, values=values, tolerance=np.full(m, float(a.tolerance[0])),
+                   dielectric=(a.dielectric[0],) * m, part_id=(None,) * m, series=a.series, low=a.low, high=a.high)
+
+
+def _excess(allowed, specs, values, n) -> np.ndarray:
+    """How far the values lie outside their allowed ranges (decades summed over parts, times
+    :data:`EXCESS_WEIGHT`), shape (n,)."""
     excess = np.zeros(n)
     for p in specs:
         a = allowed[p.kind]
-        v = np.where(np.isfinite(chosen[p.role]), chosen[p.role], 1.0)
-        excess += np.maximum(0.0, np.log10(a.low / v)) + np.maximum(0.0, np.log10(v / a.high))
-    score = np.where(finite, score + excess, np.inf)
-    if not np.isfinite(score).any():
-        raise InfeasibleStage(
-            f"the {topology.name} topology ({strategy}) gives no candidate with finite f0 and Q for the "
-            f"{section.kind.value} section at f0 = {section.f0_hz:g} Hz",
-            field=field,
-        )
-    best = int(np.argmin(score))
-    values = {p.role: float(chosen[p.role][best]) for p in specs}
-    predicted_model = None
-    if opamp_model is not None:
-        with np.errstate(all="ignore"):
-            mod = model_figures(topology, design_section, strategy, {k: np.array([v]) for k, v in values.items()},
-                                opamp_model, target=section)
-        predicted_model = {k: float(np.asarray(v)[0]) for k, v in mod.items()}
-    return _selection(topology, design_section, strategy, allowed, specs, values,
-                      {p.role: float(ideal[p.role][best]) for p in specs}, float(score[best]), float(levels[best]),
-                      predicted_model, pre, n)
+        v = np.where(np.isfinite(values[p.role]) & (values[p.role] > 0), values[p.role], 1.0)
+        excess = excess + np.maximum(0.0, np.log10(a.low / v)) + np.maximum(0.0, np.log10(v / a.high))
+    return EXCESS_WEIGHT * excess

@@ -264,9 +264,10 @@ def test_registry_and_describe():
     # Q 4-6: the Sallen-Key and MFB lowpass capacitor spreads (4 Q^2 and more) exceed the limit
     (Section(K.LOWPASS, 2, 1e3, 6.0, None, 1.0), "tow_thomas", "given_gain"),
     (Section(K.BANDPASS, 2, 1e3, 5.0, None, 1.0), "multiple_feedback", "given_gain"),
-    # Q 12: the MFB bandpass resistor spread (about 4 Q^2) is beyond the limit; of the three-op-amp stages the
+    (Section(K.BANDPASS, 2, 1e3, 12.0, None, 1.0), "multiple_feedback", "given_gain"),
+    # Q 25: the MFB bandpass resistor spread (about 4 Q^2) is beyond the limit; of the three-op-amp stages the
     # state-variable bandpass output keeps the sign, the Tow-Thomas one inverts
-    (Section(K.BANDPASS, 2, 1e3, 12.0, None, 1.0), "state_variable", "given_gain"),
+    (Section(K.BANDPASS, 2, 1e3, 25.0, None, 1.0), "state_variable", "given_gain"),
     # a mains notch of gain 1: the bootstrapped twin-T realizes it exactly with one op-amp
     (Section(K.NOTCH, 2, 50.0, 5.0, 50.0, 1.0), "twin_t_notch", "unity_gain"),
     # at Q 9 the twin-T's Q sensitivity (4 Q - 1 for its divider alone) is beyond the limit

@@ -13,7 +13,8 @@ Rule (stated in the catalog, :func:`describe_auto`):
 
    - Q is at most the candidate's :data:`MAX_Q`,
    - the resistor spread (largest / smallest) is at most :data:`MAX_RESISTOR_SPREAD`
-     and the capacitor spread at most :data:`MAX_CAPACITOR_SPREAD`,
+     and the capacitor spread at most :data:`MAX_CAPACITOR_SPREAD` (and neither beyond
+     the spread of the values the caller allows),
    - the Q sensitivity ``sum |S^Q_x|`` over its parts is at most :data:`MAX_Q_SENSITIVITY`,
    - with an op-amp given: the relative f0/Q shift the op-amp causes is at most
      :data:`service.realization.gbw.PREDISTORTION_MAX_SHIFT`, and what is left of it
@@ -72,9 +73,9 @@ MAX_Q = {
     "state_variable": 200.0,
 }
 #: Largest resistor spread (largest / smallest resistance of a stage).
-#: common practice (no source): within about two and a half decades, so that every resistor of a
+#: common practice (no source): within three decades, so that every resistor of a
 #: stage fits the default 1 kohm - 1 Mohm range with room to move the impedance level.
-MAX_RESISTOR_SPREAD = 300.0
+MAX_RESISTOR_SPREAD = 1000.0
 #: Largest capacitor spread (largest / smallest capacitance of a stage).
 #: common practice (no source): C0G parts beyond about 50:1 leave the small one near
 #: board capacitance or the large one beyond the C0G range.
@@ -190,8 +191,12 @@ def _representative(topology: Topology, section: Section, strategy: str) -> dict
 
 
 def assess(topology: Topology, strategy: str, section: Section, opamp_model=None,
-           gbw_error: float = 0.01) -> Assessment | None:
-    """The candidate's figures at the representative design (None when it cannot realize the section)."""
+           gbw_error: float = 0.01, spans: tuple[float, float] | None = None) -> Assessment | None:
+    """The candidate's figures at the representative design (None when it cannot realize the section).
+
+    ``spans`` (resistor, capacitor): the ratio of the largest to the smallest value the caller
+    allows of each kind; a spread beyond it (or beyond the stated limit) is out of the limits.
+    """
     from service.realization.gbw import GBW_SPREAD, PREDISTORTION_MAX_SHIFT
 
     values = _representative(topology, section, strategy)
@@ -204,8 +209,11 @@ def assess(topology: Topology, strategy: str, section: Section, opamp_model=None
     c_spread = max(cap) / min(cap) if cap else 1.0
     sens = topology.sensitivities(section, strategy, values)
     q_sens = float(sum(abs(s[1]) for s in sens.values()))
-    ratios = [section.q / MAX_Q.get(topology.name, math.inf), r_spread / MAX_RESISTOR_SPREAD,
-              c_spread / MAX_CAPACITOR_SPREAD, q_sens / MAX_Q_SENSITIVITY]
+    r_max, c_max = MAX_RESISTOR_SPREAD, MAX_CAPACITOR_SPREAD
+    if spans is not None:
+        r_max, c_max = min(r_max, spans[0]), min(c_max, spans[1])
+    ratios = [section.q / MAX_Q.get(topology.name, math.inf), r_spread / r_max, c_spread / c_max,
+              q_sens / MAX_Q_SENSITIVITY]
     shift = None
     if opamp_model is not None:
         from service.realization.predistortion import model_figures
@@ -236,7 +244,7 @@ def _first_order(section: Section) -> tuple[Topology, str]:
 
 
 @lru_cache(maxsize=512)
-def _choose(section: Section, model_key, gbw_error: float) -> tuple[Topology, str]:
+def _choose(section: Section, model_key, gbw_error: float, spans) -> tuple[Topology, str]:
     opamp_model = None
     if model_key is not None:
         from service.circuit import OpAmpModel
@@ -251,7 +259,7 @@ def _choose(section: Section, model_key, gbw_error: float) -> tuple[Topology, st
     found = []
     for count in sorted({o[0] for o in options}):
         group = [a for _, top, strategy in (o for o in options if o[0] == count)
-                 if (a := assess(top, strategy, section, opamp_model, gbw_error)) is not None]
+                 if (a := assess(top, strategy, section, opamp_model, gbw_error, spans)) is not None]
         found += group
         accepted = [a for a in group if a.accepted]
         if accepted:
@@ -266,7 +274,7 @@ def _choose(section: Section, model_key, gbw_error: float) -> tuple[Topology, st
 
 
 def auto_topology(section: Section, *, opamp_gbw_hz: float | None = None, opamp_model=None,
-                  gbw_error: float = 0.01) -> tuple[Topology, str]:
+                  gbw_error: float = 0.01, spans: tuple[float, float] | None = None) -> tuple[Topology, str]:
     """Default ``(topology, strategy)`` for ``section`` by the rule of the module docstring.
 
     Parameters
@@ -279,6 +287,9 @@ def auto_topology(section: Section, *, opamp_gbw_hz: float | None = None, opamp_
         The op-amp's single-pole macromodel.
     gbw_error : float
         Relative f0/Q error the GBW criterion is for.
+    spans : (float, float), optional
+        Largest / smallest value the caller allows of resistors and of capacitors (a stock list of
+        capacitors one decade wide cannot give a stage a 30:1 capacitor ratio).
 
     Returns
     -------
@@ -296,7 +307,9 @@ def auto_topology(section: Section, *, opamp_gbw_hz: float | None = None, opamp_
         key = (float(opamp_model.gbw_hz), float(opamp_model.a0), float(opamp_model.rout_ohm))
     elif opamp_gbw_hz is not None:
         key = (float(opamp_gbw_hz), 1e5, 0.0)
-    return _choose(section, key, float(gbw_error))
+    if spans is not None:
+        spans = (float(spans[0]), float(spans[1]))
+    return _choose(section, key, float(gbw_error), spans)
 
 
 def describe_auto() -> dict:
