@@ -28,19 +28,22 @@ nearest allowed value on its own leaves errors that add up (two resistors
    (:mod:`service.realization.predistortion`).
 
 The score of a combination is the worst of ``Q_w |df0/f0|``, ``|dQ/Q|``,
-``W_z |dfz/fz|`` and ``2 |zeta_z|`` (zero damping of the notch kinds), plus
+``W_z |dfz/fz|`` and the notch depth the zero damping ``zeta_z`` leaves at fz
+(relative to the DC gain, :func:`_depth_weight`), plus
 a small gain-error term and an impedance term ``w * mean|log10(R / R_ref)|``
 that steers resistors toward the preferred level.  The weights follow the
 response: near f0 a biquad's log-magnitude moves about ``Q`` times as much
-as f0 does (``Q_w = max(1, Q)``), and a zero close to the pole frequency
-sets a nearby stopband edge ``W_z = fz/|fz - f0|`` times more strongly
-(capped at 10); the gain only scales the whole response.  A candidate with
+as f0 does (``Q_w = max(1, Q)``), and a zero sets the stopband around it
+several times more strongly than it moves, the more so the closer it is to
+the pole frequency (``W_z = fz/|fz - f0|`` within 3 and 10; 10 for a notch);
+the gain only scales the whole response.  A candidate with
 a part outside its allowed range is dropped; only when every candidate has
 one does the search keep the least-outside candidate and say so.
 """
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -82,7 +85,9 @@ BEAM_MOVE_WEIGHT = 0.01
 MODEL_CANDIDATES = 24
 #: Relative step (in log value) of the finite-difference sensitivities of the screen.
 FD_STEP = 1e-5
-#: Cap on the weight of a zero-frequency error.
+#: Bounds of the weight of a zero-frequency error: a stopband's attenuation between two zeros moves
+#: several times as much as the zeros do (common practice, no source).
+ZERO_WEIGHT_MIN = 3.0
 ZERO_WEIGHT_MAX = 10.0
 
 
@@ -249,11 +254,23 @@ def _cap_stage(topology, section, strategy, allowed, specs, free, fixed, r_pref,
 def _weights(section: Section) -> tuple[float, float]:
     """``(Q_w, W_z)``: weights of the f0 and fz errors (module docstring)."""
     qw = max(1.0, float(section.q)) if section.order == 2 and section.q else 1.0
-    wz = 1.0
+    wz = ZERO_WEIGHT_MIN
     if section.fz_hz and section.kind in (SectionKind.LOWPASS_NOTCH, SectionKind.HIGHPASS_NOTCH):
         gap = abs(section.fz_hz - section.f0_hz)
         wz = min(ZERO_WEIGHT_MAX, section.fz_hz / gap) if gap > 0 else ZERO_WEIGHT_MAX
-    return qw, max(1.0, wz)
+    elif section.kind == SectionKind.NOTCH:
+        wz = ZERO_WEIGHT_MAX
+    return qw, max(ZERO_WEIGHT_MIN, wz)
+
+
+def _depth_weight(section: Section) -> float:
+    """``2 / |1 - rho + j sqrt(rho)/Q|``: the notch depth at fz (relative to the DC gain) per unit of zero damping.
+
+    With ``N = s^2 + 2 zeta wz s + wz^2`` the section's gain at ``s = j wz`` over its DC gain is
+    ``2 zeta / |1 - rho + j sqrt(rho)/Q|``, ``rho = wz^2/w0^2`` (from the standard form).
+    """
+    rho = (float(section.fz_hz) / section.f0_hz) ** 2
+    return 2.0 / abs(complex(1.0 - rho, math.sqrt(rho) / float(section.q)))
 
 
 def _figure_error(section: Section, gain: float, figs: dict, n: int) -> np.ndarray:
@@ -269,7 +286,7 @@ def _figure_error(section: Section, gain: float, figs: dict, n: int) -> np.ndarr
     if figs.get("fz_hz") is not None and section.fz_hz:
         err = np.maximum(err, wz * np.abs(col("fz_hz") / section.fz_hz - 1))
     if figs.get("zero_damping") is not None:
-        err = np.maximum(err, 2.0 * np.abs(col("zero_damping")))
+        err = np.maximum(err, _depth_weight(section) * np.abs(col("zero_damping")))
     if gain:
         err = err + GAIN_WEIGHT * np.abs(col("gain") / gain - 1)
     return err
@@ -314,7 +331,7 @@ def _error_vector(target: Section, gain: float, figs: dict, n: int) -> np.ndarra
     if figs.get("fz_hz") is not None and target.fz_hz:
         cols.append(wz * np.log(np.abs(col("fz_hz") / target.fz_hz)))
     if figs.get("zero_damping") is not None:
-        cols.append(2.0 * col("zero_damping"))
+        cols.append(_depth_weight(target) * col("zero_damping"))
     if gain:
         cols.append(GAIN_WEIGHT * np.log(np.abs(col("gain") / gain)))
     return np.stack(cols, axis=1)
