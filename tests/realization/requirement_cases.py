@@ -8,7 +8,8 @@ the pass rate::
 Each case is a requirement (response, family, band edges from audio to 1 MHz,
 ripple, attenuation), a parts policy (E12/E24/E96 series or a small stock
 list) and an op-amp the service calls adequate: the smallest GBW of a list of
-common figures for which the design reports no ``opamp_gbw_short``.  The
+common figures that every stage's op-amp requirement accepts (a predistorted
+stage: ``gbw_required_predistorted_hz``; otherwise ``gbw_required_hz``).  The
 approximation is designed for a tightened requirement as the service does for
 ``/v1/designs`` (passband loss reduced by a quarter of the ripple), the stages
 are realized with that op-amp, and the exported netlist (single-pole op-amp
@@ -66,6 +67,7 @@ class Outcome:
     claimed_meets: bool | None
     note: str = ""
     stages: list = field(default_factory=list)
+    adequate: bool = True
 
 
 def _stock(center_f: float, rng) -> list[dict]:
@@ -134,9 +136,24 @@ def design(case: Case, design_filter, design_by_requirement, opamp_gbw: float | 
     d = None
     for gbw in choices:
         d = design_filter(approx, parts=case.parts, opamp={"gbw_hz": gbw}, requirement=req)
-        if not any(w.code == "opamp_gbw_short" for w in d.warnings):
+        if adequate(d, gbw):
             return d, gbw
     return d, choices[-1]
+
+
+def adequate(d, gbw: float) -> bool:
+    """Whether the service calls the op-amp adequate for every stage of ``d``.
+
+    A predistorted stage needs the GBW its ``gbw_required_predistorted_hz`` states (the nominal
+    shift is designed out, the GBW's spread is what is left); a stage used as designed needs its
+    ``gbw_required_hz``.
+    """
+    for st in d.stages:
+        req = st.opamp_requirement
+        need = req.gbw_required_predistorted_hz if getattr(req, "predistorted", False) else req.gbw_required_hz
+        if need is None or gbw < need:
+            return False
+    return True
 
 
 def _segments(case: Case, gbw: float | None):
@@ -191,7 +208,8 @@ def check(case: Case, d, gbw: float | None) -> Outcome:
             worst, where = float(margin[j]), float(f[m][j])
     ops = sum(len(s.opamps) for s in d.stages)
     stages = [f"{s.topology}/{s.section.kind.value}/Q{(s.section.q or 0):.3g}" for s in d.stages]
-    return Outcome(case, worst >= -MARGIN_TOLERANCE_DB, worst, where, gbw, ops, d.summary.get("meets"), stages=stages)
+    return Outcome(case, worst >= -MARGIN_TOLERANCE_DB, worst, where, gbw, ops, d.summary.get("meets"), stages=stages,
+                   adequate=adequate(d, gbw))
 
 
 def _exact_points(netlist: str, freqs: np.ndarray):
