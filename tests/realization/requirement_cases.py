@@ -32,7 +32,7 @@ from tests.ngspice import run_ngspice_ac
 RESPONSES = ("lowpass", "highpass", "bandpass", "bandstop")
 FAMILIES = ("butterworth", "chebyshev1", "chebyshev2", "elliptic", "bessel", "legendre", "linkwitz_riley")
 #: Common gain-bandwidth products of op-amp types (Hz), ascending.
-GBW_CHOICES = (1e6, 3e6, 10e6, 30e6, 100e6, 300e6, 1e9)
+GBW_CHOICES = (1e6, 3e6, 10e6, 30e6, 100e6, 300e6, 1e9, 3e9)
 #: Fraction of the ripple taken off the passband loss before the approximation (as the service does).
 PASSBAND_MARGIN_FRACTION = 0.25
 #: Points per decade of the ngspice check.
@@ -82,48 +82,78 @@ def _stock(center_f: float, rng) -> list[dict]:
             for k, v in enumerate(vals[lo:lo + 6])]
 
 
+#: Largest section Q and transfer-function order a generated requirement may need (beyond them it is
+#: drawn again): a practical filter, buildable with a real op-amp.
+MAX_Q = 30.0
+MAX_ORDER = 16
+
+
+def _practical(case: "Case") -> bool:
+    from service.approximation import design_by_requirement
+
+    try:
+        a = design_by_requirement(case.response, case.family, case.passband_hz, case.stopband_hz,
+                                  case.ripple_db * (1 - PASSBAND_MARGIN_FRACTION), case.attenuation_db)
+    except Exception:
+        return False
+    return a.order <= MAX_ORDER and max((s.q or 0.0) for s in a.sections) <= MAX_Q
+
+
 def generate(seed: int = 12, count: int = 48) -> list[Case]:
-    """``count`` requirements, every response and family, from a seeded generator."""
+    """``count`` requirements, every response and family, from a seeded generator.
+
+    A draw whose approximation needs a Q above :data:`MAX_Q` or an order above :data:`MAX_ORDER`
+    is drawn again.
+    """
     rng = np.random.default_rng(seed)
     cases = []
-    for i in range(count):
-        response = RESPONSES[i % 4]
-        family = FAMILIES[(i // 4 + i) % len(FAMILIES)]
-        bessel = family == "bessel"
-        if response in ("bandpass", "bandstop") and bessel:
-            family = "butterworth"
-            bessel = False
-        f = float(10 ** rng.uniform(math.log10(50.0), math.log10(200e3 if response in ("lowpass", "bandstop") else 1e6 / 3)))
-        ripple = 3.0 if bessel else float(rng.choice([0.1, 0.25, 0.5, 1.0]))
-        att = float(rng.uniform(20, 35)) if bessel else float(rng.uniform(30, 70))
-        if response in ("lowpass", "highpass"):
-            ratio = float(rng.uniform(4.0, 8.0)) if bessel else float(rng.uniform(1.3, 3.0))
-            if response == "lowpass":
-                pb, sb = f, f * ratio
-            else:
-                pb, sb = min(f * ratio, 1e6), min(f * ratio, 1e6) / ratio
-        else:
-            bw = float(rng.uniform(0.15, 0.8))               # relative passband (bandpass) / stopband (bandstop)
-            ratio = float(rng.uniform(1.6, 3.0))
-            lo, hi = f / math.sqrt(1 + bw), f * math.sqrt(1 + bw)
-            if response == "bandpass":
-                pb, sb = (lo, hi), (lo / ratio ** 0.5, hi * ratio ** 0.5)
-            else:
-                sb, pb = (lo, hi), (lo / ratio ** 0.5, hi * ratio ** 0.5)
-        kind = i % 5
-        if kind == 0:
-            parts = {"resistors": {"series": "E96"}, "capacitors": {"series": "E12"}}
-        elif kind == 1:
-            parts = {"resistors": {"series": "E24"}, "capacitors": {"series": "E6"}}
-        elif kind == 2:
-            parts = {"resistors": {"series": "E12"}, "capacitors": {"series": "E12"}}
-        elif kind == 3:
-            parts = {"resistors": {"series": "E96"}, "capacitors": {"stock": _stock(f, rng)}}
-        else:
-            parts = {"resistors": {"series": "E24"}, "capacitors": {"series": "E24"}}
-        cases.append(Case(f"{i:02d}-{response}-{family}-{f:.4g}Hz-{list(parts['resistors'].values())[0]}",
-                          response, family, pb, sb, ripple, att, parts))
+    i = 0
+    while len(cases) < count:
+        case = _draw(len(cases), rng)
+        i += 1
+        if _practical(case):
+            cases.append(case)
     return cases
+
+
+def _draw(i: int, rng) -> "Case":
+    """One requirement (the i-th of the set: its response and family follow i)."""
+    response = RESPONSES[i % 4]
+    family = FAMILIES[(i // 4 + i) % len(FAMILIES)]
+    bessel = family == "bessel"
+    if response in ("bandpass", "bandstop") and bessel:
+        family = "butterworth"
+        bessel = False
+    f = float(10 ** rng.uniform(math.log10(50.0), math.log10(200e3 if response in ("lowpass", "bandstop") else 1e6 / 3)))
+    ripple = 3.0 if bessel else float(rng.choice([0.1, 0.25, 0.5, 1.0]))
+    att = float(rng.uniform(20, 35)) if bessel else float(rng.uniform(30, 70))
+    if response in ("lowpass", "highpass"):
+        ratio = float(rng.uniform(4.0, 8.0)) if bessel else float(rng.uniform(1.3, 3.0))
+        if response == "lowpass":
+            pb, sb = f, f * ratio
+        else:
+            pb, sb = min(f * ratio, 1e6), min(f * ratio, 1e6) / ratio
+    else:
+        bw = float(rng.uniform(0.15, 0.8))               # relative passband (bandpass) / stopband (bandstop)
+        ratio = float(rng.uniform(1.6, 3.0))
+        lo, hi = f / math.sqrt(1 + bw), f * math.sqrt(1 + bw)
+        if response == "bandpass":
+            pb, sb = (lo, hi), (lo / ratio ** 0.5, hi * ratio ** 0.5)
+        else:
+            sb, pb = (lo, hi), (lo / ratio ** 0.5, hi * ratio ** 0.5)
+    kind = i % 5
+    if kind == 0:
+        parts = {"resistors": {"series": "E96"}, "capacitors": {"series": "E12"}}
+    elif kind == 1:
+        parts = {"resistors": {"series": "E24"}, "capacitors": {"series": "E6"}}
+    elif kind == 2:
+        parts = {"resistors": {"series": "E12"}, "capacitors": {"series": "E12"}}
+    elif kind == 3:
+        parts = {"resistors": {"series": "E96"}, "capacitors": {"stock": _stock(f, rng)}}
+    else:
+        parts = {"resistors": {"series": "E24"}, "capacitors": {"series": "E24"}}
+    return Case(f"{i:02d}-{response}-{family}-{f:.4g}Hz-{list(parts['resistors'].values())[0]}",
+                response, family, pb, sb, ripple, att, parts)
 
 
 def design(case: Case, design_filter, design_by_requirement, opamp_gbw: float | None = None):
