@@ -26,7 +26,8 @@ Rule (stated in the catalog, :func:`describe_auto`):
    one that realizes the section's gain exactly, sign included (a fixed-gain
    stage leaves the rest of the gain to the other stages), then the one with the
    smallest Q sensitivity.  When no candidate is accepted, the one whose worst
-   figure is least beyond its limit is taken.
+   figure is least beyond its limit is taken, among those whose spreads the
+   caller's parts can give at all.
 3. ``allpass``: no topology yet -> :class:`UnsupportedSection`.
 
 The limits are common practice of the trade, not a single published figure;
@@ -106,7 +107,8 @@ AUTO_RULE = (
     "and, with an op-amp given, the GBW needed after predistortion are within the stated limits, at a "
     "representative design (capacitors at the preferred impedance level, ratio chosen for the smallest "
     "spread); among equals the one that realizes the section's gain exactly, then the smallest Q "
-    "sensitivity; when none is within the limits, the one least beyond them."
+    "sensitivity; when none is within the limits, the one least beyond them among those the allowed parts "
+    "can build."
 )
 
 
@@ -128,6 +130,9 @@ class Assessment:
         Relative f0/Q shift with the op-amp (None without one).
     excess : float
         Largest ratio of a figure to its limit (<= 1 when accepted).
+    fits_parts : bool
+        Whether its spreads fit within the spread of the values the caller allows (a hard bound:
+        a stage beyond it cannot be built from those parts at all).
     """
 
     topology: Topology
@@ -139,6 +144,7 @@ class Assessment:
     capacitor_spread: float
     gbw_shift: float | None
     excess: float
+    fits_parts: bool = True
 
     @property
     def accepted(self) -> bool:
@@ -228,8 +234,9 @@ def assess(topology: Topology, strategy: str, section: Section, opamp_model=None
         ratios += [shift / PREDISTORTION_MAX_SHIFT, shift * GBW_SPREAD / gbw_error]
     forced = topology.forced_gain(section, strategy)
     exact_gain = forced is None or bool(np.isclose(forced, section.gain, rtol=1e-9))
+    fits = spans is None or (r_spread <= spans[0] * (1 + 1e-9) and c_spread <= spans[1] * (1 + 1e-9))
     return Assessment(topology, strategy, len(topology.opamp_roles(section, strategy)), exact_gain, q_sens,
-                      r_spread, c_spread, shift, float(max(ratios)))
+                      r_spread, c_spread, shift, float(max(ratios)), fits)
 
 
 def _first_order(section: Section) -> tuple[Topology, str]:
@@ -269,7 +276,7 @@ def _choose(section: Section, model_key, gbw_error: float, spans) -> tuple[Topol
         raise UnsupportedSection(
             f"no topology realizes this {section.kind.value} section (f0 {section.f0_hz:.6g} Hz, Q {section.q}, "
             f"gain {section.gain:.6g})", field="section")
-    best = min(found, key=lambda a: (a.excess, a.opamps))
+    best = min(found, key=lambda a: (not a.fits_parts, a.excess, a.opamps))
     return best.topology, best.strategy
 
 
