@@ -363,3 +363,4 @@ def test_forced_gain_polarity():
     assert TOPOLOGIES["tow_thomas"].forced_gain(Section(K.BANDPASS, 2, 1e3, 0.8, None, 2.0), "given_gain") == -2.0
     assert TOPOLOGIES["state_variable"].forced_gain(Section(K.LOWPASS, 2, 1e3, 0.8, None, 2.0), "given_gain") == -2.0
     assert math.isclose(TOPOLOGIES["twin_t_notch"].forced_gain(Section(K.NOTCH, 2, 50.0, 2.0, 50.0, 1.0), "unity_gain"), 1.0)
+

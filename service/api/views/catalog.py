@@ -12,7 +12,7 @@ from service.api.extension import Blueprint
 from service.api.schemas.common import ReplySchema, StrictSchema
 from service.approximation import ResponseType, SectionKind, all_family_info
 from service.components import SERIES, SERIES_TOLERANCE, series_mantissas
-from service.realization.topologies import describe_all
+from service.realization.topologies import describe_all, describe_auto
 from service.version import API_VERSION, SERVICE_VERSION
 
 blp = Blueprint("catalog", __name__, url_prefix="/v1", description="What the service offers.")
@@ -43,6 +43,14 @@ class FamilySchema(ma.Schema):
     reference = ma.fields.String()
 
 
+class AutoTopologySchema(ma.Schema):
+    rule = ma.fields.String(metadata={"description": "The rule, in words."})
+    limits = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.Raw(), metadata={
+        "description": "The limits it applies (max_q per topology, spreads, sum of |S^Q|, the op-amp's shift)."})
+    candidates = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.List(ma.fields.String()), metadata={
+        "description": "Topologies considered per section kind, in order of preference."})
+
+
 class TopologySchema(ma.Schema):
     name = ma.fields.String()
     kinds = ma.fields.List(ma.fields.String(), metadata={"description": "Section kinds it realizes."})
@@ -62,6 +70,8 @@ class CatalogSchema(ReplySchema):
     families = ma.fields.List(ma.fields.Nested(FamilySchema))
     section_kinds = ma.fields.List(ma.fields.String())
     topologies = ma.fields.List(ma.fields.Nested(TopologySchema))
+    auto_topology = ma.fields.Nested(AutoTopologySchema, metadata={
+        "description": "How `topology: \"auto\"` chooses a stage's topology: the rule and its limits."})
     series = ma.fields.List(ma.fields.Nested(SeriesSchema))
     limits = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.Nested(LimitSchema))
     endpoints = ma.fields.List(ma.fields.String(), metadata={"description": "Operations this service answers."})
@@ -84,6 +94,7 @@ def build_catalog(settings) -> dict:
         "families": families,
         "section_kinds": [k.value for k in SectionKind],
         "topologies": describe_all(),
+        "auto_topology": describe_auto(),
         "series": [{"name": s, "values_per_decade": len(series_mantissas(s)), "tolerance": SERIES_TOLERANCE[s],
                     "values": list(series_mantissas(s))} for s in SERIES],
         "limits": settings.limits(),
