@@ -156,9 +156,11 @@ def analyze(plans: list[StagePlan], *, response: str | None, family: str | None,
             gbw_req = required_gbw_sweep(
                 lambda model, plan=plan: stage_circuit(plan, model), ref,
                 dominant_poles(sec, ideal_zpk[k][1]), error, rule, **sweep)
-            gbw_pre = required_gbw_sweep(
-                lambda model, plan=plan: stage_circuit(plan, model), ref,
-                dominant_poles(sec, ideal_zpk[k][1]), error, rule * GBW_SPREAD, spread=GBW_SPREAD, **sweep)
+            if u.gbw_hz is not None:
+                # with an op-amp given the stage is predistorted for it: what it needs then
+                gbw_pre = required_gbw_sweep(
+                    lambda model, plan=plan: stage_circuit(plan, model), ref,
+                    dominant_poles(sec, ideal_zpk[k][1]), error, rule * GBW_SPREAD, spread=GBW_SPREAD, **sweep)
         else:
             gbw_req = None
         pre = plan.predistortion
@@ -166,7 +168,7 @@ def analyze(plans: list[StagePlan], *, response: str | None, family: str | None,
             error=error, gbw_rule_hz=rule, gbw_required_hz=gbw_req,
             slew_required_v_per_us=slew_required(f_sig, v_peak) if plan.opamps else 0.0,
             signal_frequency_hz=f_sig, output_peak_v=v_peak, gbw_rule=RULE_OF_THUMB, slew_rule=SLEW_RULE,
-            gbw_required_predistorted_hz=gbw_pre, gbw_spread=GBW_SPREAD if plan.opamps else None,
+            gbw_required_predistorted_hz=gbw_pre, gbw_spread=GBW_SPREAD if gbw_pre is not None else None,
             predistorted=pre is not None,
             design_section=None if pre is None else {"f0_hz": pre.section.f0_hz, "q": pre.section.q,
                                                      "fz_hz": pre.section.fz_hz, "gain": pre.section.gain},

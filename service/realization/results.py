@@ -120,8 +120,8 @@ class OpAmpRequirement:
     gbw_required_predistorted_hz : float or None
         Smallest GBW (Hz) for which a stage predistorted for that GBW keeps
         f0 and Q within ``error`` when the part's GBW is off by ``gbw_spread``
-        (:func:`service.realization.gbw.spread_errors`); None when not computed
-        or when no GBW does.
+        (:func:`service.realization.gbw.spread_errors`); computed when an op-amp
+        is given (the stage is then predistorted for it), None otherwise or when no GBW does.
     gbw_spread : float or None
         The relative GBW spread that figure allows for.
     predistorted : bool
