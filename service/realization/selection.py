@@ -424,7 +424,6 @@ def _beam(jac: np.ndarray, e0: np.ndarray, x0: np.ndarray, logv: list, order: np
     """
     k, f, m = jac.shape
     beam_ix = np.zeros((k, 1, m), dtype=int)
-    beam_d = np.zeros((k, 1, m))                 # chosen log offsets (0 where not fixed yet)
     err = e0[:, None, :]                          # (K, B, F) error with the fixed parts' offsets
     max_step = float(np.max(steps))
     eye = np.eye(f)
@@ -441,36 +440,39 @@ def _beam(jac: np.ndarray, e0: np.ndarray, x0: np.ndarray, logv: list, order: np
         return np.linalg.inv(gram[..., t] + ridge) if t < m else np.zeros((k, f, f))
 
     inv_next = inv(0)
+    reach = BEAM_REACH * max_step
+    shifts = np.arange(-(BEAM_OPTIONS // 2) + 1, BEAM_OPTIONS // 2 + 1)
+    rows = np.arange(k)[:, None]
+    moved_so_far = np.zeros((k, 1))
     for t, p in enumerate(order):
-        rest = order[t + 1:]
+        last = t == m - 1
         inv_both, inv_next = inv_next, inv(t + 1)
-        row = jac[:, :, p][:, None, :] @ inv_both                         # (K, 1, F): p's row of J^T (J J^T)^-1
-        target = x0[:, p][:, None] - (err @ row.transpose(0, 2, 1))[..., 0]   # continuous value of part p, (K, B)
-        reach = BEAM_REACH * max_step
-        target = np.clip(target, x0[:, p][:, None] - reach, x0[:, p][:, None] + reach)
+        jp = jac[:, :, p]                                                # (K, F)
+        row = (jp[:, None, :] @ inv_both)[:, 0, :]                      # (K, F): p's row of J^T (J J^T)^-1
+        xp = x0[:, p][:, None]
+        target = xp - np.einsum("kbf,kf->kb", err, row)                  # continuous value of part p, (K, B)
+        target = np.minimum(np.maximum(target, xp - reach), xp + reach)
         lv = logv[p]
-        n = lv.size
-        lo = np.clip(np.searchsorted(lv, target, side="right") - 1, 0, n - 1)
-        opts = np.clip(lo[..., None] + np.arange(-(BEAM_OPTIONS // 2) + 1, BEAM_OPTIONS // 2 + 1), 0, n - 1)   # (K,B,O)
-        d = lv[opts] - x0[:, p][:, None, None]                           # (K, B, O)
-        new_err = err[:, :, None, :] + d[..., None] * jac[:, None, None, :, p]      # (K, B, O, F)
+        top = lv.size - 1
+        lo = np.minimum(np.maximum(np.searchsorted(lv, target, side="right") - 1, 0), top)
+        opts = np.minimum(np.maximum(lo[..., None] + shifts, 0), top)   # (K, B, O)
+        d = lv[opts] - xp[:, :, None]                                    # (K, B, O)
+        new_err = err[:, :, None, :] + d[..., None] * jp[:, None, None, :]      # (K, B, O, F)
         bsz, o = d.shape[1], d.shape[2]
-        if rest.size:
+        flat_err = new_err.reshape(k, bsz * o, f)
+        if not last:
             comp = eye - gram[..., t + 1] @ inv_next                     # (K, F, F): what the rest cannot absorb
-            resid = new_err.reshape(k, bsz * o, f) @ comp.transpose(0, 2, 1)
+            resid = flat_err @ comp.transpose(0, 2, 1)
         else:
-            resid = new_err.reshape(k, bsz * o, f)
-        moved = np.maximum(np.max(np.abs(beam_d), axis=2)[:, :, None], np.abs(d)).reshape(k, bsz * o)
+            resid = flat_err
+        moved = np.maximum(moved_so_far[:, :, None], np.abs(d)).reshape(k, bsz * o)
         score = np.max(np.abs(resid), axis=-1) + BEAM_MOVE_WEIGHT * moved   # (K, B*O)
-        flat = score
         width = min(BEAM_WIDTH, bsz * o)
-        pick = np.argsort(flat, axis=1, kind="stable")[:, :width]       # (K, W)
+        pick = np.argsort(score, axis=1, kind="stable")[:, :width]      # (K, W)
         pb, po = pick // o, pick % o
-        rows = np.arange(k)[:, None]
         beam_ix = beam_ix[rows, pb]
-        beam_d = beam_d[rows, pb]
         beam_ix[:, :, p] = opts[rows, pb, po]
-        beam_d[:, :, p] = d[rows, pb, po]
+        moved_so_far = moved[rows, pick]
         err = new_err[rows, pb, po]
     return beam_ix
 
