@@ -51,8 +51,8 @@ def test_60_hz_twin_t_notch_lands_within_what_the_series_allow_jointly(q):
     alone = tw.achieved(sec, "unity_gain", _nearest(allowed, ideal))
     assert joint < 0.01
     assert joint < 0.5 * _worst(sec, {k: v[0] for k, v in alone.items()})
-    # reference: an exhaustive search (plain loops) over two values below and two above each computed part,
-    # same capacitor choice: the joint search is within a fraction of a percent of its optimum
+    # source: an exhaustive search (plain loops, independent of the vectorized one) over two values below and
+    # two above each computed part, same capacitor choice: the joint search is within half a percent of its optimum
     specs = tw.parts(sec, "unity_gain")
     windows = []
     for p in specs:
@@ -76,6 +76,7 @@ def test_joint_search_weighs_every_dependent_part_together():
     allowed = _allowed("E96", "E12")
     sec = Section(K.HIGHPASS_NOTCH, 2, 3828.0, 0.871, 3166.0, 0.684)
     sel = select_values(sv, sec, "given_gain", allowed)
+    # source: the topology's closed form (checked against the circuit engine in test_topology_circuits.py)
     assert _worst(sec, sel.predicted) < 3e-3
     assert sel.combinations > 100
 
@@ -86,6 +87,7 @@ def test_second_order_mains_notch_takes_two_opamps():
     # sections' Q of 14 puts a single op-amp's Q sensitivity beyond the limit: two-integrator loops then.)
     approx = design_by_order("bandstop", "butterworth", 2, [55.0, 65.0])
     d = design_filter(approx)
+    # common practice (no source): the limits of the automatic rule (sum |S^Q| <= 12, spreads)
     assert sum(len(st.opamps) for st in d.stages) <= 2
     assert {st.topology for st in d.stages} == {"delyiannis_friend_notch"}
     assert any(w.code == "mains_connection" for w in d.warnings)
@@ -96,6 +98,7 @@ def test_audio_anti_alias_elliptic_takes_at_most_ten_opamps():
     approx = design_by_requirement("lowpass", "elliptic", 20e3, 24e3, 0.075, 80.0)
     parts = {"resistors": {"series": "E96", "tolerance": 0.01}, "capacitors": {"series": "E12", "dielectric": "C0G"}}
     d = design_filter(approx, parts=parts)
+    # common practice (no source): the limits of the automatic rule
     assert sum(len(st.opamps) for st in d.stages) <= 10
     # with a 100 MHz op-amp too (the highest-Q section keeps a two-integrator loop)
     d = design_filter(approx, parts=parts, opamp={"gbw_hz": 100e6})
