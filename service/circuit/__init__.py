@@ -18,11 +18,14 @@ to_spice(circuit, *, output, ac, trial, title)
     ngspice-compatible netlist text.
 CircuitError
     Every invalid circuit or request (an ``InvalidParameter``).
+draw_schematic(circuit, stages, *, stage=None) -> str, StageLabel, SchematicError
+    SVG schematic of a circuit's stages, laid out from the netlist graph.
 """
 
 from .ac import PreparedAc, ac_response, prepare_ac
 from .errors import CircuitError
 from .netlist import GROUND, Circuit, Element, ElementKind, OpAmpModel
+from .schematic import SchematicError, StageLabel, draw_schematic
 from .spice import format_value, to_spice
 from .zpk import transfer_function_zpk
 
@@ -34,7 +37,10 @@ __all__ = [
     "GROUND",
     "OpAmpModel",
     "PreparedAc",
+    "SchematicError",
+    "StageLabel",
     "ac_response",
+    "draw_schematic",
     "format_value",
     "prepare_ac",
     "to_spice",
