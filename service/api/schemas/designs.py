@@ -147,8 +147,10 @@ class DesignRequestSchema(FilterSchema):
                                          validate=ma.validate.Range(min=0, max=60), metadata={
         "description": "Requirement designs: extra stopband loss kept in reserve for part errors (dB). "
                        "Set both margins to 0 for the minimum order of /v1/approximations."})
-    format = one_of(["json", "csv", "spice"], load_default="json",
-                    description="`csv`: the BOM as a table; `spice`: the netlist as text.")
+    format = one_of(["json", "csv", "spice", "svg"], load_default="json",
+                    description="`csv`: the BOM as a table; `spice`: the netlist as text; `svg`: the schematic.")
+    stage = StrictInteger(validate=ma.validate.Range(min=1), metadata={
+        "description": "With `format: svg`: draw only this stage (numbered from 1); default the whole filter."})
 
     @ma.validates_schema
     def _margins(self, data, **kwargs):

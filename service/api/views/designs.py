@@ -2,14 +2,19 @@
 
 from __future__ import annotations
 
-from flask import current_app
+from flask import current_app, request
 from flask.views import MethodView
+from marshmallow.fields import Integer
+from marshmallow.validate import Range
 
 from service.api.dispatch import design_approximation, design_document, evaluate
 from service.api.extension import Blueprint
-from service.api.formats import CSV_MEDIA_TYPE, TEXT_MEDIA_TYPE, alternative_content, csv_response, text_response
+from service.api.formats import (
+    CSV_MEDIA_TYPE, SVG_MEDIA_TYPE, TEXT_MEDIA_TYPE, alternative_content, csv_response, svg_response, text_response,
+)
 from service.api.schemas.common import StrictSchema, one_of
 from service.api.schemas.designs import DesignDocumentSchema, DesignRequestSchema, DesignSchema
+from service.errors import InvalidParameter
 
 blp = Blueprint("designs", __name__, url_prefix="/v1/designs",
                 description="Requirement to op-amp stages with parts that can be bought.")
@@ -36,7 +41,10 @@ Set both margins to 0 for the minimum order of /v1/approximations.
 Achieved f0, Q and gain are read back from the circuit built with the chosen
 values (circuit engine), not from the design formulas.
 
-`format=csv` returns the BOM as a table, `format=spice` the netlist alone.
+`format=csv` returns the BOM as a table, `format=spice` the netlist alone,
+`format=svg` (or `Accept: image/svg+xml`) the schematic of the whole filter, or
+of one stage with `stage` (numbered from 1): parts with ref and value, op-amps,
+each stage framed with its section.
 
 Mains-interference notches must never be connected to the mains: follow local
 electrical codes and licensed practice for anything mains-connected.
@@ -75,12 +83,26 @@ EVALUATE_EXAMPLE = {
     }],
 }
 
-_DOC = alternative_content(CSV_MEDIA_TYPE, TEXT_MEDIA_TYPE, schema="Design",
+_DOC = alternative_content(CSV_MEDIA_TYPE, TEXT_MEDIA_TYPE, SVG_MEDIA_TYPE, schema="Design",
                            description="The design document with BOM, netlist, summary and warnings (JSON); "
-                                       "the BOM as CSV; or the netlist as text.")
+                                       "the BOM as CSV; the netlist as text; or the schematic as SVG.")
 
 
-def _reply(document: dict, fmt: str):
+def _wanted(fmt: str) -> str:
+    """``format`` as asked; a JSON default becomes ``svg`` when the client prefers ``image/svg+xml``."""
+    if fmt == "json" and request.accept_mimetypes.best_match(
+            ["application/json", SVG_MEDIA_TYPE], default="application/json") == SVG_MEDIA_TYPE:
+        return "svg"
+    return fmt
+
+
+def _reply(document: dict, fmt: str, stage: int | None = None):
+    if stage is not None and fmt != "svg":
+        raise InvalidParameter("stage selects the stage of a schematic: use it with format svg", field="stage")
+    if fmt == "svg":
+        from service.api.schematics import schematic_svg
+
+        return svg_response(schematic_svg(document, stage).encode("utf-8"))
     if fmt == "csv":
         cols = ("ref", "kind", "value", "tolerance", "dielectric", "part_id")
         return csv_response({c: [line.get(c) for line in document["bom"]] for c in cols}, filename="bom.csv")
@@ -103,7 +125,7 @@ class Designs(MethodView):
         settings = current_app.config["ROLLOFF_SETTINGS"]
         approximation = design_approximation(args, settings)
         document = design_document(approximation, args, settings)
-        return _reply(document, args.get("format", "json"))
+        return _reply(document, _wanted(args.get("format", "json")), args.get("stage"))
 
 
 _EVALUATE_DESCRIPTION = """\
@@ -113,13 +135,17 @@ netlist, summary and warnings again. Only `stages[*].section`, `topology`,
 `strategy`, `components` and `opamps`, and the document's `requirement` and
 `settings`, are read; everything else is recomputed. A removed part, a repeated
 ref or a part of the wrong kind is a 422 naming it. Values may be strings such as
-"10n" or "4k7". `?format=csv` returns the BOM, `?format=spice` the netlist.
+"10n" or "4k7". `?format=csv` returns the BOM, `?format=spice` the netlist,
+`?format=svg` (or `Accept: image/svg+xml`) the schematic, of one stage with
+`?stage=N` (numbered from 1).
 """
 
 
 class FormatQuerySchema(StrictSchema):
-    format = one_of(["json", "csv", "spice"], load_default="json",
-                    description="`csv`: the BOM as a table; `spice`: the netlist as text.")
+    format = one_of(["json", "csv", "spice", "svg"], load_default="json",
+                    description="`csv`: the BOM as a table; `spice`: the netlist as text; `svg`: the schematic.")
+    stage = Integer(validate=Range(min=1), metadata={
+        "description": "With `format=svg`: draw only this stage (numbered from 1); default the whole filter."})
 
 
 @blp.route("/evaluate")
@@ -132,7 +158,11 @@ class Evaluate(MethodView):
     @blp.alt_response(415, response="UNSUPPORTED_MEDIA_TYPE", description="The body is not JSON.")
     @blp.alt_response(422, response="UNPROCESSABLE_ENTITY", description="A missing, repeated or wrong part.")
     @blp.doc(summary="Evaluate a (possibly edited) design document", description=_EVALUATE_DESCRIPTION,
-             **alternative_content(CSV_MEDIA_TYPE, TEXT_MEDIA_TYPE, schema="Design",
-                                   description="The design document again (JSON), its BOM (CSV) or netlist (text)."))
+             **alternative_content(CSV_MEDIA_TYPE, TEXT_MEDIA_TYPE, SVG_MEDIA_TYPE, schema="Design",
+                                   description="The design document again (JSON), its BOM (CSV), netlist (text) "
+                                               "or schematic (SVG)."))
     def post(self, query, document):
-        return _reply(evaluate(document), query["format"])
+        fmt = _wanted(query["format"])
+        if fmt == "svg":   # the drawing needs the parts only, not the analysis
+            return _reply(document, fmt, query.get("stage"))
+        return _reply(evaluate(document), fmt, query.get("stage"))
