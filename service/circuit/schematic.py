@@ -41,10 +41,10 @@ from .schematic_layout import (
 VALUE_DIGITS = 3
 #: Space between two stages of a whole-filter drawing, schematic units.
 STAGE_SPACING = 3.0
-FONT_SIZE = 11.0
-TITLE_SIZE = 12.0
+FONT_SIZE = 13.0
+TITLE_SIZE = 14.0
 FRAME_MARGIN = 0.6
-INCHES_PER_UNIT = 0.5
+INCHES_PER_UNIT = 0.42
 
 
 @dataclass(frozen=True)
