@@ -256,6 +256,9 @@ async function run() {
   }
   markStale();
   delete document.body.dataset.stage;
+  performance.clearMarks("rolloff-run");
+  performance.clearMeasures();
+  performance.mark("rolloff-run");       // the benchmark reads the measures below
   busy(true, "Working…");
   const target = vals.yield_target.trim() === "" ? null : Number(vals.yield_target) / 100;
   let step = "Comparing the families";
@@ -297,6 +300,7 @@ async function run() {
       { family: familyOf(doc), order: orderOf(doc), response: responseTypeOf(doc) });
     fresh("response-panel");
     document.body.dataset.stage = "designed";
+    performance.measure("rolloff-designed", "rolloff-run");
     const files = [
       { label: "BOM (CSV)", filename: "bom.csv", type: "text/csv", id: "dl-bom",
         text: await call("/v1/designs/evaluate", { body: doc, query: { format: "csv" }, accept: "text/csv", signal }) },
@@ -320,6 +324,7 @@ async function run() {
     addDownload(downloads, { label: "Tolerance envelope (SVG)", filename: "tolerance.svg", type: "image/svg+xml",
       id: "dl-tolerance", text: svgText(tolPlots.main) });
     document.body.dataset.stage = "complete";
+    performance.measure("rolloff-complete", "rolloff-run");
     const v = withWholeBand(verdictOf(doc), maskResultOf(resp));
     busy(false);
     status(`${v.meets === true ? "Meets the requirement" : v.meets === false ? "Does not meet the requirement"
