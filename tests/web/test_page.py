@@ -338,3 +338,44 @@ def test_page_hosted_elsewhere_calls_the_service_under_cors(browser, tmp_path, a
         site.shutdown()
         site.server_close()
         svc.stop()
+
+
+def test_pick_a_family_from_the_comparison(designed, service):
+    pg, _ = designed
+    rows = pg.locator("#compare-table tbody tr")
+    assert rows.count() >= 5
+    assert pg.locator("#compare-table input[name=pick-family]:checked").get_attribute("value") == "elliptic"
+    pg.check("#pick-chebyshev2")
+    body = design_request(pg, lambda: pg.click("#use-family"))
+    assert body["family"] == "chebyshev2"
+    pg.wait_for_selector(DESIGNED, timeout=TIMEOUT_MS)
+    assert pg.input_value("#family") == "chebyshev2"
+    assert "chebyshev2" in pg.inner_text("#verdict")
+    assert parse_qs(urlsplit(pg.url).query)["family"] == ["chebyshev2"]
+
+
+def test_yield_target_is_sent_only_when_set(page, service):
+    page.goto(service.url + "/")
+    page.select_option("#family", "elliptic")
+    bodies, statuses = [], []
+
+    def seen(response):
+        if urlsplit(response.url).path == "/v1/designs":
+            bodies.append(json.loads(response.request.post_data))
+            statuses.append(response.status)
+
+    page.on("response", seen)
+    page.click("#design-button")
+    page.wait_for_selector(COMPLETE, timeout=TIMEOUT_MS)
+    assert "yield" not in bodies[0]
+    bodies.clear()
+    statuses.clear()
+    page.fill("#yield-target", "90")
+    page.click("#design-button")
+    page.wait_for_selector(COMPLETE, timeout=TIMEOUT_MS)
+    assert bodies[0]["yield"] == {"target": 0.9, "trials": 500, "seed": 1}
+    if statuses[0] == 422:
+        # a service that does not take the field yet: the page designs without it and says so
+        assert "yield" not in bodies[1] and statuses[1] == 200
+        assert "does not take a yield target" in page.inner_text("#status")
+    assert page.inner_text("#yield-target-verdict").startswith("Target 90.0 %")
