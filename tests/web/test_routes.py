@@ -58,3 +58,16 @@ def test_with_keys_the_pages_load_and_the_api_needs_the_key():
     assert client.get("/docs").status_code == 200
     assert client.get("/v1/openapi.json").status_code == 401
     assert client.get("/v1/openapi.json", headers={"Authorization": "Bearer k-1"}).status_code == 200
+
+
+def test_every_page_file_ships_in_the_package():
+    import fnmatch
+    import tomllib
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[2]
+    globs = tomllib.loads((root / "pyproject.toml").read_text())["tool"]["setuptools"]["package-data"]["service"]
+    for f in STATIC.rglob("*"):
+        if f.is_file():
+            rel = f.relative_to(root / "service").as_posix()
+            assert any(fnmatch.fnmatch(rel, g) and rel.count("/") == g.count("/") for g in globs), rel
