@@ -96,6 +96,20 @@ def number_text_errors(schema: ma.Schema, data: Any) -> dict:
     return errors
 
 
+def _merged(a: Any, b: Any) -> Any:
+    """Two marshmallow error structures (nested dicts ending in lists of messages) as one."""
+    if isinstance(a, dict) and isinstance(b, dict):
+        out = dict(a)
+        for k, v in b.items():
+            out[k] = _merged(out[k], v) if k in out else v
+        return out
+    la = a if isinstance(a, list) else [a]
+    lb = b if isinstance(b, list) else [b]
+    if any(str(m).startswith("Not a valid number:") for m in lb):  # the precise message replaces the generic one
+        la = [m for m in la if m != "Not a valid number."]
+    return la + [m for m in lb if m not in la]
+
+
 class _StrictParser(FlaskParser):
     """webargs parser reading the body that :func:`read_json_body` checked."""
 
@@ -112,8 +126,8 @@ class _StrictParser(FlaskParser):
     def load_json(self, req, schema):
         data = super().load_json(req, schema)
         errors = number_text_errors(schema, data)
-        if errors:
-            raise ma.ValidationError(errors)
+        if errors:  # with the schema's own messages, so that one answer lists every field at fault
+            raise ma.ValidationError(_merged(schema.validate(data) if isinstance(data, Mapping) else {}, errors))
         return data
 
     def load_querystring(self, req, schema):

@@ -8,6 +8,14 @@ token gets 401 with ``error="invalid_token"`` (RFC 6750, section 3).
 ``/healthz``, ``/readyz`` and ``/metrics`` stay open, and CORS preflight
 requests (``OPTIONS``) are answered without a key.
 
+The page at ``/`` and the API documentation at ``/docs`` are static files
+(the page's own, and Swagger UI's from its package): a browser loads them
+without a key, since it cannot send a header when it opens a URL. Everything
+they show about the API comes from ``/v1`` -- the OpenAPI document at
+``/v1/openapi.json`` included -- so it is behind the same rule: both pages
+send the key the user typed (kept in the tab's ``sessionStorage`` only) as
+``Authorization: Bearer``, and without it they show the 401.
+
 Keys are compared in constant time: the SHA-256 digest of the presented token
 is compared with :func:`hmac.compare_digest` against the digest of *every*
 configured key (no early exit, and no length leak since digests have one

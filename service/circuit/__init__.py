@@ -23,6 +23,8 @@ to_spice(circuit, *, output, ac, trial, title, noise, temperature_k, op)
     ngspice-compatible netlist text (``.ac``, ``.noise``, ``.op``).
 CircuitError
     Every invalid circuit or request (an ``InvalidParameter``).
+draw_schematic(circuit, stages, *, stage=None) -> str, StageLabel, SchematicError
+    SVG schematic of a circuit's stages, laid out from the netlist graph.
 """
 
 from .ac import PreparedAc, ac_response, prepare_ac
@@ -30,6 +32,7 @@ from .dc import DcSolution, dc_contributions, dc_operating_point
 from .errors import CircuitError
 from .netlist import GROUND, Circuit, Element, ElementKind, OpAmpModel, OpAmpSources
 from .noise import DEFAULT_TEMPERATURE_K, NoiseKind, NoiseSource, OutputNoise, noise_spectra
+from .schematic import SchematicError, StageLabel, draw_schematic
 from .spice import format_value, to_spice
 from .zpk import transfer_function_zpk
 
@@ -50,7 +53,10 @@ __all__ = [
     "OutputNoise",
     "noise_spectra",
     "PreparedAc",
+    "SchematicError",
+    "StageLabel",
     "ac_response",
+    "draw_schematic",
     "format_value",
     "prepare_ac",
     "to_spice",

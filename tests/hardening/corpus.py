@@ -193,6 +193,12 @@ def _design_doc_cases(doc: dict) -> list[Case]:
         Case("evaluate: no stages", "POST", ev, _edit(doc, no_stages), field="stages", route=r),
         Case("evaluate: unknown component field", "POST", ev, _edit(doc, extra), field="colour", route=r),
         Case("evaluate: section q NaN", "POST", ev, _edit(doc, section_q), field="stages[0].section.q", route=r),
+        Case("evaluate: schematic of stage 0", "POST", ev, doc, query="format=svg&stage=0", field="stage", route=r),
+        Case("evaluate: schematic of a stage past the last", "POST", ev, doc, query=f"format=svg&stage={len(doc['stages']) + 1}",
+             field="stage", route=r),
+        Case("evaluate: stage without format svg", "POST", ev, doc, query="stage=1", field="stage", route=r),
+        Case("evaluate: schematic of a missing part", "POST", ev, _edit(doc, drop_part), query="format=svg",
+             field="stages[0]", route=r),
         Case("responses: design with a missing part", "POST", "/v1/responses",
              {"design": _edit(doc, drop_part)}, field="design.stages[0]", route="/v1/responses"),
         Case("responses: design with a repeated ref", "POST", "/v1/responses",
@@ -607,6 +613,8 @@ def cases(design_document: dict | None) -> list[Case]:
              field="topology", route=ds),
         # marshmallow's Boolean would take "yes", "on", 1 ...; the document says boolean, so only true/false.
         Case("designs: exact wrong type", "POST", ds, _with(d, exact="yes"), field="exact", route=ds),
+        Case("designs: schematic stage 1.5", "POST", ds, _with(d, format="svg", stage=1.5), field="stage", route=ds),
+        Case("designs: schematic stage 99", "POST", ds, _with(d, format="svg", stage=99), field="stage", route=ds),
         # --- /v1/responses -----------------------------------------------------------------
         Case("responses: nothing to evaluate", "POST", rs, {"frequencies": {"start_hz": 10, "stop_hz": 1e4}},
              field="filter", route=rs),

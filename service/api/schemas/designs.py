@@ -184,8 +184,10 @@ class DesignRequestSchema(FilterSchema):
         "description": "Requirement designs: extra stopband loss kept in reserve for part errors (dB); default "
                        f"{DEFAULT_STOPBAND_MARGIN_DB:g}. Set both margins to 0 for the minimum order of "
                        "/v1/approximations."})
-    format = one_of(["json", "csv", "spice"], load_default="json",
-                    description="`csv`: the BOM as a table; `spice`: the netlist as text.")
+    format = one_of(["json", "csv", "spice", "svg"], load_default="json",
+                    description="`csv`: the BOM as a table; `spice`: the netlist as text; `svg`: the schematic.")
+    stage = StrictInteger(validate=ma.validate.Range(min=1), metadata={
+        "description": "With `format: svg`: draw only this stage (numbered from 1); default the whole filter."})
 
     @ma.validates_schema
     def _margins(self, data, **kwargs):
@@ -208,7 +210,7 @@ class DesignRequestSchema(FilterSchema):
             stage_peak_margin_db=data["stage_peak_margin_db"], output_amplitude_v=data["output_amplitude_v"],
             gbw_error=data["gbw_error"], passband_margin_db=data.get("passband_margin_db"),
             stopband_margin_db=data.get("stopband_margin_db"), stock_entries=len(stock)),
-            "format": data["format"]}
+            "format": data["format"], "stage": data.get("stage")}
 
 
 def _parts_policy(parts: dict) -> dict:

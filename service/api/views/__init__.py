@@ -10,6 +10,10 @@ def register_views(api) -> None:
     for module in (operations, catalog, values, approximations, designs, responses, tolerance):
         api.register_blueprint(module.blp)
 
+    from service.api.views import page
+
+    page.register(api)      # / and /docs: pages, not API operations (kept out of the OpenAPI document)
+
     from service.api.schemas.responses import REFERENCED_COMPONENTS
 
     for name, schema in REFERENCED_COMPONENTS.items():

@@ -2,14 +2,19 @@
 
 from __future__ import annotations
 
-from flask import current_app
+from flask import current_app, request
 from flask.views import MethodView
+from marshmallow.fields import Integer
+from marshmallow.validate import Range
 
-from service.workflows import design, evaluate_json
+from service.workflows import DesignDocument, design, evaluate_json
 from service.api.extension import Blueprint
-from service.api.formats import CSV_MEDIA_TYPE, TEXT_MEDIA_TYPE, alternative_content, csv_response, text_response
+from service.api.formats import (
+    CSV_MEDIA_TYPE, SVG_MEDIA_TYPE, TEXT_MEDIA_TYPE, alternative_content, csv_response, svg_response, text_response,
+)
 from service.api.schemas.common import StrictSchema, one_of
 from service.api.schemas.designs import DesignDocumentSchema, DesignRequestSchema, DesignSchema
+from service.errors import InvalidParameter
 
 blp = Blueprint("designs", __name__, url_prefix="/v1/designs",
                 description="Requirement to op-amp stages with parts that can be bought.")
@@ -52,7 +57,10 @@ design whose parts would leave the representable range (resistors
 Achieved f0, Q and gain are read back from the circuit built with the chosen
 values (circuit engine), not from the design formulas.
 
-`format=csv` returns the BOM as a table, `format=spice` the netlist alone.
+`format=csv` returns the BOM as a table, `format=spice` the netlist alone,
+`format=svg` (or `Accept: image/svg+xml`) the schematic of the whole filter, or
+of one stage with `stage` (numbered from 1): parts with ref and value, op-amps,
+each stage framed with its section.
 
 Mains-interference notches must never be connected to the mains: follow local
 electrical codes and licensed practice for anything mains-connected.
@@ -93,12 +101,29 @@ EVALUATE_EXAMPLE = {
                     "passband_ripple_db": 0.5, "stopband_attenuation_db": 35},
 }
 
-_DOC = alternative_content(CSV_MEDIA_TYPE, TEXT_MEDIA_TYPE, schema="Design",
+_DOC = alternative_content(CSV_MEDIA_TYPE, TEXT_MEDIA_TYPE, SVG_MEDIA_TYPE, schema="Design",
                            description="The design document with BOM, netlist, summary and warnings (JSON); "
-                                       "the BOM as CSV; or the netlist as text.")
+                                       "the BOM as CSV; the netlist as text; or the schematic as SVG.")
 
 
-def _reply(document: dict, fmt: str):
+def _wanted(fmt: str) -> str:
+    """``format`` as asked; a JSON default becomes ``svg`` when the client prefers ``image/svg+xml``."""
+    if fmt == "json" and request.accept_mimetypes.best_match(
+            ["application/json", SVG_MEDIA_TYPE], default="application/json") == SVG_MEDIA_TYPE:
+        return "svg"
+    return fmt
+
+
+def _schematic(document: DesignDocument, stage: int | None):
+    from service.api.schematics import schematic_svg
+
+    return svg_response(schematic_svg(document, stage).encode("utf-8"))
+
+
+def _reply(document: dict, fmt: str, stage: int | None = None):
+    """The design document (JSON) in the format asked: itself, its BOM (CSV) or its netlist (text)."""
+    if stage is not None:
+        raise InvalidParameter("stage selects the stage of a schematic: use it with format svg", field="stage")
     if fmt == "csv":
         cols = ("ref", "kind", "value", "tolerance", "dielectric", "part_id")
         return csv_response({c: [line.get(c) for line in document["bom"]] for c in cols}, filename="bom.csv")
@@ -119,7 +144,10 @@ class Designs(MethodView):
     @blp.doc(summary="Design a filter with parts from stock", description=_DESCRIPTION, **_DOC)
     def post(self, args):
         outcome = design(args["request"], current_app.config["ROLLOFF_SETTINGS"])
-        return _reply(outcome.as_dict(), args["format"])
+        fmt = _wanted(args["format"])
+        if fmt == "svg":
+            return _schematic(outcome.document, args.get("stage"))
+        return _reply(outcome.as_dict(), fmt, args.get("stage"))
 
 
 _EVALUATE_DESCRIPTION = """\
@@ -132,13 +160,16 @@ verified against the document's `requirement` as it stands (edit it to
 re-verify: the same verifier as /v1/designs). An unknown key anywhere, a
 removed part, a repeated ref or a part of the wrong kind is a 422 naming it.
 Values may be strings such as "10n" or "4k7". `?format=csv` returns the BOM,
-`?format=spice` the netlist.
+`?format=spice` the netlist, `?format=svg` (or `Accept: image/svg+xml`) the
+schematic, of one stage with `?stage=N` (numbered from 1).
 """
 
 
 class FormatQuerySchema(StrictSchema):
-    format = one_of(["json", "csv", "spice"], load_default="json",
-                    description="`csv`: the BOM as a table; `spice`: the netlist as text.")
+    format = one_of(["json", "csv", "spice", "svg"], load_default="json",
+                    description="`csv`: the BOM as a table; `spice`: the netlist as text; `svg`: the schematic.")
+    stage = Integer(validate=Range(min=1), metadata={
+        "description": "With `format=svg`: draw only this stage (numbered from 1); default the whole filter."})
 
 
 @blp.route("/evaluate")
@@ -151,8 +182,12 @@ class Evaluate(MethodView):
     @blp.alt_response(415, response="UNSUPPORTED_MEDIA_TYPE", description="The body is not JSON.")
     @blp.alt_response(422, response="UNPROCESSABLE_ENTITY", description="A missing, repeated or wrong part.")
     @blp.doc(summary="Evaluate a (possibly edited) design document", description=_EVALUATE_DESCRIPTION,
-             **alternative_content(CSV_MEDIA_TYPE, TEXT_MEDIA_TYPE, schema="Design",
-                                   description="The design document again (JSON), its BOM (CSV) or netlist (text)."))
+             **alternative_content(CSV_MEDIA_TYPE, TEXT_MEDIA_TYPE, SVG_MEDIA_TYPE, schema="Design",
+                                   description="The design document again (JSON), its BOM (CSV), netlist (text) "
+                                               "or schematic (SVG)."))
     def post(self, query, document):
+        fmt = _wanted(query["format"])
+        if fmt == "svg":   # the drawing needs the parts only, not the analysis
+            return _schematic(DesignDocument.from_json(document), query.get("stage"))
         outcome = evaluate_json(document, current_app.config["ROLLOFF_SETTINGS"])
-        return _reply(outcome.as_dict(), query["format"])
+        return _reply(outcome.as_dict(), fmt, query.get("stage"))
