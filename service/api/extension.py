@@ -8,27 +8,44 @@
   parameters, a scalar query parameter given more than once, numbers written
   with other than ASCII digits (``"４.７"``: Python's ``float`` would read it) in
   a query, and strings in a body's plain number fields (documented as numbers).
+- :meth:`Blueprint.reply` declares an operation's reply and its representations
+  (:mod:`service.api.formats`): it documents every media type of the 200,
+  registers one operation per non-JSON representation at the path plus its
+  suffix (``/v1/designs.csv``, one media type each: what generated clients
+  parse), refuses an ``Accept`` that matches none (406) before any work,
+  chooses the representation of each request (:func:`representation`) and
+  answers a ``field=`` selection from the JSON reply (:mod:`service.api.selection`).
+- :class:`RepresentationPlugin` shapes those operations in the document.
 """
 
 from __future__ import annotations
 
 import http
+import re
+from copy import deepcopy
+from dataclasses import dataclass
+from functools import wraps
 
 import marshmallow as ma
+from apispec import BasePlugin
 from apispec.ext.marshmallow import MarshmallowPlugin
 from typing import Any, Mapping
 
 from flask import current_app, g, request
+from flask.views import MethodView
 from flask_smorest import Api
 from flask_smorest import Blueprint as _SmorestBlueprint
-from flask_smorest.utils import prepare_response
+from flask_smorest.utils import deepupdate, get_appcontext, prepare_response
 from webargs import core
 from webargs.flaskparser import FlaskParser
 from webargs.multidictproxy import MultiDictProxy
 
+from service.api import formats, selection
 from service.api.body import read_json_body
 from service.api.fields import Quantity, StrictInteger
+from service.api.openapi import ComponentNames, component_name
 from service.api.problems import PROBLEM_MEDIA_TYPE
+from service.errors import InvalidParameter
 
 
 class ProblemSchema(ma.Schema):
@@ -47,6 +64,8 @@ class ProblemSchema(ma.Schema):
     limit = ma.fields.String(metadata={"description": "Name of the limit exceeded."})
     limit_value = ma.fields.Raw(metadata={"description": "Configured value of that limit."})
     setting = ma.fields.String(metadata={"description": "Environment variable that sets that limit."})
+    available = ma.fields.List(ma.fields.String(), metadata={
+        "description": "406: the media types the operation answers in."})
 
 
 _NUMBER_TEXT = "Not a valid number: write ASCII digits 0-9, without spaces around."
@@ -151,10 +170,185 @@ class _StrictParser(FlaskParser):
         return super().load_querystring(req, schema)
 
 
+@dataclass(frozen=True)
+class Offer:
+    """The representations one operation offers (JSON first) and what its JSON reply holds.
+
+    Attributes
+    ----------
+    formats : tuple of str
+        Keys of :data:`service.api.formats.MEDIA_TYPES`, ``json`` first.
+    fields : tuple of str
+        Top-level fields of the JSON reply (``field=`` paths start with one).
+    text_needs_field : bool
+        ``text`` is a ``field=`` selection (True), or the operation has a text reply of its own.
+    """
+
+    formats: tuple[str, ...]
+    fields: tuple[str, ...] = ()
+    text_needs_field: bool = True
+
+
+#: What each representation is called in a summary.
+_LABELS = {"csv": "CSV", "svg": "SVG", "spice": "SPICE netlist", "text": "one value as text"}
+_JSON_ONLY = Offer(("json",))
+
+
+def representation() -> formats.Representation:
+    """The representation the current request asked for (chosen by :meth:`Blueprint.reply`)."""
+    return g.get("representation") or formats.Representation("json")
+
+
+def _suffix() -> str | None:
+    """The representation named by the matched route's suffix (``/v1/designs.csv`` -> ``csv``)."""
+    rule = request.url_rule.rule if request.url_rule is not None else ""
+    last = rule.rsplit("/", 1)[-1]
+    if "." in last:
+        ext = last.rsplit(".", 1)[1]
+        if ext in formats.MEDIA_TYPES:
+            return ext
+    return None
+
+
+def _explicit_format() -> str | None:
+    """``format`` as the request gave it, in the query or (older clients) the JSON body; 422 when they differ."""
+    query = request.args.get("format")
+    body = getattr(g, "_rolloff_json", None)
+    given = body.get("format") if isinstance(body, Mapping) else None
+    if query is not None and isinstance(given, str) and given != query:
+        raise InvalidParameter(f"format is {query} in the query and {given} in the body: give it once",
+                               field="format")
+    return query if query is not None else (given if isinstance(given, str) else None)
+
+
+def _filename(field: str) -> str:
+    return re.sub(r"[^A-Za-z0-9._-]+", "_", field)[:80] + ".csv"
+
+
 class Blueprint(_SmorestBlueprint):
-    """A flask-smorest blueprint with the strict parser."""
+    """A flask-smorest blueprint with the strict parser and declared representations."""
 
     ARGUMENTS_PARSER = _StrictParser()
+
+    def __init__(self, *args, **kwargs):
+        super().__init__(*args, **kwargs)
+        self._offers: dict[str, dict[str, Offer]] = {}
+        self.before_request(self._check_accept)
+
+    # ---------------------------------------------------------------- declaring a reply
+
+    def reply(self, schema: type[ma.Schema], *others: str, description: str, example: Any = None,
+              text_needs_field: bool = True):
+        """Decorator of a view method: its 200 reply in JSON (``schema``) and in the representations ``others``.
+
+        Documents each media type of the 200 (JSON first), chooses the representation of each request
+        (:func:`representation`; the view produces it, or JSON when a ``field`` is selected) and answers
+        a ``field=`` selection as text or CSV from the JSON reply dumped by ``schema``.
+        """
+        offered = ("json", *others)
+        fields = tuple(f.data_key or name for name, f in schema().fields.items())
+        offer = Offer(offered, fields, text_needs_field)
+        respond = self.response(200, schema, description=description)
+        content = formats.content_doc(offered, schema=component_name(schema), description=description,
+                                      example=example)
+
+        def decorator(func):
+            inner = respond(func)
+
+            @wraps(inner)
+            def wrapper(*args, **kwargs):
+                field = request.args.get("field")
+                rep = formats.negotiate(
+                    offered, accept=request.accept_mimetypes, accept_header=request.headers.get("Accept", ""),
+                    suffix=_suffix(), explicit=_explicit_format(), field=field,
+                    text_needs_field=text_needs_field, fields=fields)
+                if rep.field is not None:
+                    selection.check_top_level(rep.field, fields)
+                g.representation = rep
+                resp = inner(*args, **kwargs)
+                if rep.field is None or resp.mimetype != formats.JSON_MEDIA_TYPE:
+                    return resp
+                value = selection.select(get_appcontext()["result_dump"], rep.field)
+                if rep.name == "text":
+                    return formats.text_response(selection.scalar(value, rep.field))
+                return formats.csv_response(selection.table(value, rep.field), filename=_filename(rep.field))
+
+            wrapper._apidoc = deepcopy(getattr(inner, "_apidoc", {}))
+            wrapper._apidoc["manual_doc"] = deepupdate(deepcopy(wrapper._apidoc.get("manual_doc", {})), content)
+            wrapper._rolloff_offer = offer
+            return wrapper
+
+        return decorator
+
+    # ---------------------------------------------------------------- routes of the representations
+
+    def add_url_rule(self, rule, endpoint=None, view_func=None, provide_automatic_options=None, **kwargs):
+        """Register ``rule``, then one rule per non-JSON representation of its methods (``rule.<format>``)."""
+        super().add_url_rule(rule, endpoint, view_func, provide_automatic_options, **kwargs)
+        if not isinstance(view_func, type(MethodView)):
+            return
+        base = self._endpoints[-1]
+        offers = {m: getattr(getattr(view_func, m.lower()), "_rolloff_offer", _JSON_ONLY)
+                  for m in view_func.methods}
+        self._offers[base] = offers
+        others = [f for o in offers.values() for f in o.formats if f != "json"]
+        for fmt in dict.fromkeys(others):
+            methods = {m for m, o in offers.items() if fmt in o.formats}
+            view = type(f"{view_func.__name__}_{fmt}", (view_func,), {"methods": methods})
+            super().add_url_rule(f"{rule}.{fmt}", f"{base}_{fmt}", view, provide_automatic_options, **kwargs)
+            endpoint_fmt = self._endpoints[-1]
+            self._offers[endpoint_fmt] = {m: Offer((fmt,), offers[m].fields, offers[m].text_needs_field)
+                                          for m in methods}
+            for m in methods:
+                manual = self._docs[endpoint_fmt][m.lower()].setdefault("manual_doc", {})
+                if "operationId" in manual:
+                    manual["operationId"] = f"{manual['operationId']}_{fmt}"
+                manual["summary"] = f"{manual.get('summary', '')}: {_LABELS[fmt]}"
+                manual["x-rolloff-representation"] = {
+                    "format": fmt, "field_required": fmt == "text" and offers[m].text_needs_field}
+
+    def _check_accept(self):
+        """406 before any work when ``Accept`` matches no representation of the operation."""
+        if request.method == "OPTIONS" or "Accept" not in request.headers or request.endpoint is None:
+            return None
+        endpoint = request.endpoint.split(".", 1)[-1]
+        method = "GET" if request.method == "HEAD" else request.method
+        offer = self._offers.get(endpoint, {}).get(method, _JSON_ONLY)
+        if formats._accepted(request.accept_mimetypes, offer.formats) is None:
+            raise formats.not_acceptable(offer.formats, request.headers.get("Accept", ""))
+        return None
+
+
+class RepresentationPlugin(BasePlugin):
+    """apispec plugin: the operation of one representation documents that media type alone.
+
+    Its ``format`` parameter is dropped (the path names the representation), ``field`` kept for text and
+    CSV (required for text) and ``stage`` for SVG only.
+    """
+
+    def operation_helper(self, path=None, operations=None, **kwargs):
+        for op in (operations or {}).values():
+            if not isinstance(op, dict):
+                continue
+            marker = op.pop("x-rolloff-representation", None)
+            if marker is None:
+                continue
+            fmt = marker["format"]
+            ok = op["responses"]["200"]
+            ok["content"] = {formats.MEDIA_TYPES[fmt]: formats.media_doc(fmt)}
+            kept = []
+            for p in op.get("parameters", []):
+                name = p.get("name") if isinstance(p, dict) and p.get("in") == "query" else None
+                if name == "format" or (name == "field" and fmt not in formats.SELECTION_FORMATS) \
+                        or (name == "stage" and fmt != "svg"):
+                    continue
+                if name == "field" and marker["field_required"]:
+                    p["required"] = True
+                kept.append(p)
+            if kept:
+                op["parameters"] = kept
+            else:
+                op.pop("parameters", None)
 
 
 class ProblemApi(Api):
@@ -177,7 +371,11 @@ class ProblemApi(Api):
         # The app factory registers the handlers of service.api.problems itself.
         pass
 
+    def _init_spec(self, *, extra_plugins=None, **kwargs):
+        super()._init_spec(extra_plugins=[*(extra_plugins or ()), RepresentationPlugin()], **kwargs)
+
 
 def make_marshmallow_plugin() -> MarshmallowPlugin:
-    """The apispec marshmallow plugin (custom fields are mapped once the spec exists)."""
-    return MarshmallowPlugin()
+    """The apispec marshmallow plugin, naming components by :class:`service.api.openapi.ComponentNames`
+    (custom fields are mapped once the spec exists)."""
+    return MarshmallowPlugin(schema_name_resolver=ComponentNames())

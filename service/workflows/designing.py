@@ -22,6 +22,7 @@ from service.realization import Design, DesignWarning, OpAmpSpec, PartsPolicy, d
 from service.realization.analysis import StagePlan, analyze
 from service.realization.results import AnalysisOptions
 from service.workflows import costs, limits
+from service.workflows.bom import bom_lines
 from service.workflows.approximating import approximate
 from service.workflows.document import DesignDocument, DesignSettings, PartRange, StageEntry
 from service.workflows.errors import UnrepresentableDesign
@@ -118,6 +119,7 @@ class DesignOutcome:
             "requirement": None if doc.requirement is None else doc.requirement.to_json(),
             "settings": doc.settings.to_json(),
             "bom": [dict(r) for r in d.bom],
+            "bom_lines": [line.as_dict() for line in bom_lines(d)],
             "netlist": d.netlist,
             "summary": _clean(self.summary()),
             "verdict": None if self.verdict is None else _clean(self.verdict.as_dict()),

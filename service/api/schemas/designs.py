@@ -84,13 +84,14 @@ class RangeField(ma.fields.List):
 
 
 class ResistorPolicySchema(StrictSchema):
-    series = one_of(SERIES, description="IEC 60063 series the resistors come from (default E96).")
+    series = one_of(SERIES, description="IEC 60063 series the resistors come from (default E96).", name="SeriesName")
     range = RangeField("ohm", metadata={"description": "[lowest, highest] resistor (Ω), default [1k, 1M]."})
     tolerance = ma.fields.Float(validate=_TOLERANCE, metadata={"description": "Relative tolerance (0.01 = 1 %)."})
 
 
 class CapacitorPolicySchema(StrictSchema):
-    series = one_of(SERIES, description="IEC 60063 series the capacitors come from (default E12).")
+    series = one_of(SERIES, description="IEC 60063 series the capacitors come from (default E12).",
+                    name="SeriesName")
     range = RangeField("F", metadata={"description": "[lowest, highest] capacitor (F), default [100p, 10u]."})
     tolerance = ma.fields.Float(validate=_TOLERANCE, metadata={"description": "Relative tolerance (0.05 = 5 %)."})
     dielectric = ma.fields.String(validate=_DIELECTRIC, metadata={
@@ -257,7 +258,34 @@ OpAmpUseSchema = StrictSchema.from_dict({
 }, name="OpAmpUse")
 
 
-_FIGURES = dict(keys=ma.fields.String(), values=ma.fields.Float(allow_none=True), allow_none=True)
+class AchievedSchema(ma.Schema):
+    """What a stage's circuit realizes, read back from its poles and zeros (circuit engine)."""
+
+    class Meta:
+        unknown = ma.EXCLUDE  # a derived figure: ignored on input
+
+    f0_hz = ma.fields.Float(allow_none=True, metadata={"description": "Pole frequency (Hz)."})
+    q = ma.fields.Float(allow_none=True, metadata={"description": "Pole Q (null for first order)."})
+    gain = ma.fields.Float(allow_none=True, metadata={"description": "Gain g of the standard form."})
+    fz_hz = ma.fields.Float(allow_none=True, metadata={"description": "Zero frequency (Hz), notch kinds."})
+    f0_error = ma.fields.Float(allow_none=True, metadata={"description": "f0 / section f0 - 1."})
+    q_error = ma.fields.Float(allow_none=True, metadata={"description": "Q / section Q - 1."})
+    gain_error = ma.fields.Float(allow_none=True, metadata={"description": "gain / section gain - 1."})
+    fz_error = ma.fields.Float(allow_none=True, metadata={"description": "fz / section fz - 1."})
+    zero_damping = ma.fields.Float(allow_none=True, metadata={
+        "description": "Damping of the zero pair (0 for zeros on the jw axis), notch kinds."})
+
+
+class DesignedSectionSchema(ma.Schema):
+    """The section the design equations were asked for (predistorted stages)."""
+
+    class Meta:
+        unknown = ma.EXCLUDE
+
+    f0_hz = ma.fields.Float(allow_none=True)
+    q = ma.fields.Float(allow_none=True)
+    fz_hz = ma.fields.Float(allow_none=True)
+    gain = ma.fields.Float(allow_none=True)
 
 
 class OpAmpRequirementSchema(ma.Schema):
@@ -280,7 +308,7 @@ class OpAmpRequirementSchema(ma.Schema):
         "description": "Whether this reply's design chose the stage's parts for its op-amp (its section's f0 and Q "
                        "moved so that with the op-amp they land on target). An evaluated document takes its parts as "
                        "given and reports false."})
-    design_section = ma.fields.Dict(allow_none=True, metadata={
+    design_section = ma.fields.Nested(DesignedSectionSchema, allow_none=True, metadata={
         "description": "When predistorted: what the design equations were asked for (f0_hz, q, fz_hz, gain)."})
 
 
@@ -298,9 +326,10 @@ class StageSchema(StrictSchema):
                                 validate=ma.validate.Length(max=L.MAX_COMPONENTS_PER_STAGE))
     opamps = ma.fields.List(ma.fields.Nested(OpAmpUseSchema), required=True,
                             validate=ma.validate.Length(max=L.MAX_OPAMPS_PER_STAGE))
-    achieved = ma.fields.Dict(**_FIGURES, metadata={
+    achieved = ma.fields.Nested(AchievedSchema, allow_none=True, metadata={
         "description": "f0_hz, q, gain, fz_hz and their relative errors with ideal op-amps (circuit engine)."})
-    achieved_macromodel = ma.fields.Dict(**_FIGURES, metadata={"description": "The same with the given op-amp."})
+    achieved_macromodel = ma.fields.Nested(AchievedSchema, allow_none=True, metadata={
+        "description": "The same with the given op-amp."})
     opamp_requirement = ma.fields.Nested(OpAmpRequirementSchema, allow_none=True, metadata={
         "description": "GBW needed (rule of thumb and exact from the macromodel) and slew rate needed."})
     peak_gain_db = ma.fields.Float(allow_none=True, metadata={
@@ -310,13 +339,35 @@ class StageSchema(StrictSchema):
     schematic = ma.fields.Raw(allow_none=True, metadata={"description": "Ignored on input."})
 
 
-class BomLineSchema(ma.Schema):
+class BomRefSchema(ma.Schema):
+    """One part of the per-ref BOM (``bom``)."""
+
     ref = ma.fields.String()
     kind = ma.fields.String(metadata={"description": "resistor, capacitor or opamp."})
     value = ma.fields.Float(allow_none=True, metadata={"description": "Ω or F; null for op-amps."})
     tolerance = ma.fields.Float(allow_none=True)
     dielectric = ma.fields.String(allow_none=True)
     part_id = ma.fields.String(allow_none=True)
+
+
+class BomLineSchema(ma.Schema):
+    """One line of the bill of materials (``bom_lines``): a distinct part, how many, and where."""
+
+    kind = ma.fields.String(metadata={"description": "capacitor, resistor or opamp (lines sorted by kind in that "
+                                                     "order, then by value)."})
+    quantity = ma.fields.Integer(metadata={"description": "How many (the number of refs)."})
+    refs = ma.fields.List(ma.fields.String(), metadata={"description": "References, in natural order (R2 before R10)."})
+    value = ma.fields.Float(allow_none=True, metadata={"description": "Value in ohm or F, exact; null for op-amps."})
+    value_text = ma.fields.String(allow_none=True, metadata={
+        "description": "The value in engineering notation (\"10.7k\", \"2.2n\"; u for micro), readable back as a "
+                       "quantity."})
+    unit = ma.fields.String(allow_none=True, metadata={"description": "ohm or F; null for op-amps."})
+    tolerance = ma.fields.Float(allow_none=True)
+    dielectric = ma.fields.String(allow_none=True)
+    part_id = ma.fields.String(allow_none=True, metadata={"description": "The caller's part number."})
+    gbw_hz = ma.fields.Float(allow_none=True, metadata={"description": "Op-amps: gain-bandwidth product (Hz); null: "
+                                                                       "ideal."})
+    slew_v_per_us = ma.fields.Float(allow_none=True, metadata={"description": "Op-amps: slew rate (V/us)."})
 
 
 class SummaryEdgeSchema(ma.Schema):
@@ -428,14 +479,23 @@ class DesignDocumentSchema(StrictSchema):
 class DesignSchema(ReplySchema):
     """The design document: stages, requirement, settings, BOM, netlist, summary, verdict and warnings."""
 
+    EXACT = ("stages.*.section", "stages.*.components", "stages.*.opamps", "requirement", "settings", "bom",
+             "bom_lines", "summary.edges.*.frequency_hz", "summary.edges.*.required_db",
+             "verdict.segments.*.start_hz", "verdict.segments.*.stop_hz", "verdict.segments.*.limit_db",
+             "verdict.segments.*.checked_to_hz", "verdict.group_delay.stop_hz", "verdict.group_delay.limit_pct")
+
     response = ma.fields.String(allow_none=True)
     family = ma.fields.String(allow_none=True)
     order = ma.fields.Integer(allow_none=True)
     stages = ma.fields.List(ma.fields.Nested(StageSchema))
     requirement = ma.fields.Nested(RequirementObjectSchema, allow_none=True)
     settings = ma.fields.Nested(SettingsObjectSchema, allow_none=True)
-    bom = ma.fields.List(ma.fields.Nested(BomLineSchema), metadata={
+    bom = ma.fields.List(ma.fields.Nested(BomRefSchema), metadata={
         "description": "A line per part: {ref, kind, value, tolerance, dielectric, part_id}."})
+    bom_lines = ma.fields.List(ma.fields.Nested(BomLineSchema), metadata={
+        "description": "The bill of materials to order from: one line per distinct part (kind, value, tolerance, "
+                       "dielectric, part_id; op-amps also by GBW and slew rate) with its quantity and refs, sorted "
+                       "by kind then value. format=csv returns it as a table."})
     netlist = ma.fields.String(metadata={"description": "SPICE netlist of the whole filter (VIN in 0 AC 1, output "
                                                         "node out); runs in ngspice batch mode unchanged."})
     summary = ma.fields.Nested(SummarySchema)

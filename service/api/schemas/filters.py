@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import marshmallow as ma
-from webargs.fields import DelimitedList
 
 from service.api.fields import Quantity, StrictInteger
 from service.api.schemas.common import ReplySchema, StrictSchema, one_of
@@ -182,6 +181,9 @@ class GroupDelayResultSchema(ma.Schema):
 class ApproximationSchema(ReplySchema):
     """A transfer function as zeros/poles/gain and as sections."""
 
+    EXACT = ("zeros", "poles", "gain", "sections", "cutoff_hz", "passband_ripple_db", "stopband_attenuation_db",
+             "edges.*.frequency_hz", "edges.*.required_db")
+
     family = ma.fields.String()
     response = ma.fields.String()
     order = ma.fields.Integer(metadata={"description": "Prototype order."})
@@ -200,35 +202,6 @@ class ApproximationSchema(ReplySchema):
     stopband_attenuation_db = ma.fields.Float(allow_none=True)
     group_delay = ma.fields.Nested(GroupDelayResultSchema, allow_none=True)
     notes = ma.fields.List(ma.fields.String())
-
-
-class ApproximationQuerySchema(StrictSchema):
-    """The by-order request as query parameters (for spreadsheets)."""
-
-    response = one_of(ResponseType, required=True, description="lowpass, highpass, bandpass or bandstop.")
-    family = one_of(Family, required=True, description="Approximation family.")
-    order = ma.fields.Integer(required=True, validate=ORDER_RANGE, metadata={"description": "Prototype order."})
-    cutoff_hz = DelimitedList(Quantity(unit="Hz", validate=FREQ_RANGE), required=True,
-                                        validate=ma.validate.Length(min=1, max=2), metadata={
-        "description": "Cutoff (Hz); `low,high` for band responses, e.g. `35k,45k`."})
-    passband_ripple_db = ma.fields.Float(validate=_RIPPLE)
-    stopband_attenuation_db = ma.fields.Float(validate=_ATTEN)
-    cutoff_at = one_of(CutoffAt, load_default="family", description="`family` or `-3db`.")
-    section_order = one_of(SectionOrder, load_default="ascending_q", description="Order of the sections.")
-    format = one_of(["json", "csv"], load_default="json", description="`csv`: the sections as a table.")
-
-    @ma.post_load
-    def _as_filter(self, data, **kwargs):
-        cut = data["cutoff_hz"]
-        band = data["response"] in BAND_RESPONSES
-        if band and len(cut) != 2:
-            raise ma.ValidationError({"cutoff_hz": ["a band response needs `low,high`"]})
-        if not band and len(cut) != 1:
-            raise ma.ValidationError({"cutoff_hz": ["a lowpass or highpass needs one frequency"]})
-        if band and not cut[0] < cut[1]:
-            raise ma.ValidationError({"cutoff_hz": ["low must be below high"]})
-        data["cutoff_hz"] = tuple(cut) if band else cut[0]
-        return data
 
 
 class ApproximationRequestSchema(FilterSchema):

@@ -5,14 +5,14 @@ from __future__ import annotations
 import marshmallow as ma
 
 from service.api.fields import Quantity, StrictInteger
-from service.api.schemas.common import ReplySchema, StrictSchema, one_of
+from service.api.schemas.common import NumberOrPair, ReplySchema, StrictSchema, one_of
 from service.api.schemas.designs import DesignDocumentSchema
 from service.api.schemas.filters import (
     BAND_RESPONSES, FREQ_RANGE, FilterSchema, FrequencyOrPair, SectionSchema, _ATTEN, _RIPPLE, _check_pair,
     requirement_from,
 )
 from service.api.schemas.verdicts import VerdictSchema
-from service.approximation import CutoffAt, Family, ResponseType, Section, SectionKind
+from service.approximation import ResponseType, Section, SectionKind
 from service.response import FrequencyGrid, TimeGrid
 from service.workflows import DesignDocument, MaskSegment, Requirement, ResponseRequest, Zpk
 
@@ -210,40 +210,6 @@ class ResponseRequestSchema(StrictSchema):
             "format": data["format"], "table": data["table"]}
 
 
-class ResponseQuerySchema(StrictSchema):
-    """The by-order transfer function and a log grid as query parameters."""
-
-    response = one_of(ResponseType, required=True, description="Response type.")
-    family = one_of(Family, required=True, description="Approximation family.")
-    order = ma.fields.Integer(required=True, validate=ma.validate.Range(min=1, max=20))
-    cutoff_hz = FrequencyOrPair(required=True, metadata={"description": "Cutoff (Hz); `low,high` for band responses."})
-    passband_ripple_db = ma.fields.Float(validate=_RIPPLE)
-    stopband_attenuation_db = ma.fields.Float(validate=_ATTEN)
-    cutoff_at = one_of(CutoffAt, load_default="family", description="`family` or `-3db`.")
-    start_hz = Quantity(unit="Hz", validate=FREQ_RANGE)
-    stop_hz = Quantity(unit="Hz", validate=FREQ_RANGE)
-    points = ma.fields.Integer(load_default=501, validate=ma.validate.Range(min=2), metadata={
-        "description": "Number of points, at most ROLLOFF_MAX_FREQUENCY_POINTS."})
-    format = one_of(["json", "csv", "svg"], load_default="json", description="`csv` or `svg` as for POST.")
-    table = one_of(["frequency", "time"], load_default="frequency", description="Rows of the CSV table.")
-
-    @ma.pre_load
-    def _split_pair(self, data, **kwargs):
-        data = dict(data)
-        cut = data.get("cutoff_hz")
-        if isinstance(cut, str) and "," in cut:
-            data["cutoff_hz"] = [part.strip() for part in cut.split(",")]
-        return data
-
-    @ma.validates_schema
-    def _grid(self, data, **kwargs):
-        _check_pair(data, "cutoff_hz", data.get("response") in BAND_RESPONSES) if "cutoff_hz" in data else None
-        if ("start_hz" in data) != ("stop_hz" in data):
-            raise ma.ValidationError("give both start_hz and stop_hz, or neither", "start_hz")
-        if "start_hz" in data and not data["stop_hz"] > data["start_hz"]:
-            raise ma.ValidationError("stop_hz must be above start_hz", "stop_hz")
-
-
 class TimeResponseSchema(ma.Schema):
     time_s = ma.fields.List(ma.fields.Float())
     value = ma.fields.List(ma.fields.Float())
@@ -256,8 +222,8 @@ class AttenuationSchema(ma.Schema):
 
 class MetricsSchema(ma.Schema):
     passband_gain_db = ma.fields.Float(allow_none=True)
-    f3db_hz = ma.fields.Raw(allow_none=True, metadata={"description": "−3 dB frequency (Hz); [low, high] for band "
-                                                                         "responses."})
+    f3db_hz = NumberOrPair(allow_none=True, metadata={"description": "−3 dB frequency (Hz); [low, high] for band "
+                                                                        "responses."})
     passband_ripple_db = ma.fields.Float(allow_none=True)
     attenuation_db = ma.fields.List(ma.fields.Nested(AttenuationSchema))
     peak_gain_db = ma.fields.Float(allow_none=True)
@@ -273,6 +239,11 @@ class MetricsSchema(ma.Schema):
 
 
 class ResponseSchema(ReplySchema):
+    EXACT = ("frequency_hz", "step.time_s", "impulse.time_s", "metrics.attenuation_db.*.frequency_hz",
+             "mask_result.segments.*.start_hz", "mask_result.segments.*.stop_hz", "mask_result.segments.*.limit_db",
+             "mask_result.segments.*.checked_to_hz", "mask_result.group_delay.stop_hz",
+             "mask_result.group_delay.limit_pct")
+
     response_type = ma.fields.String()
     frequency_hz = ma.fields.List(ma.fields.Float())
     magnitude_db = ma.fields.List(ma.fields.Float())

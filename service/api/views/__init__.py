@@ -14,8 +14,11 @@ def register_views(api) -> None:
 
     page.register(api)      # / and /docs: pages, not API operations (kept out of the OpenAPI document)
 
+    from service.api.schemas.common import ENUMS
     from service.api.schemas.responses import REFERENCED_COMPONENTS
 
     for name, schema in REFERENCED_COMPONENTS.items():
         if name not in api.spec.components.schemas:
             api.spec.components.schema(name, schema=schema)
+    for name, values in sorted(ENUMS.items()):
+        api.spec.components.schema(name, {"type": "string", "enum": list(values)})

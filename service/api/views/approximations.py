@@ -5,15 +5,16 @@ from __future__ import annotations
 from flask import current_app
 from flask.views import MethodView
 
-from service.api.extension import Blueprint
-from service.api.formats import CSV_MEDIA_TYPE, alternative_content, csv_response
+from service.api.extension import Blueprint, representation
+from service.api.formats import csv_response
+from service.api.schemas.common import representation_query
 from service.api.schemas.filters import (
-    ApproximationQuerySchema, ApproximationRequestSchema, ApproximationSchema, ComparisonSchema,
-    CompareRequestSchema, requirement_from,
+    ApproximationRequestSchema, ApproximationSchema, ComparisonSchema, CompareRequestSchema, requirement_from,
 )
+from service.api.schemas.queries import ApproximationQuerySchema, CompareQuerySchema
 from service.workflows import approximate, compare
 
-blp = Blueprint("approximations", __name__, url_prefix="/v1/approximations",
+blp = Blueprint("approximations", __name__, url_prefix="/v1",
                 description="Requirement or order to transfer function and sections.")
 
 _DESCRIPTION = """\
@@ -31,7 +32,9 @@ reply gives the lowest order of the family that meets it and, in `edges`, the
 achieved loss, the required loss and the margin at each edge.
 
 Frequencies in Hz (numbers or strings such as "25.6kHz"), losses in dB.
-`format=csv` returns the sections as a table. Infeasible or contradictory
+`format=csv` returns the sections as a table; `format=text&field=order` one
+value. The GET form takes the same fields as query parameters (a pair as
+`cutoff_hz=35k&cutoff_hz=45k` or `cutoff_hz=35k,45k`). Infeasible or contradictory
 requirements (stopband inside the passband, attenuation not above the ripple, an
 odd-order Linkwitz-Riley) are 422 problems naming the condition.
 
@@ -55,32 +58,37 @@ def _sections_table(approx) -> dict:
 
 def _answer(args):
     approx = approximate(requirement_from(args), current_app.config["ROLLOFF_SETTINGS"])
-    if args.get("format") == "csv":
+    if representation().produce == "csv":
         return csv_response(_sections_table(approx), filename="sections.csv")
     return approx.as_dict()
 
 
-_DOC = alternative_content(CSV_MEDIA_TYPE, schema="Approximation",
-                           description="The transfer function and its sections (JSON), or the sections as CSV.")
+FORMATS = ("json", "csv", "text")
+_REPLY = dict(description="The transfer function and its sections (JSON), the sections as CSV, or one value as "
+                          "text.")
+ApproximationRepresentation = representation_query("ApproximationRepresentation", FORMATS)
 
 
-@blp.route("")
+@blp.route("/approximations")
 class Approximations(MethodView):
     @blp.arguments(ApproximationQuerySchema, location="query", unknown="raise")
-    @blp.response(200, ApproximationSchema)
+    @blp.reply(ApproximationSchema, *FORMATS[1:], **_REPLY)
     @blp.alt_response(422, response="UNPROCESSABLE_ENTITY", description="Invalid or infeasible request.")
-    @blp.doc(summary="Transfer function by order (query parameters)", description=_DESCRIPTION, **_DOC)
+    @blp.doc(summary="Transfer function from a requirement or an order (query parameters)", description=_DESCRIPTION,
+             operationId="approximate_by_query")
     def get(self, args):
         return _answer(args)
 
+    @blp.arguments(ApproximationRepresentation, location="query", unknown="raise")
     @blp.arguments(ApproximationRequestSchema, example=_EXAMPLE_REQUEST)
-    @blp.response(200, ApproximationSchema)
+    @blp.reply(ApproximationSchema, *FORMATS[1:], **_REPLY)
     @blp.alt_response(400, response="BAD_REQUEST", description="The body is not valid JSON.")
     @blp.alt_response(413, response="REQUEST_ENTITY_TOO_LARGE", description="The body is too large.")
     @blp.alt_response(415, response="UNSUPPORTED_MEDIA_TYPE", description="The body is not JSON.")
     @blp.alt_response(422, response="UNPROCESSABLE_ENTITY", description="Invalid or infeasible request.")
-    @blp.doc(summary="Transfer function from a requirement or an order", description=_DESCRIPTION, **_DOC)
-    def post(self, args):
+    @blp.doc(summary="Transfer function from a requirement or an order", description=_DESCRIPTION,
+             operationId="approximate")
+    def post(self, _query, args):
         return _answer(args)
 
 
@@ -92,29 +100,44 @@ smallest attenuation margin (dB). Families that cannot meet it within
 ROLLOFF_MAX_ORDER are listed with `meets: false` and the reason. With
 `overshoot_limit_pct` and/or `group_delay_variation_limit_s`, `recommended` is
 the lowest-order family that also meets those limits. `format=csv`: a row per
-family.
+family; `format=text&field=recommended` one value.
 
 Example (PM-7 accelerometer channel): which approximation for 0.1 dB to 10 kHz
 and 80 dB at 25.6 kHz, with at most 10 % step overshoot?
 """
 
 
-@blp.route("/compare")
+def _compare(args):
+    comparison = compare(requirement_from(args), current_app.config["ROLLOFF_SETTINGS"],
+                         overshoot_limit_pct=args.get("overshoot_limit_pct"),
+                         group_delay_variation_limit_s=args.get("group_delay_variation_limit_s"))
+    if representation().produce == "csv":
+        return csv_response(comparison.table(), filename="compare.csv")
+    return comparison.as_dict()
+
+
+_COMPARE_REPLY = dict(description="The comparison (JSON), a row per family (CSV), or one value as text.")
+
+
+@blp.route("/approximations/compare")
 class Compare(MethodView):
+    @blp.arguments(CompareQuerySchema, location="query", unknown="raise")
+    @blp.reply(ComparisonSchema, *FORMATS[1:], **_COMPARE_REPLY)
+    @blp.alt_response(422, response="UNPROCESSABLE_ENTITY", description="Invalid or contradictory requirement.")
+    @blp.doc(summary="Every family side by side for one requirement (query parameters)",
+             description=_COMPARE_DESCRIPTION, operationId="compare_families_by_query")
+    def get(self, args):
+        return _compare(args)
+
+    @blp.arguments(ApproximationRepresentation, location="query", unknown="raise")
     @blp.arguments(CompareRequestSchema, example=dict(
         {k: v for k, v in _EXAMPLE_REQUEST.items() if k != "family"}, overshoot_limit_pct=10))
-    @blp.response(200, ComparisonSchema)
+    @blp.reply(ComparisonSchema, *FORMATS[1:], **_COMPARE_REPLY)
     @blp.alt_response(400, response="BAD_REQUEST", description="The body is not valid JSON.")
     @blp.alt_response(413, response="REQUEST_ENTITY_TOO_LARGE", description="The body is too large.")
     @blp.alt_response(415, response="UNSUPPORTED_MEDIA_TYPE", description="The body is not JSON.")
     @blp.alt_response(422, response="UNPROCESSABLE_ENTITY", description="Invalid or contradictory requirement.")
     @blp.doc(summary="Every family side by side for one requirement", description=_COMPARE_DESCRIPTION,
-             **alternative_content(CSV_MEDIA_TYPE, schema="Comparison",
-                                   description="The comparison (JSON) or a row per family (CSV)."))
-    def post(self, args):
-        comparison = compare(requirement_from(args), current_app.config["ROLLOFF_SETTINGS"],
-                             overshoot_limit_pct=args.get("overshoot_limit_pct"),
-                             group_delay_variation_limit_s=args.get("group_delay_variation_limit_s"))
-        if args.get("format") == "csv":
-            return csv_response(comparison.table(), filename="compare.csv")
-        return comparison.as_dict()
+             operationId="compare_families")
+    def post(self, _query, args):
+        return _compare(args)

@@ -9,7 +9,8 @@ from flask import current_app
 from flask.views import MethodView
 
 from service.api.extension import Blueprint
-from service.api.schemas.common import ReplySchema, StrictSchema
+from service.api.formats import FIGURE_DIGITS
+from service.api.schemas.common import ReplySchema, Scalar, StrictSchema, representation_fields
 from service.approximation import ResponseType, SectionKind, all_family_info
 from service.components import SERIES, SERIES_TOLERANCE, series_mantissas
 from service.realization.topologies import describe_all, describe_auto
@@ -28,7 +29,7 @@ class SeriesSchema(ma.Schema):
 
 
 class LimitSchema(ma.Schema):
-    value = ma.fields.Raw(metadata={"description": "Configured value."})
+    value = Scalar(metadata={"description": "Configured value."})
     setting = ma.fields.String(metadata={"description": "Environment variable that sets it."})
     description = ma.fields.String()
 
@@ -45,9 +46,20 @@ class FamilySchema(ma.Schema):
     reference = ma.fields.String()
 
 
+class AutoTopologyLimitsSchema(ma.Schema):
+    max_q = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.Float(), metadata={
+        "description": "Highest section Q each topology is chosen for."})
+    max_resistor_spread = ma.fields.Float(metadata={"description": "Largest ratio of a stage's resistors."})
+    max_capacitor_spread = ma.fields.Float(metadata={"description": "Largest ratio of a stage's capacitors."})
+    max_q_sensitivity = ma.fields.Float(metadata={"description": "Largest sum of |S^Q| over a stage's parts."})
+    max_opamp_shift = ma.fields.Float(metadata={"description": "Largest relative f0 or Q shift the op-amp may "
+                                                               "cause."})
+    gbw_spread = ma.fields.Float(metadata={"description": "Relative GBW spread the op-amp figures allow for."})
+
+
 class AutoTopologySchema(ma.Schema):
     rule = ma.fields.String(metadata={"description": "The rule, in words."})
-    limits = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.Raw(), metadata={
+    limits = ma.fields.Nested(AutoTopologyLimitsSchema, metadata={
         "description": "The limits it applies (max_q per topology, spreads, sum of |S^Q|, the op-amp's shift)."})
     candidates = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.List(ma.fields.String()), metadata={
         "description": "Topologies considered per section kind, in order of preference."})
@@ -66,6 +78,13 @@ class TopologySchema(ma.Schema):
     reference = ma.fields.String(metadata={"description": "Published source of its design equations."})
 
 
+class NumberRulesSchema(ma.Schema):
+    figures_significant_digits = ma.fields.Integer(metadata={
+        "description": "Computed figures (losses, gains, margins, errors, percentiles ...) are rounded to this many "
+                       "significant digits."})
+    exact = ma.fields.String(metadata={"description": "What is given exactly."})
+
+
 class VerificationRulesSchema(ma.Schema):
     reference = ma.fields.String(metadata={"description": "The gain loss is measured from."})
     open_bands = ma.fields.String(metadata={"description": "How far open passbands and stopbands are checked."})
@@ -75,6 +94,8 @@ class VerificationRulesSchema(ma.Schema):
 
 
 class CatalogSchema(ReplySchema):
+    EXACT = ("*",)
+
     api_version = ma.fields.String()
     responses = ma.fields.List(ma.fields.String(), metadata={"description": "Response types."})
     families = ma.fields.List(ma.fields.Nested(FamilySchema))
@@ -88,6 +109,7 @@ class CatalogSchema(ReplySchema):
     verification = ma.fields.Nested(VerificationRulesSchema, metadata={
         "description": "What \"meets\" means, for every verdict the service gives (designs, edited documents, "
                        "response masks, Monte Carlo trials)."})
+    numbers = ma.fields.Nested(NumberRulesSchema, metadata={"description": "How numbers in replies are rounded."})
 
 
 def build_catalog(settings) -> dict:
@@ -118,25 +140,32 @@ def build_catalog(settings) -> dict:
                       "circuit's poles and zeros (with its op-amp models); a pole in the closed right half-plane "
                       "makes the circuit unstable, meeting nothing",
             "stage_numbering": "stage numbers count from 1 (fields named stage or number, and messages); field "
-                               "paths in problems count array entries from 0 (stages[0] is stage 1)",
+                               "paths in problems count array entries from 0 (stages[0] is stage 1); field= "
+                               "paths count list entries from 1 (stages.1 is stage 1)",
+        },
+        "numbers": {
+            "figures_significant_digits": FIGURE_DIGITS,
+            "exact": "part values, sections, poles, zeros and gains of transfer functions, requirements, settings, "
+                     "frequency and time grids, seeds",
         },
     }
 
 
-class NoQuerySchema(StrictSchema):
-    """No query parameters (any given is rejected)."""
+#: The catalog's query: only the representation, ``format`` (json or text) and ``field``.
+CatalogQuerySchema = StrictSchema.from_dict(representation_fields(("json", "text"), name="CatalogFormat"), name="CatalogQuerySchema")
 
 
 @blp.route("/catalog")
 class Catalog(MethodView):
-    @blp.arguments(NoQuerySchema, location="query", unknown="raise")
-    @blp.response(200, CatalogSchema)
+    @blp.arguments(CatalogQuerySchema, location="query", unknown="raise")
+    @blp.reply(CatalogSchema, "text", description="The catalog (JSON), or one value as text "
+                                                  "(field=limits.max_order.value).")
     @blp.alt_response(422, response="UNPROCESSABLE_ENTITY", description="An unknown query parameter was given.")
     @blp.doc(summary="What this service offers",
              description="Service and API versions, response types, approximation families (what their cutoff "
                          "means, highest order), section kinds, topologies with the section kinds each realizes and "
                          "their strategies, preferred-number series, the configured limits (with the environment "
                          "variable of each) and the operations answered. Built from the same registries the service "
-                         "dispatches through.")
+                         "dispatches through.", operationId="get_catalog")
     def get(self, _args):
         return build_catalog(current_app.config["ROLLOFF_SETTINGS"])

@@ -2,21 +2,19 @@
 
 from __future__ import annotations
 
-from flask import current_app, request
+from flask import current_app
 from flask.views import MethodView
-from marshmallow.fields import Integer
-from marshmallow.validate import Range
 
 from service.workflows import DesignDocument, design, evaluate_json
-from service.api.extension import Blueprint
-from service.api.formats import (
-    CSV_MEDIA_TYPE, SVG_MEDIA_TYPE, TEXT_MEDIA_TYPE, alternative_content, csv_response, svg_response, text_response,
-)
-from service.api.schemas.common import StrictSchema, one_of
+from service.workflows.bom import bom_lines, bom_table
+from service.api.extension import Blueprint, representation
+from service.api.formats import csv_response, spice_response, svg_response
+from service.api.schemas.common import representation_query
 from service.api.schemas.designs import DesignDocumentSchema, DesignRequestSchema, DesignSchema
+from service.api.schemas.queries import DesignQuerySchema
 from service.errors import InvalidParameter
 
-blp = Blueprint("designs", __name__, url_prefix="/v1/designs",
+blp = Blueprint("designs", __name__, url_prefix="/v1",
                 description="Requirement to op-amp stages with parts that can be bought.")
 
 _DESCRIPTION = """\
@@ -57,10 +55,20 @@ design whose parts would leave the representable range (resistors
 Achieved f0, Q and gain are read back from the circuit built with the chosen
 values (circuit engine), not from the design formulas.
 
-`format=csv` returns the BOM as a table, `format=spice` the netlist alone,
+`bom_lines` is the bill of materials to order from: one line per distinct part
+(kind, value, tolerance, dielectric, part_id; op-amps by GBW and slew rate)
+with its quantity and refs, sorted by kind then value, each value exact and in
+engineering notation. `format=csv` (or `Accept: text/csv`) returns it as a CSV
+download; `format=spice` the netlist alone (`text/x.spice-netlist`);
 `format=svg` (or `Accept: image/svg+xml`) the schematic of the whole filter, or
 of one stage with `stage` (numbered from 1): parts with ref and value, op-amps,
-each stage framed with its section.
+each stage framed with its section; `format=text&field=summary.meets` one value
+(`field=stages.2.components.R3.value`: stage 2, part R3).
+
+The GET form takes the requirement and the options as query parameters, the
+parts by series, range and tolerance (`parts.resistors.series=E96`,
+`parts.capacitors.tolerance=0.05`) and the op-amp by its figures
+(`opamp.gbw_hz=10M`); a stock list needs the POST form.
 
 Mains-interference notches must never be connected to the mains: follow local
 electrical codes and licensed practice for anything mains-connected.
@@ -101,17 +109,12 @@ EVALUATE_EXAMPLE = {
                     "passband_ripple_db": 0.5, "stopband_attenuation_db": 35},
 }
 
-_DOC = alternative_content(CSV_MEDIA_TYPE, TEXT_MEDIA_TYPE, SVG_MEDIA_TYPE, schema="Design",
-                           description="The design document with BOM, netlist, summary and warnings (JSON); "
-                                       "the BOM as CSV; the netlist as text; or the schematic as SVG.")
-
-
-def _wanted(fmt: str) -> str:
-    """``format`` as asked; a JSON default becomes ``svg`` when the client prefers ``image/svg+xml``."""
-    if fmt == "json" and request.accept_mimetypes.best_match(
-            ["application/json", SVG_MEDIA_TYPE], default="application/json") == SVG_MEDIA_TYPE:
-        return "svg"
-    return fmt
+FORMATS = ("json", "csv", "spice", "svg", "text")
+_REPLY = dict(description="The design document with BOM, netlist, summary and warnings (JSON); the BOM lines as "
+                          "CSV; the netlist; the schematic (SVG); or one value as text.")
+DesignRepresentation = representation_query("DesignRepresentation", FORMATS)
+EvaluateRepresentation = representation_query("EvaluateRepresentation", FORMATS, format_name="DesignFormat",
+                                             stage=True)
 
 
 def _schematic(document: DesignDocument, stage: int | None):
@@ -120,34 +123,48 @@ def _schematic(document: DesignDocument, stage: int | None):
     return svg_response(schematic_svg(document, stage).encode("utf-8"))
 
 
-def _reply(document: dict, fmt: str, stage: int | None = None):
-    """The design document (JSON) in the format asked: itself, its BOM (CSV) or its netlist (text)."""
+def _bom_filename(document: DesignDocument) -> str:
+    parts = [p for p in (document.response and document.response.value, document.family and document.family.value,
+                         document.order) if p is not None]
+    return "-".join(["bom", *map(str, parts)]) + ".csv"
+
+
+def _reply(outcome, stage: int | None = None):
+    """A design outcome in the representation asked: the document, its BOM (CSV), netlist or schematic."""
+    fmt = representation().produce
+    if fmt == "svg":
+        return _schematic(outcome.document, stage)
     if stage is not None:
         raise InvalidParameter("stage selects the stage of a schematic: use it with format svg", field="stage")
     if fmt == "csv":
-        cols = ("ref", "kind", "value", "tolerance", "dielectric", "part_id")
-        return csv_response({c: [line.get(c) for line in document["bom"]] for c in cols}, filename="bom.csv")
+        return csv_response(bom_table(bom_lines(outcome.design)), filename=_bom_filename(outcome.document))
     if fmt == "spice":
-        return text_response(document["netlist"])
-    return document
+        return spice_response(outcome.design.netlist)
+    return outcome.as_dict()
 
 
-@blp.route("")
+@blp.route("/designs")
 class Designs(MethodView):
+    @blp.arguments(DesignQuerySchema, location="query", unknown="raise")
+    @blp.reply(DesignSchema, *FORMATS[1:], **_REPLY)
+    @blp.alt_response(422, response="UNPROCESSABLE_ENTITY",
+                      description="Invalid request, infeasible requirement, or parts that cannot realize it.")
+    @blp.doc(summary="Design a filter with parts from a series (query parameters)", description=_DESCRIPTION,
+             operationId="design_filter_by_query")
+    def get(self, args):
+        return _reply(design(args["request"], current_app.config["ROLLOFF_SETTINGS"]), args.get("stage"))
+
+    @blp.arguments(DesignRepresentation, location="query", unknown="raise")
     @blp.arguments(DesignRequestSchema, example=EXAMPLE)
-    @blp.response(200, DesignSchema)
+    @blp.reply(DesignSchema, *FORMATS[1:], **_REPLY)
     @blp.alt_response(400, response="BAD_REQUEST", description="The body is not valid JSON.")
     @blp.alt_response(413, response="REQUEST_ENTITY_TOO_LARGE", description="The body is too large.")
     @blp.alt_response(415, response="UNSUPPORTED_MEDIA_TYPE", description="The body is not JSON.")
     @blp.alt_response(422, response="UNPROCESSABLE_ENTITY",
                       description="Invalid request, infeasible requirement, or parts that cannot realize it.")
-    @blp.doc(summary="Design a filter with parts from stock", description=_DESCRIPTION, **_DOC)
-    def post(self, args):
-        outcome = design(args["request"], current_app.config["ROLLOFF_SETTINGS"])
-        fmt = _wanted(args["format"])
-        if fmt == "svg":
-            return _schematic(outcome.document, args.get("stage"))
-        return _reply(outcome.as_dict(), fmt, args.get("stage"))
+    @blp.doc(summary="Design a filter with parts from stock", description=_DESCRIPTION, operationId="design_filter")
+    def post(self, _query, args):
+        return _reply(design(args["request"], current_app.config["ROLLOFF_SETTINGS"]), args.get("stage"))
 
 
 _EVALUATE_DESCRIPTION = """\
@@ -159,35 +176,28 @@ netlist, verdict and warnings again. Only `stages[*].section`, `topology`,
 verified against the document's `requirement` as it stands (edit it to
 re-verify: the same verifier as /v1/designs). An unknown key anywhere, a
 removed part, a repeated ref or a part of the wrong kind is a 422 naming it.
-Values may be strings such as "10n" or "4k7". `?format=csv` returns the BOM,
-`?format=spice` the netlist, `?format=svg` (or `Accept: image/svg+xml`) the
-schematic, of one stage with `?stage=N` (numbered from 1).
+Values may be strings such as "10n" or "4k7". `?format=csv` returns the BOM
+lines, `?format=spice` the netlist, `?format=svg` (or `Accept: image/svg+xml`)
+the schematic, of one stage with `?stage=N` (numbered from 1),
+`?format=text&field=summary.meets` one value. A document carrying the per-ref
+`bom` or the `bom_lines` of an earlier reply is read as any other: derived
+keys are recomputed.
 """
 
 
-class FormatQuerySchema(StrictSchema):
-    format = one_of(["json", "csv", "spice", "svg"], load_default="json",
-                    description="`csv`: the BOM as a table; `spice`: the netlist as text; `svg`: the schematic.")
-    stage = Integer(validate=Range(min=1), metadata={
-        "description": "With `format=svg`: draw only this stage (numbered from 1); default the whole filter."})
-
-
-@blp.route("/evaluate")
+@blp.route("/designs/evaluate")
 class Evaluate(MethodView):
-    @blp.arguments(FormatQuerySchema, location="query", unknown="raise")
+    @blp.arguments(EvaluateRepresentation, location="query", unknown="raise")
     @blp.arguments(DesignDocumentSchema, example=EVALUATE_EXAMPLE)
-    @blp.response(200, DesignSchema)
+    @blp.reply(DesignSchema, *FORMATS[1:], description="The design document again (JSON), its BOM lines (CSV), "
+                                                        "netlist, schematic (SVG) or one value as text.")
     @blp.alt_response(400, response="BAD_REQUEST", description="The body is not valid JSON.")
     @blp.alt_response(413, response="REQUEST_ENTITY_TOO_LARGE", description="The body is too large.")
     @blp.alt_response(415, response="UNSUPPORTED_MEDIA_TYPE", description="The body is not JSON.")
     @blp.alt_response(422, response="UNPROCESSABLE_ENTITY", description="A missing, repeated or wrong part.")
     @blp.doc(summary="Evaluate a (possibly edited) design document", description=_EVALUATE_DESCRIPTION,
-             **alternative_content(CSV_MEDIA_TYPE, TEXT_MEDIA_TYPE, SVG_MEDIA_TYPE, schema="Design",
-                                   description="The design document again (JSON), its BOM (CSV), netlist (text) "
-                                               "or schematic (SVG)."))
+             operationId="evaluate_design")
     def post(self, query, document):
-        fmt = _wanted(query["format"])
-        if fmt == "svg":   # the drawing needs the parts only, not the analysis
+        if representation().produce == "svg":   # the drawing needs the parts only, not the analysis
             return _schematic(DesignDocument.from_json(document), query.get("stage"))
-        outcome = evaluate_json(document, current_app.config["ROLLOFF_SETTINGS"])
-        return _reply(outcome.as_dict(), fmt, query.get("stage"))
+        return _reply(evaluate_json(document, current_app.config["ROLLOFF_SETTINGS"]), query.get("stage"))

@@ -52,7 +52,8 @@ def readiness_checks() -> dict[str, str]:
 @blp.route("/healthz")
 class Health(MethodView):
     @blp.response(200, HealthSchema)
-    @blp.doc(summary="Liveness", description="200 while the process answers. Needs no API key.")
+    @blp.doc(summary="Liveness", description="200 while the process answers. Needs no API key.",
+             operationId="check_health")
     def get(self):
         return {"status": "ok"}
 
@@ -63,7 +64,7 @@ class Ready(MethodView):
     @blp.alt_response(503, response="SERVICE_UNAVAILABLE", description="A readiness check failed.")
     @blp.doc(summary="Readiness",
              description="200 when the numerical stack is loaded and a tiny computation of each layer "
-                         "gives the right answer; 503 otherwise. Needs no API key.")
+                         "gives the right answer; 503 otherwise. Needs no API key.", operationId="check_readiness")
     def get(self):
         try:
             checks = readiness_checks()

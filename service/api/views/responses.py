@@ -2,19 +2,19 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 from flask import current_app
 from flask.views import MethodView
 
-from service.api.extension import Blueprint
-from service.api.formats import (
-    CSV_MEDIA_TYPE, SVG_MEDIA_TYPE, alternative_content, csv_response, svg_response,
-)
-from service.api.schemas.responses import ResponseQuerySchema, ResponseRequestSchema, ResponseSchema
-from service.approximation import Family, ResponseType
-from service.response import FrequencyGrid
-from service.workflows import Requirement, ResponseRequest, respond
+from service.api.extension import Blueprint, representation
+from service.api.formats import FIGURE_DIGITS, csv_response, svg_response
+from service.api.schemas.common import representation_query
+from service.api.schemas.queries import ResponseQuerySchema
+from service.api.schemas.responses import ResponseRequestSchema, ResponseSchema
+from service.workflows import ResponseRequest, respond
 
-blp = Blueprint("responses", __name__, url_prefix="/v1/responses",
+blp = Blueprint("responses", __name__, url_prefix="/v1",
                 description="Frequency and time response, metrics and requirement masks.")
 
 _DESCRIPTION = """\
@@ -37,7 +37,13 @@ verdict (`mask_result`: on the whole band, from the poles and zeros, with
 stability and the open-band rule).
 
 `format=csv`: a row per frequency (or per time point with `table: time`);
-`format=svg`: magnitude and phase, group delay and step response, with the mask.
+`format=svg`: magnitude and phase, group delay and step response, with the mask;
+`format=text&field=metrics.f3db_hz`: one value.
+
+The GET form takes a requirement or an order as query parameters (as
+/v1/approximations), and optionally a log grid (`start_hz`, `stop_hz`,
+`points`): the response of the ideal transfer function; by requirement it is
+verified against that requirement (`mask_result`, `field=mask_result.meets`).
 At most ROLLOFF_MAX_FREQUENCY_POINTS frequencies and ROLLOFF_MAX_TIME_POINTS time points.
 
 Example (Larkspur Fluidics PM-7 pressure input): the 50 Hz / 60 Hz mains-pickup
@@ -51,44 +57,41 @@ EXAMPLE = {
              {"start_hz": "49.5Hz", "stop_hz": "60.5Hz", "min_loss_db": 20.0}],
 }
 
-_DOC = alternative_content(CSV_MEDIA_TYPE, SVG_MEDIA_TYPE, schema="Response",
-                           description="The response and its metrics (JSON), a table (CSV) or a figure (SVG).")
+FORMATS = ("json", "csv", "svg", "text")
+_REPLY = dict(description="The response and its metrics (JSON), a table (CSV), a figure (SVG) or one value as text.")
+ResponseRepresentation = representation_query("ResponseRepresentation", FORMATS)
 
 
-def _answer(request: ResponseRequest, fmt: str, table: str):
+def _answer(request: ResponseRequest, table: str):
+    fmt = representation().produce
+    if fmt == "svg" and not request.figure:
+        request = replace(request, figure=True)
     result = respond(request, current_app.config["ROLLOFF_SETTINGS"])
     if fmt == "csv":
-        return csv_response(result.table(table), filename=f"response-{table}.csv")
+        return csv_response(result.table(table), filename=f"response-{table}.csv", digits=FIGURE_DIGITS)
     if fmt == "svg":
         return svg_response(result.svg())
     return result.as_dict()
 
 
-@blp.route("")
+@blp.route("/responses")
 class Responses(MethodView):
     @blp.arguments(ResponseQuerySchema, location="query", unknown="raise")
-    @blp.response(200, ResponseSchema)
+    @blp.reply(ResponseSchema, *FORMATS[1:], **_REPLY)
     @blp.alt_response(422, response="UNPROCESSABLE_ENTITY", description="Invalid or infeasible request.")
-    @blp.doc(summary="Response of a by-order transfer function (query parameters)", description=_DESCRIPTION, **_DOC)
+    @blp.doc(summary="Response of a requirement's or an order's transfer function (query parameters)",
+             description=_DESCRIPTION, operationId="compute_response_by_query")
     def get(self, args):
-        requirement = Requirement(
-            response=ResponseType(args["response"]), family=Family(args["family"]), order=args["order"],
-            cutoff_hz=args["cutoff_hz"], cutoff_at=args["cutoff_at"],
-            passband_ripple_db=args.get("passband_ripple_db"),
-            stopband_attenuation_db=args.get("stopband_attenuation_db"))
-        grid = None
-        if "start_hz" in args:
-            grid = FrequencyGrid(args["start_hz"], args["stop_hz"], args["points"], "log")
-        request = ResponseRequest(requirement, frequencies=grid, default_points=args["points"],
-                                  figure=args["format"] == "svg")
-        return _answer(request, args["format"], args["table"])
+        return _answer(args["request"], args["table"])
 
+    @blp.arguments(ResponseRepresentation, location="query", unknown="raise")
     @blp.arguments(ResponseRequestSchema, example=EXAMPLE)
-    @blp.response(200, ResponseSchema)
+    @blp.reply(ResponseSchema, *FORMATS[1:], **_REPLY)
     @blp.alt_response(400, response="BAD_REQUEST", description="The body is not valid JSON.")
     @blp.alt_response(413, response="REQUEST_ENTITY_TOO_LARGE", description="The body is too large.")
     @blp.alt_response(415, response="UNSUPPORTED_MEDIA_TYPE", description="The body is not JSON.")
     @blp.alt_response(422, response="UNPROCESSABLE_ENTITY", description="Invalid or infeasible request.")
-    @blp.doc(summary="Frequency and time response, metrics and mask check", description=_DESCRIPTION, **_DOC)
-    def post(self, args):
-        return _answer(args["request"], args["format"], args["table"])
+    @blp.doc(summary="Frequency and time response, metrics and mask check", description=_DESCRIPTION,
+             operationId="compute_response")
+    def post(self, _query, args):
+        return _answer(args["request"], args["table"])

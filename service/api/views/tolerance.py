@@ -2,17 +2,20 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 from flask import current_app
 from flask.views import MethodView
 
 from service.api import metrics
 from service.workflows import tolerance
-from service.api.extension import Blueprint
-from service.api.formats import CSV_MEDIA_TYPE, SVG_MEDIA_TYPE, alternative_content, csv_response, svg_response
+from service.api.extension import Blueprint, representation
+from service.api.formats import FIGURE_DIGITS, csv_response, svg_response
+from service.api.schemas.common import representation_query
 from service.api.schemas.tolerance import ToleranceRequestSchema, ToleranceSchema
 from service.api.views.designs import EVALUATE_EXAMPLE
 
-blp = Blueprint("tolerance", __name__, url_prefix="/v1/tolerance",
+blp = Blueprint("tolerance", __name__, url_prefix="/v1",
                 description="Monte Carlo, sensitivity, worst case and yield.")
 
 _DESCRIPTION = """\
@@ -36,7 +39,8 @@ ranked; and worst-case corners at each mask edge. `include_trials: N` returns
 the first N boards' part values so a failing one can be rebuilt in a simulator.
 
 The same request and `seed` give the same numbers. `format=csv`: percentiles
-per frequency; `format=svg`: the magnitude envelope with the mask. At most
+per frequency; `format=svg`: the magnitude envelope with the mask;
+`format=text&field=yield.fraction`: one value. At most
 ROLLOFF_MAX_TRIALS trials, and the run's estimated work (trials × points × the
 circuit's cost, plus each trial's verification) at most ROLLOFF_MAX_WORK (about
 2 s of CPU; a problem over the limit says how many trials fit).
@@ -51,24 +55,31 @@ EXAMPLE = {"design": EVALUATE_EXAMPLE, "trials": 2000, "seed": 7, "distribution"
            "include_trials": 2}
 
 
-@blp.route("")
+FORMATS = ("json", "csv", "svg", "text")
+ToleranceRepresentation = representation_query("ToleranceRepresentation", FORMATS)
+
+
+@blp.route("/tolerance")
 class Tolerance(MethodView):
+    @blp.arguments(ToleranceRepresentation, location="query", unknown="raise")
     @blp.arguments(ToleranceRequestSchema, example=EXAMPLE)
-    @blp.response(200, ToleranceSchema)
+    @blp.reply(ToleranceSchema, *FORMATS[1:], description="The analysis (JSON), percentiles per frequency (CSV), "
+                                                           "the envelope figure (SVG) or one value as text.")
     @blp.alt_response(400, response="BAD_REQUEST", description="The body is not valid JSON.")
     @blp.alt_response(413, response="REQUEST_ENTITY_TOO_LARGE", description="The body is too large.")
     @blp.alt_response(415, response="UNSUPPORTED_MEDIA_TYPE", description="The body is not JSON.")
     @blp.alt_response(422, response="UNPROCESSABLE_ENTITY", description="Invalid request or over a limit.")
     @blp.doc(summary="Monte Carlo, sensitivity, worst case and yield", description=_DESCRIPTION,
-             **alternative_content(CSV_MEDIA_TYPE, SVG_MEDIA_TYPE, schema="Tolerance",
-                                   description="The analysis (JSON), percentiles per frequency (CSV) or the "
-                                               "envelope figure (SVG)."))
-    def post(self, args):
+             operationId="analyze_tolerance")
+    def post(self, _query, args):
         request = args["request"]
+        fmt = representation().produce
+        if fmt == "svg" and not request.figure:
+            request = replace(request, figure=True)
         result = tolerance(request, current_app.config["ROLLOFF_SETTINGS"])
         metrics.count_trials(request.trials)
-        if args["format"] == "csv":
-            return csv_response(result.table(), filename="tolerance.csv")
-        if args["format"] == "svg":
+        if fmt == "csv":
+            return csv_response(result.table(), filename="tolerance.csv", digits=FIGURE_DIGITS)
+        if fmt == "svg":
             return svg_response(result.svg())
         return result.as_dict()
