@@ -249,11 +249,12 @@ class Blueprint(_SmorestBlueprint):
         fields = tuple(f.data_key or name for name, f in schema().fields.items())
         offer = Offer(offered, fields, text_needs_field)
         respond = self.response(200, schema, description=description)
+        refuse = self.alt_response(406, response="NOT_ACCEPTABLE")
         content = formats.content_doc(offered, schema=component_name(schema), description=description,
                                       example=example)
 
         def decorator(func):
-            inner = respond(func)
+            inner = refuse(respond(func))
 
             @wraps(inner)
             def wrapper(*args, **kwargs):

@@ -59,3 +59,94 @@ def test_alternative_media_types_keep_json(document):
     ok = document["paths"]["/v1/values/nearest"]["get"]["responses"]["200"]["content"]
     assert {"application/json", "text/csv", "text/plain"} <= set(ok)
     assert ok["application/json"]["schema"]["$ref"].endswith("/Nearest")
+
+
+# ---------------------------------------------------------------------------- names a generated client can use
+
+def _operations(document):
+    for path, item in document["paths"].items():
+        for method, op in item.items():
+            if method in HTTP_METHODS:
+                yield path, method, op
+
+
+def test_every_operation_has_a_unique_snake_case_operation_id(document):
+    import re
+
+    ids = [op.get("operationId") for _, _, op in _operations(document)]
+    assert all(i and re.fullmatch(r"[a-z]+(_[a-z0-9]+)*", i) for i in ids), ids
+    assert len(ids) == len(set(ids))
+
+
+def test_component_names_collide_with_no_generator_type_nor_builtin(document):
+    import builtins
+
+    from service.api.openapi import RESERVED
+
+    names = set(document["components"]["schemas"])
+    assert not names & RESERVED
+    assert not names & set(dir(builtins))
+    assert "FrequencyResponse" in names and "Response" not in names
+
+
+def test_two_schemas_may_not_share_a_component_name():
+    import marshmallow as ma
+
+    from service.api.openapi import ComponentNames, NameCollision
+
+    first = type("ThingSchema", (ma.Schema,), {"__module__": "a"})
+    second = type("ThingSchema", (ma.Schema,), {"__module__": "b"})
+    names = ComponentNames()
+    assert names(first) == "Thing"
+    with pytest.raises(NameCollision):
+        names(second)
+    with pytest.raises(NameCollision):
+        ComponentNames()(type("ResponseSchema", (ma.Schema,), {"__module__": "c"}))
+
+
+def test_enumerations_are_components_and_nullable_ones_are_not_copied(document):
+    schemas = document["components"]["schemas"]
+    for name in ("ResponseType", "Family", "CutoffAt", "Excess", "SectionOrdering", "SectionKind", "SeriesName"):
+        assert schemas[name]["type"] == "string" and schemas[name]["enum"]
+
+    def walk(node, where):
+        if isinstance(node, dict):
+            assert not (isinstance(node.get("enum"), list) and None in node["enum"]), where
+            for k, v in node.items():
+                walk(v, f"{where}/{k}")
+        elif isinstance(node, list):
+            for i, v in enumerate(node):
+                walk(v, f"{where}[{i}]")
+
+    walk(document, "")
+    family = schemas["DesignDocument"]["properties"]["family"]
+    assert family["oneOf"] == [{"$ref": "#/components/schemas/Family"}, {"type": "null"}]
+
+
+def test_array_query_parameters_are_repeated_parameters(document):
+    for path, method, op in _operations(document):
+        for p in op.get("parameters", []):
+            if p.get("in") == "query" and p["schema"].get("type") == "array":
+                assert p.get("explode", True) is True and p.get("style", "form") == "form", (path, p["name"])
+
+
+def test_each_representation_has_an_operation_with_one_media_type(document):
+    from service.api.formats import MEDIA_TYPES
+
+    for path, method, op in _operations(document):
+        content = op["responses"]["200"]["content"]
+        last = path.rsplit("/", 1)[-1]
+        if "." in last:
+            fmt = last.rsplit(".", 1)[1]
+            assert list(content) == [MEDIA_TYPES[fmt]], (path, method)
+            names = {p["name"] for p in op.get("parameters", []) if p.get("in") == "query"}
+            assert "format" not in names
+            assert ("field" in names) == (fmt in ("text", "csv")), (path, method)
+            base = document["paths"][path.rsplit(".", 1)[0]][method]
+            assert op["operationId"] == f"{base['operationId']}_{fmt}"
+            assert MEDIA_TYPES[fmt] in base["responses"]["200"]["content"]
+        else:
+            assert next(iter(content)) == "application/json", (path, method)
+            for mt in list(content)[1:]:
+                fmt = next(k for k, v in MEDIA_TYPES.items() if v == mt)
+                assert f"{path}.{fmt}" in document["paths"], (path, fmt)

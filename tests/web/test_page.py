@@ -45,7 +45,7 @@ def read_download(pg, selector: str) -> tuple[str, str]:
     with pg.expect_download() as dl:
         pg.click(selector)
     d = dl.value
-    return d.suggested_filename, open(d.path(), encoding="utf-8").read()
+    return d.suggested_filename, open(d.path(), encoding="utf-8", newline="").read()   # CSV lines end in CRLF
 
 
 @pytest.fixture

@@ -213,6 +213,9 @@ class ResponseRequestSchema(StrictSchema):
 class TimeResponseSchema(ma.Schema):
     time_s = ma.fields.List(ma.fields.Float())
     value = ma.fields.List(ma.fields.Float())
+    dirac_weight = ma.fields.Float(allow_none=True, metadata={
+        "description": "Impulse response: weight of the Dirac delta at t = 0 (the transfer function's value at "
+                       "infinite frequency, nonzero for highpass and notch kinds); 0 for the step."})
 
 
 class AttenuationSchema(ma.Schema):

@@ -52,6 +52,7 @@ def readiness_checks() -> dict[str, str]:
 @blp.route("/healthz")
 class Health(MethodView):
     @blp.response(200, HealthSchema)
+    @blp.alt_response(406, response="NOT_ACCEPTABLE")
     @blp.doc(summary="Liveness", description="200 while the process answers. Needs no API key.",
              operationId="check_health")
     def get(self):
@@ -61,6 +62,7 @@ class Health(MethodView):
 @blp.route("/readyz")
 class Ready(MethodView):
     @blp.response(200, ReadySchema)
+    @blp.alt_response(406, response="NOT_ACCEPTABLE")
     @blp.alt_response(503, response="SERVICE_UNAVAILABLE", description="A readiness check failed.")
     @blp.doc(summary="Readiness",
              description="200 when the numerical stack is loaded and a tiny computation of each layer "
