@@ -370,6 +370,45 @@ def query_cases() -> list[Case]:
     return out
 
 
+def representation_cases() -> list[Case]:
+    """field=, format and Accept: a 422 naming field or format, or a 406 naming the Accept header."""
+    ap = "/v1/approximations"
+    q = "response=lowpass&family=butterworth&order=4&cutoff_hz=1k"
+    dq = q + "&parts.resistors.series=E96"
+    out = [Case(f"GET {ap}: field={name}", "GET", ap, query=f"{q}&format=text&field={value}", field="field",
+                route=ap)
+           for name, value in (("unknown", "nope"), ("empty segment", "sections..q"), ("list index 0", "sections.0"),
+                               ("beyond the list", "sections.99.q"), ("an object", "sections.1"),
+                               ("4,000 characters", "a." * 2000), ("NUL", "order%00"), ("other script", "%D9%A0"),
+                               ("below a value", "order.x"))]
+    out += [
+        Case(f"GET {ap}: field with format=json", "GET", ap, query=f"{q}&format=json&field=order", field="field",
+             route=ap),
+        Case(f"GET {ap}: format=text without field", "GET", ap, query=f"{q}&format=text", field="field", route=ap),
+        Case(f"GET {ap}: field given twice", "GET", ap, query=f"{q}&field=order&field=degree", field="field",
+             route=ap),
+        Case(f"GET {ap}.csv: format contradicts the suffix", "GET", ap + ".csv", query=f"{q}&format=json",
+             field="format", route=ap + ".csv"),
+        Case(f"POST {ap}: format in query and body differ", "POST", ap, dict(GOOD_FILTER, format="csv"),
+             query="format=json", field="format", route=ap),
+        Case(f"GET {ap}: Accept matching nothing", "GET", ap, query=q, headers={"Accept": "image/png"}, status=406,
+             detail="Accept", route=ap),
+        Case("POST /v1/designs: Accept matching nothing, body not read", "POST", "/v1/designs", b"{not json",
+             headers={"Accept": "application/xml"}, status=406, detail="Accept", route="/v1/designs"),
+        Case("GET /v1/designs: parts.resistors.series given twice", "GET", "/v1/designs",
+             query=dq + "&parts.resistors.series=E24", field="parts.resistors.series", route="/v1/designs"),
+        Case("GET /v1/designs: unknown series", "GET", "/v1/designs", query=q + "&parts.resistors.series=E7",
+             field="parts.resistors.series", route="/v1/designs"),
+        Case("GET /v1/designs: op-amp figure without its GBW", "GET", "/v1/designs",
+             query=q + "&opamp.slew_v_per_us=5", field="opamp.gbw_hz", route="/v1/designs"),
+        Case("GET /v1/designs: stock is POST only", "GET", "/v1/designs", query=q + "&parts.stock=1k",
+             field="parts.stock", route="/v1/designs"),
+        Case("GET /v1/designs: stage without svg", "GET", "/v1/designs", query=q + "&stage=1", field="stage",
+             route="/v1/designs"),
+    ]
+    return out
+
+
 def document_cases(doc: dict | None) -> list[Case]:
     """Refs, ranges and documented bounds that once disagreed with validation."""
     ds, ev, tl, ap = "/v1/designs", "/v1/designs/evaluate", "/v1/tolerance", "/v1/approximations"
@@ -649,6 +688,7 @@ def cases(design_document: dict | None) -> list[Case]:
     out += number_field_cases(design_document)
     out += wrong_unit_cases(design_document)
     out += query_cases()
+    out += representation_cases()
     out += document_cases(design_document)
     out += pending_cases(design_document)
     return out
