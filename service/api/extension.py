@@ -45,6 +45,7 @@ from service.api.body import read_json_body
 from service.api.fields import Quantity, StrictInteger
 from service.api.openapi import ComponentNames, component_name
 from service.api.problems import PROBLEM_MEDIA_TYPE
+from service.api.schemas.common import Scalar
 from service.errors import InvalidParameter
 
 
@@ -62,7 +63,7 @@ class ProblemSchema(ma.Schema):
         metadata={"description": "Validation messages by field path, e.g. {\"parts.resistors.series\": [\"...\"]}."},
     )
     limit = ma.fields.String(metadata={"description": "Name of the limit exceeded."})
-    limit_value = ma.fields.Raw(metadata={"description": "Configured value of that limit."})
+    limit_value = Scalar(metadata={"description": "Configured value of that limit."})
     setting = ma.fields.String(metadata={"description": "Environment variable that sets that limit."})
     available = ma.fields.List(ma.fields.String(), metadata={
         "description": "406: the media types the operation answers in."})
@@ -307,6 +308,10 @@ class Blueprint(_SmorestBlueprint):
                 manual["summary"] = f"{manual.get('summary', '')}: {_LABELS[fmt]}"
                 manual["x-rolloff-representation"] = {
                     "format": fmt, "field_required": fmt == "text" and offers[m].text_needs_field}
+
+    def offers(self, endpoint: str) -> dict[str, Offer]:
+        """What each method of ``endpoint`` (this blueprint's name for it) offers."""
+        return dict(self._offers.get(endpoint, {}))
 
     def _check_accept(self):
         """406 before any work when ``Accept`` matches no representation of the operation."""

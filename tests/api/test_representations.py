@@ -214,3 +214,43 @@ def test_csv_booleans_are_lower_case(client):
                               "&passband_ripple_db=0.5&stopband_attenuation_db=40&format=csv"))
     meets = rows[0].index("meets")
     assert {r[meets] for r in rows[1:]} <= {"true", "false"}
+
+
+# ------------------------------------------------------------------------------------ the catalog of fields
+
+GET_FORMS = {
+    "GET /v1/values/nearest": NEAREST,
+    "GET /v1/approximations": APPROX,
+    "GET /v1/approximations/compare": "/v1/approximations/compare?response=lowpass&passband_hz=1k&stopband_hz=3k"
+                                      "&passband_ripple_db=0.5&stopband_attenuation_db=40",
+    "GET /v1/designs": DESIGN_QUERY,
+    "GET /v1/responses": "/v1/responses?response=lowpass&family=chebyshev1&passband_hz=1k&stopband_hz=3k"
+                         "&passband_ripple_db=0.5&stopband_attenuation_db=40&points=51",
+    "GET /v1/catalog": "/v1/catalog?",
+}
+
+
+def test_every_top_level_field_of_the_catalog_is_selectable(client):
+    from service.api.formats import number_text
+
+    fields = client.get("/v1/catalog").get_json()["fields"]
+    assert set(GET_FORMS) <= set(fields)
+    for operation, url in GET_FORMS.items():
+        reply = client.get(url).get_json()
+        assert list(reply) == [f for f in fields[operation] if f in reply], operation   # the catalog is the reply's
+        for name in fields[operation]:
+            if name not in reply:
+                continue
+            value = reply[name]
+            if isinstance(value, (dict, list)):
+                if operation == "GET /v1/catalog":          # text only: an object or a list is a 422
+                    assert "field" in problem(client.get(f"{url}&format=text&field={name}"), 422)["errors"]
+                    continue
+                r = client.get(f"{url}&format=csv&field={name}")
+                assert r.status_code == 200 and r.mimetype == "text/csv", (operation, name)
+                if value:
+                    rows_of(r)
+                continue
+            text = client.get(f"{url}&format=text&field={name}").get_data(as_text=True)
+            expected = "" if value is None else value if isinstance(value, str) else number_text(value)
+            assert text == expected, (operation, name)

@@ -106,10 +106,31 @@ class CatalogSchema(ReplySchema):
     series = ma.fields.List(ma.fields.Nested(SeriesSchema))
     limits = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.Nested(LimitSchema))
     endpoints = ma.fields.List(ma.fields.String(), metadata={"description": "Operations this service answers."})
+    fields = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.List(ma.fields.String()), metadata={
+        "description": "Per operation (\"GET /v1/designs\"), the top-level fields of its JSON reply: where a "
+                       "field= path starts."})
     verification = ma.fields.Nested(VerificationRulesSchema, metadata={
         "description": "What \"meets\" means, for every verdict the service gives (designs, edited documents, "
                        "response masks, Monte Carlo trials)."})
     numbers = ma.fields.Nested(NumberRulesSchema, metadata={"description": "How numbers in replies are rounded."})
+
+
+def reply_fields() -> dict[str, list[str]]:
+    """``"METHOD /path"`` -> top-level fields of the JSON reply, for every operation that offers field=."""
+    from service.api.extension import Blueprint as RepliesBlueprint
+
+    out: dict[str, list[str]] = {}
+    for blueprint in current_app.blueprints.values():
+        if not isinstance(blueprint, RepliesBlueprint):
+            continue
+        for rule in current_app.url_map.iter_rules():
+            if not rule.endpoint.startswith(blueprint.name + "."):
+                continue
+            offers = blueprint.offers(rule.endpoint.split(".", 1)[1])
+            for method, offer in offers.items():
+                if "text" in offer.formats and "json" in offer.formats:
+                    out[f"{method} {rule.rule}"] = list(offer.fields)
+    return dict(sorted(out.items()))
 
 
 def build_catalog(settings) -> dict:
@@ -134,6 +155,7 @@ def build_catalog(settings) -> dict:
                     "values": list(series_mantissas(s))} for s in SERIES],
         "limits": settings.limits(),
         "endpoints": rules,
+        "fields": reply_fields(),
         "verification": {
             "reference": REFERENCE_GAIN_RULE, "open_bands": OPEN_BAND_RULE, "numerical_tolerance_db": TOLERANCE_DB,
             "method": "every band checked whole: branch-and-bound over interval bounds of the gain and delay from the "
