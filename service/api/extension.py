@@ -268,12 +268,15 @@ class Blueprint(_SmorestBlueprint):
                     selection.check_top_level(rep.field, fields)
                 g.representation = rep
                 resp = inner(*args, **kwargs)
-                if rep.field is None or resp.mimetype != formats.JSON_MEDIA_TYPE:
-                    return resp
-                value = selection.select(get_appcontext()["result_dump"], rep.field)
-                if rep.name == "text":
-                    return formats.text_response(selection.scalar(value, rep.field))
-                return formats.csv_response(selection.table(value, rep.field), filename=_filename(rep.field))
+                if rep.field is not None and resp.mimetype == formats.JSON_MEDIA_TYPE:
+                    value = selection.select(get_appcontext()["result_dump"], rep.field)
+                    if rep.name == "text":
+                        resp = formats.text_response(selection.scalar(value, rep.field))
+                    else:
+                        resp = formats.csv_response(selection.table(value, rep.field), filename=_filename(rep.field))
+                if len(offered) > 1 and _suffix() is None:
+                    resp.vary.add("Accept")            # the same URL answers by Accept (RFC 9110, 12.5.5)
+                return resp
 
             wrapper._apidoc = deepcopy(getattr(inner, "_apidoc", {}))
             wrapper._apidoc["manual_doc"] = deepupdate(deepcopy(wrapper._apidoc.get("manual_doc", {})), content)

@@ -38,6 +38,7 @@ def test_suffix_format_and_accept_choose_the_same_representation(client):
     for r in (by_suffix, by_format, by_accept):
         assert r.status_code == 200 and r.mimetype == "text/csv"
     assert by_suffix.get_data() == by_format.get_data() == by_accept.get_data()
+    assert "Accept" in by_accept.headers["Vary"] and "Vary" not in by_suffix.headers
 
 
 @pytest.mark.parametrize("accept", [BROWSER, "*/*", "application/json", "application/*", None])
