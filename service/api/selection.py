@@ -68,8 +68,9 @@ def _entry(items: list, seg: str, where: str) -> Any:
         for item in items:
             if isinstance(item, Mapping) and item.get(key) == seg:
                 return item
-    named = [str(item[k]) for item in items if isinstance(item, Mapping) for k in ENTRY_KEYS[:1] if k in item]
-    hint = f" or by ref: {_names(named)}" if named else ""
+    key = next((k for k in ENTRY_KEYS if any(isinstance(item, Mapping) and k in item for item in items)), None)
+    named = [str(item[key]) for item in items if isinstance(item, Mapping) and key in item] if key else []
+    hint = f" or by {key}: {_names(named)}" if named else ""
     raise InvalidParameter(f"{where} is a list: name an entry by its number, 1 to {len(items)}{hint}; "
                            f"got {seg!r}", field="field")
 
