@@ -5,7 +5,7 @@ from __future__ import annotations
 import marshmallow as ma
 
 from service.api.fields import PART_REF, Quantity, StrictInteger
-from service.api.schemas.common import ReplySchema, StrictSchema, one_of
+from service.api.schemas.common import ENUMS, ReplySchema, StrictSchema, one_of
 from service.api.schemas.filters import (FREQ_RANGE, FilterSchema, FrequencyOrPair, GroupDelayLimitSchema,
                                          SectionSchema, requirement_from)
 from service.api.schemas.verdicts import VerdictSchema
@@ -30,9 +30,12 @@ _VALUE = ma.validate.Range(min=min(L.RESISTOR_RANGE_OHM[0], L.CAPACITOR_RANGE_F[
 class NameOrList(ma.fields.Field):
     """One name for every section, or a list with one name per section."""
 
-    def __init__(self, names: list[str] | None, *, max_items: int = 64, **kwargs):
+    def __init__(self, names: list[str] | None, *, max_items: int = 64, enum_name: str | None = None, **kwargs):
         self.names = names
         self.max_items = max_items
+        self.enum_name = enum_name
+        if enum_name is not None:
+            ENUMS.setdefault(enum_name, list(names or ()))
         super().__init__(**kwargs)
 
     def _one(self, value):
@@ -61,7 +64,9 @@ class NameOrList(ma.fields.Field):
 
     def openapi_properties(self) -> dict:
         one = {"type": "string", "maxLength": 64}
-        if self.names is not None:
+        if self.enum_name is not None:
+            one = {"$ref": f"#/components/schemas/{self.enum_name}"}
+        elif self.names is not None:
             one = {"type": "string", "enum": list(self.names)}
         return {"oneOf": [one, {"type": "array", "items": one, "minItems": 1, "maxItems": self.max_items}]}
 
@@ -158,7 +163,7 @@ OpAmpSchema = StrictSchema.from_dict({
 class DesignRequestSchema(FilterSchema):
     """A requirement (or order) and what the realization may use."""
 
-    topology = NameOrList(TOPOLOGY_NAMES, load_default="auto", metadata={
+    topology = NameOrList(TOPOLOGY_NAMES, load_default="auto", enum_name="TopologyChoice", metadata={
         "description": "`auto`, one topology for every section, or a list with one per section."})
     strategy = NameOrList(None, metadata={
         "description": "Design strategy for every section or one per section (see the catalog)."})
@@ -319,7 +324,7 @@ class StageSchema(StrictSchema):
     number = StrictInteger(allow_none=True, validate=ma.validate.Range(min=1, max=L.MAX_STAGES), metadata={
         "description": "Stage number, from 1 (ignored on input)."})
     section = ma.fields.Nested(SectionSchema, required=True)
-    topology = one_of(list(TOPOLOGIES), required=True, description="Topology of the stage.")
+    topology = one_of(list(TOPOLOGIES), required=True, description="Topology of the stage.", name="TopologyName")
     strategy = ma.fields.String(allow_none=True, validate=ma.validate.Length(min=1, max=64), metadata={
         "description": "Design strategy (default: the topology's first)."})
     components = ma.fields.List(ma.fields.Nested(ComponentSchema), required=True,

@@ -5,12 +5,13 @@ from __future__ import annotations
 import marshmallow as ma
 
 from service.api.fields import Quantity, StrictInteger
-from service.api.schemas.common import ReplySchema, Scalar, StrictSchema, one_of
+from service.api.schemas.common import ENUMS, ReplySchema, Scalar, StrictSchema, one_of
 from service.api.schemas.designs import DesignDocumentSchema
 from service.api.schemas.responses import FrequenciesField, MaskField, frequencies_from, mask_from
 from service.workflows import DesignDocument, ToleranceRequest
 
 DISTRIBUTIONS = ["uniform", "gaussian"]
+ENUMS.setdefault("DistributionName", list(DISTRIBUTIONS))
 
 
 class DistributionField(ma.fields.Field):
@@ -36,7 +37,7 @@ class DistributionField(ma.fields.Field):
         raise ma.ValidationError("expected \"uniform\", \"gaussian\" or {resistor, capacitor, opamp: ...}")
 
     def openapi_properties(self) -> dict:
-        one = {"type": "string", "enum": DISTRIBUTIONS}
+        one = {"$ref": "#/components/schemas/DistributionName"}
         per_kind = {"type": "object", "additionalProperties": False,
                     "properties": {k: one for k in self.KINDS}}
         return {"oneOf": [one, per_kind]}

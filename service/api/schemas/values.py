@@ -20,7 +20,7 @@ class NearestRequestSchema(StrictSchema):
                                "such as \"4.87k\", \"4k7\", \"10nF\". From 1e-15 to 1e15.",
                                "example": "4.87k"})
     series = one_of(SERIES, description="IEC 60063 series.", load_default="E24", name="SeriesName")
-    format = one_of(NEAREST_FORMATS, load_default="json",
+    format = one_of(NEAREST_FORMATS, load_default="json", name="NearestFormat",
                     description="`json` (default), `csv` (one-row table) or `text` (the nearest value alone).")
 
 
