@@ -20,5 +20,5 @@ def register_views(api) -> None:
     for name, schema in REFERENCED_COMPONENTS.items():
         if name not in api.spec.components.schemas:
             api.spec.components.schema(name, schema=schema)
-    for name, values in sorted(ENUMS.items()):
-        api.spec.components.schema(name, {"type": "string", "enum": list(values)})
+    for name, choices in sorted(ENUMS.items()):
+        api.spec.components.schema(name, {"type": "string", "enum": list(choices)})
