@@ -84,6 +84,8 @@ BEAM_REACH = 1.5
 BEAM_MOVE_WEIGHT = 0.01
 #: Combinations scored exactly with the op-amp macromodel.
 MODEL_CANDIDATES = 24
+#: Candidates a selection hands back besides its choice (:attr:`Selection.alternatives`).
+ALTERNATIVES_KEPT = 12
 #: Relative step (in log value) of the finite-difference sensitivities of the screen.
 FD_STEP = 1e-5
 #: Bounds of the weight of a zero-frequency error: a stopband's attenuation between two zeros moves
@@ -119,6 +121,9 @@ class Selection:
         The section the design equations were asked for (None: the target itself).
     combinations : int
         Combinations the joint search evaluated.
+    alternatives : dict of str to ndarray or None
+        Role -> values (K,) of the best :data:`ALTERNATIVES_KEPT` candidates by the same score, the
+        chosen one first: what a caller judging the whole filter (not the stage alone) may pick from.
     """
 
     values: dict
@@ -131,6 +136,7 @@ class Selection:
     predicted_macromodel: dict | None = None
     predistortion: Predistortion | None = None
     combinations: int = 0
+    alternatives: dict | None = None
 
 
 def _window(allowed: Allowed, center: float, width: int) -> np.ndarray:
@@ -635,12 +641,16 @@ def select_values(topology, section: Section, strategy: str, allowed: dict[str, 
             best = int(top[i])
             err_best = float(exact_err[i])
             predicted_model = {kk: float(np.asarray(v)[i]) for kk, v in mod.items()}
+            ranked = top[np.argsort(exact_err, kind="stable")]
+            ranked = ranked[np.isfinite(exact_err[np.argsort(exact_err, kind="stable")])]
         else:
             best = int(np.argmin(err))
             err_best = float(err[best])
+            ranked = np.argsort(err, kind="stable")
     else:
         best = int(np.argmin(err))
         err_best = float(err[best])
+        ranked = np.argsort(err, kind="stable")
     if not np.isfinite(err_best):
         raise InfeasibleStage(
             f"the {topology.name} topology ({strategy}) gives no candidate with finite f0 and Q for the "
@@ -649,9 +659,21 @@ def select_values(topology, section: Section, strategy: str, allowed: dict[str, 
         )
     chosen_values = {p.role: float(values[p.role][best]) for p in specs}
     src = int(keep[origin[best]])
-    return _selection(topology, design_section, strategy, allowed, specs, chosen_values,
-                      {p.role: float(ideal[p.role][src]) for p in specs}, err_best, float(lv[best]),
-                      predicted_model, pre, total)
+    result = _selection(topology, design_section, strategy, allowed, specs, chosen_values,
+                        {p.role: float(ideal[p.role][src]) for p in specs}, err_best, float(lv[best]),
+                        predicted_model, pre, total)
+    result.alternatives = _alternatives(values, specs, err, ranked, best)
+    return result
+
+
+def _alternatives(values: dict, specs, err: np.ndarray, ranked: np.ndarray, best: int) -> dict:
+    """Role -> (K,) values of the chosen candidate and the next distinct ones in ``ranked`` order."""
+    order = [best] + [int(i) for i in ranked if int(i) != best and np.isfinite(err[int(i)])]
+    rows = np.array(order, dtype=int)
+    table = np.stack([np.asarray(values[p.role], dtype=float)[rows] for p in specs], axis=1)
+    _, first = np.unique(table, axis=0, return_index=True)
+    keep = rows[np.sort(first)][:ALTERNATIVES_KEPT]
+    return {p.role: np.asarray(values[p.role], dtype=float)[keep] for p in specs}
 
 
 def _selection(topology, design_section, strategy, allowed, specs, values, ideal, score, r_ref, predicted_model,

@@ -34,7 +34,7 @@ STAGE_ANALYSIS_UNITS = 400_000
 #: units, measured (about 25 us of CPU per stage and trial here).
 VERIFICATION_UNITS_PER_STAGE = 400
 #: Cost of one verification of a design (the full search), per stage: units.
-VERIFICATION_UNITS_PER_DESIGN_STAGE = 600_000
+VERIFICATION_UNITS_PER_DESIGN_STAGE = 200_000
 #: Cost of one SVG figure: units.
 FIGURE_UNITS = 3_000_000
 
@@ -100,6 +100,21 @@ def analysis_units(shape: CircuitShape, verifications: int = 1) -> float:
 def check_design(shape: CircuitShape, settings: Settings, *, verifications: int = 3, field: str = "order") -> None:
     """A design or evaluation of ``shape`` (verified up to ``verifications`` times) fits the budget."""
     _refuse(analysis_units(shape, verifications), settings, field=field, what="analysing this design")
+
+
+#: Cost of one design of the design loop (transfer function, part search, analysis, verification with its
+#: causes) and of its reselect step, per stage: units (measured at most about 60 ms per stage each here,
+#: on the requirement set of ``tests/realization/requirement_cases.py``).
+DESIGN_ATTEMPT_UNITS_PER_STAGE = 1_000_000
+RESELECT_UNITS_PER_STAGE = 1_000_000
+
+
+def design_attempts(stages: int, settings: Settings, most: int) -> int:
+    """How many designs of ``stages`` stages the design loop may make (1 to ``most``) within
+    ``ROLLOFF_MAX_WORK``: the first (already admitted by :func:`check_design`) and as many more as the
+    budget left after it holds."""
+    per = (DESIGN_ATTEMPT_UNITS_PER_STAGE + RESELECT_UNITS_PER_STAGE) * max(1, stages)
+    return max(1, min(most, int(settings.max_work // per)))
 
 
 def check_response(shape: CircuitShape | None, points: int, time_points: int, settings: Settings, *,

@@ -425,6 +425,20 @@ class DesignDocumentSchema(StrictSchema):
     cost = ma.fields.Raw(allow_none=True, metadata=_IGNORED)
 
 
+class DesignStepSchema(ma.Schema):
+    action = one_of(["design", "reselect", "margin", "order"], description=(
+        "`design`: the first design; `reselect`: other part choices of the stages furthest off, verified "
+        "whole; `margin`: the reserve of the band that missed widened; `order`: one more order."))
+    detail = ma.fields.String(metadata={"description": "What changed, with values."})
+    order = ma.fields.Integer(metadata={"description": "Order of the transfer function after the step."})
+    passband_margin_db = ma.fields.Float(metadata={"description": "Passband reserve the step designed with (dB)."})
+    stopband_margin_db = ma.fields.Float(metadata={"description": "Stopband reserve the step designed with (dB)."})
+    status = ma.fields.String(allow_none=True, metadata={
+        "description": "The verdict after the step: meets, misses, unstable or unproved (null: the step could "
+                       "not be made, or no requirement to verify)."})
+    worst_margin_db = ma.fields.Float(allow_none=True, metadata={"description": "Worst margin after the step (dB)."})
+
+
 class DesignSchema(ReplySchema):
     """The design document: stages, requirement, settings, BOM, netlist, summary, verdict and warnings."""
 
@@ -442,6 +456,11 @@ class DesignSchema(ReplySchema):
     verdict = ma.fields.Nested(VerdictSchema, allow_none=True, metadata={
         "description": "The circuit verified against the requirement as asked, on the whole band, with its "
                        "op-amp models (null for designs by order)."})
+    steps = ma.fields.List(ma.fields.Nested(DesignStepSchema), metadata={
+        "description": "What the design loop did, in order: the first design, then (only when it missed) other "
+                       "part choices, wider reserves and one more order, each with the verdict after it. The "
+                       "reply is the first design that meets, else the one with the largest worst margin. "
+                       "Empty for an evaluated document."})
     warnings = ma.fields.List(ma.fields.Nested(WarningSchema))
     overall_gain = ma.fields.Float(allow_none=True)
     output_peak_gain_db = ma.fields.Float(allow_none=True)
