@@ -31,7 +31,7 @@ from service.workflows.errors import UnrepresentableDesign
 from service.response.verification import Band, verify
 from service.workflows.policy import passband_margin, stopband_margin, widened, with_gain
 from service.workflows.requirement import Requirement
-from service.workflows.verdicts import DesignVerdict, circuit_roots, finite_opamps, verify_design
+from service.workflows.verdicts import DesignVerdict, circuit_roots, design_criteria, verify_design
 
 #: Relative f0 or Q error of a stage (with its op-amp) beyond which it is reported, as a multiple of the
 #: allowed error the GBW figures are for (``gbw_error``, default 1 %).
@@ -426,7 +426,7 @@ def _reselected(outcome: DesignOutcome, steps: list[DesignStep], pb: float, sb: 
         return outcome
     req = outcome.document.requirement
     plans = list(outcome.plans)
-    criteria = req.criteria(finite_opamps=finite_opamps(plans))
+    criteria = design_criteria(req, plans)
     current = v.verdict.worst_margin_db
     ranked = sorted(range(len(plans)), key=lambda k: -_figure_error(outcome.design.stages[k]))
     changed = []

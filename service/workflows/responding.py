@@ -26,7 +26,7 @@ from service.workflows.approximating import approximate
 from service.workflows.document import DesignDocument
 from service.workflows.masks import Mask, mask_criteria
 from service.workflows.requirement import Requirement
-from service.workflows.verdicts import circuit_roots, finite_opamps, section_roots
+from service.workflows.verdicts import circuit_roots, finite_opamps, section_roots, slowest_gbw_hz
 
 #: Points of the default frequency grid.
 DEFAULT_POINTS = 501
@@ -121,7 +121,8 @@ def respond(request: ResponseRequest, settings: Settings, *, path: str = "design
     costs.check_response(shape, points, time_points, settings, figure=request.figure)
     verdict = None
     if request.mask is not None:
-        verdict = verify(roots, mask_criteria(request.mask, finite_opamps=finite)).verdict()
+        gbw = None if plans is None else slowest_gbw_hz(plans)
+        verdict = verify(roots, mask_criteria(request.mask, finite_opamps=finite, opamp_gbw_hz=gbw)).verdict()
     return analyze(display, grid, time=request.time, verdict=verdict, response_type=response,
                    passband_hz=request.passband_hz, attenuation_at_hz=request.attenuation_at_hz,
                    max_points=settings.max_frequency_points, max_time_points=settings.max_time_points)

@@ -192,6 +192,15 @@ def test_open_passband_ends_with_an_opamp_rolloff_only_when_allowed():
     ref = _extreme(z, np.concatenate([p, [-TWO_PI * 1e5]]), k * TWO_PI * 1e5, 1100, end, True)
     g_end = _gain_db(z, np.concatenate([p, [-TWO_PI * 1e5]]), k * TWO_PI * 1e5, [end])[0]
     assert ref - g_end == pytest.approx(0.6, abs=1e-6)
+    # the roll-off may not end the band below rolloff_from_hz: there the ripple must hold, and it does not
+    held = Criteria((LossLimit(Band.PASSBAND, 1100, 30000, 0.6, open_end=True, ends_with_rolloff=True,
+                               rolloff_from_hz=2 * end),))
+    v_held = verify(rs, held).verdict()
+    assert v_held.status == "misses" and v_held.segments[0].ended_hz is None
+    assert v_held.worst_margin_db == pytest.approx(v_strict.worst_margin_db, abs=1e-6)
+    later = Criteria((LossLimit(Band.PASSBAND, 1100, 30000, 0.6, open_end=True, ends_with_rolloff=True,
+                                rolloff_from_hz=0.5 * end),))
+    assert verify(rs, later).verdict().segments[0].ended_hz == pytest.approx(end, rel=1e-9)
 
 
 def test_group_delay_deviation_of_a_bessel_lowpass():
