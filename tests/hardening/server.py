@@ -16,14 +16,14 @@ import tempfile
 import time
 from pathlib import Path
 
+from tests.ports import free_port as _free_port
+
 ROOT = Path(__file__).resolve().parents[2]
 
 
 def free_port() -> int:
-    """A TCP port free on 127.0.0.1 at the time of the call."""
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
+    """A TCP port free on 127.0.0.1 at the time of the call (``TEST_PORT_RANGE`` honoured)."""
+    return _free_port()
 
 
 def request(port: int, method: str, path: str, body: bytes | None = None,
