@@ -21,8 +21,12 @@ WORKDIR /app
 # Dependencies first, so that a source change does not reinstall them: every package pinned and
 # hash-checked (requirements.lock; the build tools in requirements-build.lock), in a virtual
 # environment of its own (a distribution's python3 is externally managed, PEP 668).
+# Behind a TLS-inspecting proxy, hand the build its CA bundle as a secret (never stored in the
+# image): `--secret id=pip-ca,src=/etc/ssl/certs/ca-certificates.crt`.
 COPY requirements.lock requirements-build.lock /app/
-RUN python3 -m venv /opt/rolloff \
+RUN --mount=type=secret,id=pip-ca \
+    if [ -f /run/secrets/pip-ca ]; then export PIP_CERT=/run/secrets/pip-ca; fi \
+    && python3 -m venv /opt/rolloff \
     && /opt/rolloff/bin/pip install --no-cache-dir --require-hashes \
        -r /app/requirements-build.lock -r /app/requirements.lock
 
