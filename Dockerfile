@@ -33,7 +33,8 @@ RUN --mount=type=secret,id=pip-ca \
 COPY pyproject.toml README.md /app/
 COPY service /app/service
 RUN /opt/rolloff/bin/pip install --no-cache-dir --no-deps --no-build-isolation /app \
-    && useradd --system --uid 10001 --no-create-home --shell /usr/sbin/nologin rolloff
+    && groupadd --system --gid 10001 rolloff \
+    && useradd --system --uid 10001 --gid 10001 --no-create-home --shell /usr/sbin/nologin rolloff
 
 USER 10001
 EXPOSE 8000
@@ -42,7 +43,7 @@ EXPOSE 8000
 # default) drop HEALTHCHECK: there the orchestrator's probes on /healthz and /readyz do this job
 # (deploy/kubernetes/deployment.yaml).
 HEALTHCHECK --interval=30s --timeout=5s --start-period=20s --retries=3 \
-    CMD ["python", "-c", "import sys, urllib.request; sys.exit(0 if urllib.request.urlopen('http://127.0.0.1:8000/healthz', timeout=4).status == 200 else 1)"]
+    CMD ["python", "-c", "import os, sys, urllib.request; sys.exit(0 if urllib.request.urlopen('http://127.0.0.1:%s/healthz' % os.environ.get('ROLLOFF_PORT', '8000'), timeout=4).status == 200 else 1)"]
 
 # Run read-only: `docker run --read-only --tmpfs /tmp ...`. Every write goes to /tmp: matplotlib's
 # cache (MPLCONFIGDIR), the metrics files (PROMETHEUS_MULTIPROC_DIR, emptied at start by the gunicorn
