@@ -62,7 +62,7 @@ class Load:
             try:
                 status = call(self.port, method, path, payload, timeout=30)[0]
                 outcome = "ok" if 200 <= status < 300 else f"HTTP {status}"
-            except OSError as exc:
+            except Exception as exc:  # noqa: BLE001 - any exception is a failed request, counted
                 outcome = f"{type(exc).__name__}"
             with self._lock:
                 self.results[outcome] += 1
