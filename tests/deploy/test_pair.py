@@ -13,6 +13,7 @@ Bounded: every load loop stops by request count and by time.
 from __future__ import annotations
 
 import json
+import re
 import threading
 import time
 from collections import Counter
@@ -20,7 +21,7 @@ from collections import Counter
 import pytest
 
 from tests.deploy import demo
-from tests.deploy.cluster import Balancer, Replica, call
+from tests.deploy.cluster import HAPROXY_CFG, Balancer, Replica, call
 
 
 @pytest.fixture(scope="module")
@@ -166,9 +167,24 @@ def test_busy_replica_stays_in_rotation_until_its_health_fails(stack, design_doc
                 status = repr(exc)
             heavy_done["n" if status == 200 else f"failed: {status}"] += 1
 
-    worker = threading.Thread(target=keep_busy, daemon=True)
-    worker.start()
+    # The replica's own health, probed directly while it is busy: the balancer's verdict must follow it.
+    probe_s: list[float] = []
+
+    def probe() -> None:
+        while not stop.is_set():
+            t0 = time.monotonic()
+            try:
+                ok = call(busy.port, "GET", "/readyz", timeout=15)[0] == 200
+            except OSError:
+                ok = False
+            probe_s.append(time.monotonic() - t0 if ok else float("inf"))
+            time.sleep(0.25)
+
+    threads = [threading.Thread(target=keep_busy, daemon=True), threading.Thread(target=probe, daemon=True)]
+    for t in threads:
+        t.start()
     try:
+        time.sleep(1)
         served_before = int(lb.stats()["busy"]["stot"])
         statuses, notes = set(), []
         for _ in range(40):
@@ -176,15 +192,20 @@ def test_busy_replica_stays_in_rotation_until_its_health_fails(stack, design_doc
             row = lb.stats()["busy"]
             statuses.add(row["status"])
             if row["status"] != "UP":
-                notes.append({k: row.get(k) for k in ("status", "check_status", "check_duration", "last_chk")})
+                notes.append({k: row.get(k) for k in ("status", "check_status", "check_duration")})
             time.sleep(0.05)
     finally:
         stop.set()
-        worker.join(90)
+        for t in threads:
+            t.join(90)
     assert heavy_done["n"] >= 1 and set(heavy_done) == {"n"}, heavy_done
-    # "UP" or "UP 1/2" (one slow check, still in rotation); never "DOWN": busy is not taken out
-    assert all(status.startswith("UP") for status in statuses), (statuses, notes)                     # busy, healthy: never taken out
-    assert int(lb.stats()["busy"]["stot"]) > served_before  # and still given its share
+    assert int(lb.stats()["busy"]["stot"]) > served_before  # busy, and still given its share
+    # "UP" or "UP 1/2" (one slow check, still in rotation). Taken out ("DOWN") only if its health
+    # really failed: a direct /readyz took longer than the balancer's check timeout (on a machine
+    # whose cores are saturated by other work, a stall can do that).
+    check_timeout = float(re.search(r"timeout check (\d+)s", HAPROXY_CFG.read_text()).group(1))
+    if not all(status.startswith("UP") for status in statuses):
+        assert max(probe_s) > check_timeout, (statuses, notes, sorted(probe_s)[-5:])
 
     # Health fails: the replica hangs (every process stopped). Out after its failed checks...
     busy.pause(True)
