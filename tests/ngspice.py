@@ -185,3 +185,55 @@ def run_ngspice_tran(netlist: str, tstep: float, tstop: float, nodes: Sequence[s
     if table.shape[1] != 1 + len(nodes):
         raise NgspiceError(f"unexpected ngspice table with {table.shape[1]} columns for nodes {list(nodes)}")
     return table[:, 0].copy(), {n: table[:, 1 + i].copy() for i, n in enumerate(nodes)}
+
+
+def run_ngspice_noise(netlist: str) -> dict[str, np.ndarray]:
+    """Noise analysis of ``netlist`` (its ``.noise`` line) by ngspice.
+
+    Returns
+    -------
+    dict
+        ``frequency_hz`` (F,), ``onoise`` and ``inoise`` spectra (F,) in
+        V/sqrt(Hz), ``onoise_total`` and ``inoise_total`` (V RMS, integrated
+        by ngspice over the sweep).
+    """
+    if not re.search(r"^\s*\.noise\s", netlist, re.IGNORECASE | re.MULTILINE):
+        raise NgspiceError("netlist has no .noise line")
+    control = _HEAD + ["run", "setplot noise1", "wrdata result.txt onoise_spectrum inoise_spectrum",
+                       "setplot noise2", "wrdata result.txt onoise_total inoise_total"]
+    tables = _run(_insert_control(netlist, control))
+    if len(tables) != 2:
+        raise NgspiceError(f"ngspice returned {len(tables)} noise tables, expected 2")
+    spec, tot = tables
+    if spec.shape[1] != 3 or tot.shape != (1, 3):
+        raise NgspiceError(f"unexpected ngspice noise tables of shapes {spec.shape} and {tot.shape}")
+    return {"frequency_hz": spec[:, 0].copy(), "onoise": spec[:, 1].copy(), "inoise": spec[:, 2].copy(),
+            "onoise_total": float(tot[0, 1]), "inoise_total": float(tot[0, 2])}
+
+
+def run_ngspice_op(netlist: str, nodes: Sequence[str]) -> dict[str, float]:
+    """DC operating point of ``netlist`` by ngspice (``op``): the voltage of each node, V."""
+    nodes = tuple(nodes)
+    control = _HEAD + ["op", f"wrdata result.txt {_vectors(nodes)}"]
+    table = _run(_insert_control(netlist, control))[0]
+    if table.shape != (1, 1 + len(nodes)):
+        raise NgspiceError(f"unexpected ngspice table of shape {table.shape} for nodes {list(nodes)}")
+    return {n: float(table[0, 1 + i]) for i, n in enumerate(nodes)}
+
+
+def run_ngspice_tran_raw(netlist: str, tstep: float, tstop: float, nodes: Sequence[str] = ("out",),
+                         tstart: float = 0.0) -> tuple[np.ndarray, dict[str, np.ndarray]]:
+    """Transient analysis of ``netlist`` as written (its sources unchanged), from ``tstart`` to ``tstop``.
+
+    Any ``.ac`` or ``.noise`` line is removed and ``.tran tstep tstop tstart tstep`` added.
+    """
+    nodes = tuple(nodes)
+    text = re.sub(r"^\s*\.(ac|noise)\s.*$", "", netlist, flags=re.IGNORECASE | re.MULTILINE)
+    m = list(_END_RE.finditer(text))[-1]
+    tran = f".tran {float(tstep):.17g} {float(tstop):.17g} {float(tstart):.17g} {float(tstep):.17g}"
+    text = text[: m.start()] + tran + "\n" + text[m.start():]
+    control = _HEAD + ["run", f"wrdata result.txt {_vectors(nodes)}"]
+    table = _run(_insert_control(text, control))[0]
+    if table.shape[1] != 1 + len(nodes):
+        raise NgspiceError(f"unexpected ngspice table with {table.shape[1]} columns for nodes {list(nodes)}")
+    return table[:, 0].copy(), {n: table[:, 1 + i].copy() for i, n in enumerate(nodes)}

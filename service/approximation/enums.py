@@ -13,11 +13,18 @@ class CutoffAt(str, Enum):
 
 
 class SectionOrder(str, Enum):
-    """Order of the sections in the cascade."""
+    """Order of the sections in the cascade (one vocabulary for approximations and designs).
+
+    ``as_computed`` keeps the order the sections were computed (or listed) in;
+    ``max_dynamic_range`` is a design-time order (see
+    :func:`service.realization.cascade.order_sections`); an approximation
+    alone lists its sections by ascending Q for it.
+    """
 
     ASCENDING_Q = "ascending_q"
     DESCENDING_Q = "descending_q"
     AS_COMPUTED = "as_computed"
+    MAX_DYNAMIC_RANGE = "max_dynamic_range"
 
 
 class Excess(str, Enum):

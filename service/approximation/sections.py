@@ -250,7 +250,7 @@ def sections_from_zpk(zeros, poles, gain, *, order: SectionOrder | str = Section
     share = abs(c) ** (1.0 / m)
     sign = -1.0 if c < 0 else 1.0
 
-    if order is SectionOrder.ASCENDING_Q:
+    if order in (SectionOrder.ASCENDING_Q, SectionOrder.MAX_DYNAMIC_RANGE):
         specs.sort(key=lambda t: (t[3] if t[3] is not None else 0.0, t[2]))
     elif order is SectionOrder.DESCENDING_Q:
         specs.sort(key=lambda t: (-(t[3] if t[3] is not None else 0.0), t[2]))

@@ -5,8 +5,9 @@ stage circuits with it, response and tolerance analyse them.
 
 Public surface
 --------------
-Circuit, OpAmpModel, Element, ElementKind
-    Netlist model; values are scalars or arrays of one value per trial.
+Circuit, OpAmpModel, OpAmpSources, Element, ElementKind
+    Netlist model; values are scalars or arrays of one value per trial;
+    op-amps may carry input-referred noise and DC error sources.
 ac_response(circuit, frequency_hz, output="out", *, memory_limit_bytes, method)
     Complex ``V(output)/V(input)``, shape (T, F).
 prepare_ac(circuit, frequency_hz, output="out", *, memory_limit_bytes, method) -> PreparedAc
@@ -14,25 +15,40 @@ prepare_ac(circuit, frequency_hz, output="out", *, memory_limit_bytes, method) -
     evaluates a range of trials (bit for bit the rows of the whole).
 transfer_function_zpk(circuit, output="out")
     Exact zeros, poles (rad/s) and gain of a single-trial circuit.
-to_spice(circuit, *, output, ac, trial, title)
-    ngspice-compatible netlist text.
+noise_spectra(circuit, frequency_hz, output="out", *, temperature_k, method) -> OutputNoise
+    Output noise density of every resistor and op-amp noise source, (T, S, F) V^2/Hz.
+dc_operating_point(circuit) -> DcSolution
+    Node voltages at DC with the supplies, offsets and bias currents.
+to_spice(circuit, *, output, ac, trial, title, noise, temperature_k, op)
+    ngspice-compatible netlist text (``.ac``, ``.noise``, ``.op``).
 CircuitError
     Every invalid circuit or request (an ``InvalidParameter``).
 """
 
 from .ac import PreparedAc, ac_response, prepare_ac
+from .dc import DcSolution, dc_contributions, dc_operating_point
 from .errors import CircuitError
-from .netlist import GROUND, Circuit, Element, ElementKind, OpAmpModel
+from .netlist import GROUND, Circuit, Element, ElementKind, OpAmpModel, OpAmpSources
+from .noise import DEFAULT_TEMPERATURE_K, NoiseKind, NoiseSource, OutputNoise, noise_spectra
 from .spice import format_value, to_spice
 from .zpk import transfer_function_zpk
 
 __all__ = [
     "Circuit",
+    "DcSolution",
+    "dc_contributions",
+    "dc_operating_point",
     "CircuitError",
     "Element",
     "ElementKind",
     "GROUND",
     "OpAmpModel",
+    "OpAmpSources",
+    "DEFAULT_TEMPERATURE_K",
+    "NoiseKind",
+    "NoiseSource",
+    "OutputNoise",
+    "noise_spectra",
     "PreparedAc",
     "ac_response",
     "format_value",

@@ -1,7 +1,7 @@
 """Modified nodal analysis (MNA) stamps of a circuit: ``M(s) = G + s*C``.
 
 Unknowns are the node voltages (ground excluded) followed by one branch
-current per inductor, voltage source, VCVS and op-amp, and one internal node
+current per inductor, voltage source, supply, VCVS and op-amp, and one internal node
 per op-amp macromodel with output resistance.  Stamps follow Ho, Ruehli and
 Brennan, "The modified nodal approach to network analysis", IEEE Trans.
 Circuits and Systems CAS-22(6), 1975, Table I; the ideal op-amp is a nullor
@@ -163,6 +163,9 @@ def build_mna(circuit: Circuit) -> MnaSystem:
             k = new_unknown(f"I({el.name})")
             branch(k, el.nodes[0], el.nodes[1])
             rhs_row = k
+        elif kind is ElementKind.SUPPLY:
+            k = new_unknown(f"I({el.name})")   # an AC short; its DC value enters only the DC solve
+            branch(k, el.nodes[0], el.nodes[1])
         elif kind is ElementKind.VCVS:
             p, n, cp, cn = el.nodes
             k = new_unknown(f"I({el.name})")

@@ -49,6 +49,7 @@ class ElementKind(str, Enum):
     VCVS = "vcvs"
     VCCS = "vccs"
     OPAMP = "opamp"
+    SUPPLY = "supply"
 
 
 @dataclass(frozen=True)
@@ -79,6 +80,57 @@ class OpAmpModel:
 
 
 @dataclass(frozen=True)
+class OpAmpSources:
+    """Input-referred sources of a real op-amp: noise densities and DC errors.
+
+    The voltage sources (noise ``en`` and offset ``vos``) are in series with
+    the non-inverting input (``V(+)`` as the amplifier sees it is
+    ``V(+) + vos + en``); the current sources (noise ``in`` and bias ``ib``)
+    flow from each input node into the op-amp, independently at the two
+    inputs (the usual input-referred op-amp noise model: Motchenbacher and
+    Connelly, *Low-Noise Electronic System Design*, Wiley, 1993, ch. 2, from
+    memory).  Noise densities with 1/f corners follow
+    ``e^2(f) = en^2 (1 + fc/f)`` (same form for ``in``).
+
+    Attributes
+    ----------
+    en_v_rthz : float
+        Input voltage noise density, V/sqrt(Hz) (>= 0).
+    in_a_rthz : float
+        Input current noise density at each input, A/sqrt(Hz) (>= 0).
+    en_corner_hz, in_corner_hz : float
+        1/f corner frequencies, Hz (>= 0; 0 = white).
+    vos_v : float
+        Input offset voltage, V (either sign).
+    ib_a : float
+        Input bias current into each input, A (either sign).
+    """
+
+    en_v_rthz: float = 0.0
+    in_a_rthz: float = 0.0
+    en_corner_hz: float = 0.0
+    in_corner_hz: float = 0.0
+    vos_v: float = 0.0
+    ib_a: float = 0.0
+
+    def __post_init__(self):
+        for name in ("en_v_rthz", "in_a_rthz", "en_corner_hz", "in_corner_hz", "vos_v", "ib_a"):
+            v = getattr(self, name)
+            if isinstance(v, bool) or not isinstance(v, (int, float, np.floating, np.integer)):
+                raise CircuitError(f"{name} must be a number, got {v!r}", field=name)
+            if not np.isfinite(v):
+                raise CircuitError(f"{name} must be finite, got {v!r}", field=name)
+            if name not in ("vos_v", "ib_a") and v < 0:
+                raise CircuitError(f"{name} must not be negative, got {v!r}", field=name)
+            object.__setattr__(self, name, float(v))
+
+    @property
+    def noisy(self) -> bool:
+        """Whether any noise density is non-zero."""
+        return self.en_v_rthz > 0 or self.in_a_rthz > 0
+
+
+@dataclass(frozen=True)
 class Element:
     """One element of a circuit.
 
@@ -94,13 +146,17 @@ class Element:
         an op-amp.
     value : float, ndarray of shape (T,), OpAmpModel or None
         Ohm, farad, henry, V/V (VCVS), siemens (VCCS), the AC amplitude in
-        volts (source), the op-amp model (``None`` = ideal nullor).
+        volts (source), the DC voltage (supply), the op-amp model (``None``
+        = ideal nullor).
+    sources : OpAmpSources or None
+        Op-amps only: input-referred noise and DC error sources (None: none).
     """
 
     name: str
     kind: ElementKind
     nodes: tuple[str, ...]
     value: object
+    sources: OpAmpSources | None = None
 
 
 def _as_value(name: str, what: str, value, *, positive: bool = False, nonnegative: bool = False):
@@ -277,6 +333,21 @@ class Circuit:
             raise CircuitError(f"{name}: AC amplitude must be a non-zero scalar")
         return self._append(Element(name, ElementKind.VOLTAGE_SOURCE, nodes, v))
 
+    def add_supply(self, name: str, p: str, n: str, dc_v: float) -> Element:
+        """Add a supply rail: ``V(p) - V(n) = dc_v`` volts at DC, an AC short (zero AC amplitude).
+
+        Supplies take part in the DC operating point (:mod:`.dc`) and are
+        written to the SPICE netlist; AC and noise analyses see a short.
+        """
+        name = self._check_name(name)
+        nodes = self._check_nodes(name, p, n)
+        if p == n:
+            raise CircuitError(f"{name}: both terminals on node {p!r}")
+        v = _as_value(name, "DC voltage (V)", dc_v)
+        if isinstance(v, np.ndarray):
+            raise CircuitError(f"{name}: DC voltage must be a scalar")
+        return self._append(Element(name, ElementKind.SUPPLY, nodes, v))
+
     def add_vcvs(self, name: str, p: str, n: str, cp: str, cn: str, gain) -> Element:
         """Add a VCVS: ``V(p) - V(n) = gain * (V(cp) - V(cn))`` (gain in V/V)."""
         name = self._check_name(name)
@@ -295,7 +366,8 @@ class Circuit:
         v = _as_value(name, "transconductance (S)", gm)
         return self._append(Element(name, ElementKind.VCCS, nodes, v), v)
 
-    def add_opamp(self, name: str, plus: str, minus: str, output: str, model: OpAmpModel | None = None) -> Element:
+    def add_opamp(self, name: str, plus: str, minus: str, output: str, model: OpAmpModel | None = None,
+                  sources: OpAmpSources | None = None) -> Element:
         """Add an operational amplifier.
 
         Parameters
@@ -329,7 +401,9 @@ class Circuit:
             if rout.ndim and np.any(rout == 0) and np.any(rout > 0):
                 raise CircuitError(f"{name}: rout_ohm must be zero in every trial or positive in every trial")
             values = (model.gbw_hz, model.a0, model.rout_ohm)
-        return self._append(Element(name, ElementKind.OPAMP, nodes, model), *values)
+        if sources is not None and not isinstance(sources, OpAmpSources):
+            raise CircuitError(f"{name}: sources must be an OpAmpSources or None")
+        return self._append(Element(name, ElementKind.OPAMP, nodes, model, sources), *values)
 
     # ---------------------------------------------------------- derivation
     def with_values(self, values: Mapping[str, object]) -> "Circuit":
@@ -380,7 +454,7 @@ class Circuit:
                         model = OpAmpModel(**fields)
                     else:
                         model = replace(model, **fields)
-                out.add_opamp(el.name, *el.nodes, model=model)
+                out.add_opamp(el.name, *el.nodes, model=model, sources=el.sources)
                 continue
             value = by_name.get(el.name, el.value)
             if el.kind is ElementKind.RESISTOR:
@@ -391,10 +465,38 @@ class Circuit:
                 out.add_inductor(el.name, *el.nodes, value)
             elif el.kind is ElementKind.VOLTAGE_SOURCE:
                 out.add_voltage_source(el.name, *el.nodes, value)
+            elif el.kind is ElementKind.SUPPLY:
+                out.add_supply(el.name, *el.nodes, value)
             elif el.kind is ElementKind.VCVS:
                 out.add_vcvs(el.name, *el.nodes, value)
             elif el.kind is ElementKind.VCCS:
                 out.add_vccs(el.name, *el.nodes, value)
+        return out
+
+    def with_opamp_sources(self, sources: Mapping[str, OpAmpSources | None]) -> "Circuit":
+        """A new circuit with the input-referred sources of some op-amps replaced.
+
+        Parameters
+        ----------
+        sources : mapping of str to OpAmpSources or None
+            Op-amp name -> its sources (None removes them).
+
+        Returns
+        -------
+        Circuit
+            A copy; this circuit is unchanged.
+        """
+        known = {el.name: el for el in self._elements}
+        for ref, src in sources.items():
+            if ref not in known:
+                raise CircuitError(f"{ref}: no such element")
+            if known[ref].kind is not ElementKind.OPAMP:
+                raise CircuitError(f"{ref}: input-referred sources apply to op-amps only")
+            if src is not None and not isinstance(src, OpAmpSources):
+                raise CircuitError(f"{ref}: sources must be an OpAmpSources or None")
+        out = self.with_values({})
+        out._elements = [replace(el, sources=sources[el.name]) if el.name in sources else el
+                         for el in out._elements]
         return out
 
     def trial(self, index: int) -> "Circuit":
@@ -444,7 +546,7 @@ class Circuit:
 
         for el in self._elements:
             if el.kind in (ElementKind.RESISTOR, ElementKind.CAPACITOR, ElementKind.INDUCTOR,
-                           ElementKind.VOLTAGE_SOURCE, ElementKind.VCVS):
+                           ElementKind.VOLTAGE_SOURCE, ElementKind.VCVS, ElementKind.SUPPLY):
                 union(el.nodes[0], el.nodes[1])
             elif el.kind is ElementKind.OPAMP:
                 union(el.nodes[2], GROUND)
@@ -467,4 +569,4 @@ def values_for_trials(value, trials: int, sl: slice | None = None) -> np.ndarray
     return arr if sl is None else arr[sl]
 
 
-__all__ = ["Circuit", "Element", "ElementKind", "OpAmpModel", "GROUND", "values_for_trials"]
+__all__ = ["Circuit", "Element", "ElementKind", "OpAmpModel", "OpAmpSources", "GROUND", "values_for_trials"]

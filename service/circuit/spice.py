@@ -9,6 +9,20 @@ capacitor (the dominant pole, ``A(s) = a0/(1 + s*a0/wt)``) followed by a
 unity buffer and the output resistance.  Values are written in engineering
 notation with SPICE suffixes (``Meg`` for 1e6, since SPICE reads ``M`` as
 milli) and 15 significant digits.
+
+An op-amp carrying :class:`~.netlist.OpAmpSources` gets them inside its
+subcircuit, so that ngspice's ``.noise`` and ``.op`` reproduce the engine's
+noise and DC analyses: the offset ``vos`` as a DC source and the voltage
+noise ``en`` as a VCVS in series with the non-inverting input, the bias
+current ``ib`` and the current noise ``in`` as sources from each input to
+ground.  Noise comes from resistors in isolated generator loops, sized from
+the thermal noise ``4kTR`` at the netlist's temperature (``.temp``); a 1/f
+corner ``fc`` is the resistor flicker noise ``KF * I^AF / f`` (ngspice
+manual, sec. 3.3 resistor model, parameters KF and AF) of a DC current
+through the generator, cancelled at DC by a noiseless twin (``noisy=0``).
+Resistors of the amplifier model itself are written ``noisy=0``: the
+figures ``en``/``in`` already account for the amplifier's noise.  A supply
+(:meth:`~.netlist.Circuit.add_supply`) is a DC voltage source.
 """
 
 from __future__ import annotations
@@ -19,7 +33,8 @@ import re
 import numpy as np
 
 from .errors import CircuitError
-from .netlist import Circuit, ElementKind, OpAmpModel
+from .netlist import Circuit, ElementKind, OpAmpModel, OpAmpSources
+from .noise import BOLTZMANN_J_PER_K, DEFAULT_TEMPERATURE_K
 
 IDEAL_GAIN = 1e9
 """Open-loop gain of the exported ideal op-amp.
@@ -42,6 +57,7 @@ _LETTER = {
     ElementKind.VCVS: "E",
     ElementKind.VCCS: "G",
     ElementKind.OPAMP: "X",
+    ElementKind.SUPPLY: "V",
 }
 
 
@@ -80,42 +96,99 @@ def _pick(value, trial: int) -> float:
     return float(arr) if arr.ndim == 0 else float(arr[trial])
 
 
-def _model_key(model: OpAmpModel | None, trial: int):
+def _model_key(model: OpAmpModel | None, trial: int, sources: OpAmpSources | None = None):
+    if sources is not None and sources == OpAmpSources():
+        sources = None
     if model is None:
-        return None
-    return (_pick(model.gbw_hz, trial), _pick(model.a0, trial), _pick(model.rout_ohm, trial), model.name)
+        return None if sources is None else (None, None, None, "OPAMP_IDEAL", sources)
+    key = (_pick(model.gbw_hz, trial), _pick(model.a0, trial), _pick(model.rout_ohm, trial), model.name)
+    return key if sources is None else key + (sources,)
+
+
+def _source_lines(src: OpAmpSources, temperature_k: float) -> tuple[list[str], str]:
+    """Lines that put ``src`` in front of the amplifier; returns them and the internal + input node."""
+    four_kt = 4.0 * BOLTZMANN_J_PER_K * temperature_k
+    fv = format_value
+    lines = [f"* input sources: en {fv(src.en_v_rthz)} V/rtHz (1/f corner {fv(src.en_corner_hz)} Hz), "
+             f"in {fv(src.in_a_rthz)} A/rtHz (1/f corner {fv(src.in_corner_hz)} Hz), "
+             f"vos {fv(src.vos_v)} V, ib {fv(src.ib_a)} A"]
+    plus = "inp"
+    if src.vos_v != 0:
+        lines.append(f"VOS inp_v inp DC {fv(src.vos_v)}")
+        plus = "inp_v"
+    if src.en_v_rthz > 0:
+        r = src.en_v_rthz ** 2 / four_kt
+        lines.append(f"EEN inp_n {plus} en1 en2 1")
+        lines += _generator("EN", "en1", "en2", r, src.en_v_rthz ** 2 * src.en_corner_hz)
+        plus = "inp_n"
+    if src.ib_a != 0:
+        lines += [f"IBP inp 0 DC {fv(src.ib_a)}", f"IBN inn 0 DC {fv(src.ib_a)}"]
+    if src.in_a_rthz > 0:
+        r = 1e3
+        gm = src.in_a_rthz / math.sqrt(four_kt * r)
+        kf = src.in_corner_hz * four_kt * r
+        for pin, tag in (("inp", "P"), ("inn", "N")):
+            lines.append(f"GIN{tag} {pin} 0 in{tag}1 in{tag}2 {fv(gm)}")
+            lines += _generator(f"IN{tag}", f"in{tag}1", f"in{tag}2", r, kf)
+    return lines, plus
+
+
+def _generator(tag: str, node: str, twin: str, r: float, kf: float) -> list[str]:
+    """A noise voltage ``4kTr + kf/f`` (V^2/Hz) between ``node`` and ``twin`` (0 V at DC)."""
+    fv = format_value
+    if kf <= 0:
+        return [f"R{tag} {node} 0 {fv(r)}", f"R{tag}B {twin} 0 {fv(r)} noisy=0"]
+    # flicker of a DC current I with R*I = 1 V: R^2 KF I^2 / f = KF / f
+    return [f"I{tag} 0 {node} DC {fv(1.0 / r)}", f"R{tag} {node} 0 {fv(r)} RFLICKER_{tag}",
+            f".model RFLICKER_{tag} r (kf={fv(kf)} af=2)",
+            f"I{tag}B 0 {twin} DC {fv(1.0 / r)}", f"R{tag}B {twin} 0 {fv(r)} noisy=0"]
 
 
 _SUBCKT_RE = re.compile(r"[^A-Za-z0-9_]")
 
 
-def _subckt_lines(name: str, key) -> list[str]:
-    if key is None:
+def _subckt_lines(name: str, key, temperature_k: float = DEFAULT_TEMPERATURE_K) -> list[str]:
+    sources = key[4] if key is not None and len(key) > 4 else None
+    pre, plus = _source_lines(sources, temperature_k) if sources is not None else ([], "inp")
+    if key is None or key[0] is None:
         return [
             f".subckt {name} inp inn out",
             f"* ideal op-amp: VCVS of gain {format_value(IDEAL_GAIN)}",
-            f"E1 out 0 inp inn {format_value(IDEAL_GAIN)}",
+            *pre,
+            f"E1 out 0 {plus} inn {format_value(IDEAL_GAIN)}",
             ".ends",
         ]
-    gbw, a0, rout, _ = key
+    gbw, a0, rout = key[:3]
     wt = 2.0 * math.pi * gbw
     lines = [
         f".subckt {name} inp inn out",
         f"* single-pole op-amp: a0 = {format_value(a0)}, GBW = {format_value(gbw)} Hz, rout = {format_value(rout)} ohm",
-        f"G1 0 p inp inn {format_value(a0)}",
-        "R1 p 0 1",
+        *pre,
+        f"G1 0 p {plus} inn {format_value(a0)}",
+        "R1 p 0 1 noisy=0",
         f"C1 p 0 {format_value(a0 / wt)}",
     ]
     if rout > 0:
-        lines += ["E1 o 0 p 0 1", f"R2 o out {format_value(rout)}"]
+        lines += ["E1 o 0 p 0 1", f"R2 o out {format_value(rout)} noisy=0"]
     else:
         lines += ["E1 out 0 p 0 1"]
     lines.append(".ends")
     return lines
 
 
-def to_spice(circuit: Circuit, *, output: str = "out", ac: tuple = ("dec", 125, 10.0, 100e3), trial: int = 0,
-             title: str | None = None) -> str:
+def _sweep(value, name: str) -> tuple[str, int, float, float]:
+    if value is None or len(value) != 4 or str(value[0]) not in ("dec", "oct", "lin"):
+        raise CircuitError(f"{name} must be (sweep, points, f_start_hz, f_stop_hz) with sweep dec, oct or lin",
+                           field=name)
+    sweep, npts, f1, f2 = str(value[0]), int(value[1]), float(value[2]), float(value[3])
+    if npts < 1 or not (0 < f1 <= f2) or not math.isfinite(f2):
+        raise CircuitError(f"{name} needs points >= 1 and 0 < f_start_hz <= f_stop_hz", field=name)
+    return sweep, npts, f1, f2
+
+
+def to_spice(circuit: Circuit, *, output: str = "out", ac: tuple | None = ("dec", 125, 10.0, 100e3),
+             trial: int = 0, title: str | None = None, noise: tuple | None = None,
+             temperature_k: float = DEFAULT_TEMPERATURE_K, op: bool = False) -> str:
     """SPICE netlist of one trial of ``circuit`` with an AC analysis.
 
     Parameters
@@ -123,13 +196,23 @@ def to_spice(circuit: Circuit, *, output: str = "out", ac: tuple = ("dec", 125, 
     circuit : Circuit
     output : str
         Output node (checked to exist; named in a comment).
-    ac : tuple
+    ac : tuple or None
         ``(sweep, points, f_start_hz, f_stop_hz)`` of the ``.ac`` line;
-        sweep ``"dec"``, ``"oct"`` or ``"lin"``.
+        sweep ``"dec"``, ``"oct"`` or ``"lin"``; None writes no ``.ac``.
     trial : int
         Which trial's values to write.
     title : str, optional
         First line; default the circuit's title.
+    noise : tuple or None
+        ``(sweep, points, f_start_hz, f_stop_hz)`` of a ``.noise`` analysis
+        of ``v(output)`` referred to the input source, named in a comment
+        line; None writes none.
+    temperature_k : float
+        Temperature of the netlist (``.temp``, written when the netlist has a
+        noise analysis or op-amp noise generators), K; the op-amp noise
+        generators are sized for it.
+    op : bool
+        Add an ``.op`` line (DC operating point).
 
     Returns
     -------
@@ -141,11 +224,12 @@ def to_spice(circuit: Circuit, *, output: str = "out", ac: tuple = ("dec", 125, 
     t = circuit.trials
     if not isinstance(trial, (int, np.integer)) or not 0 <= trial < t:
         raise CircuitError(f"trial must be an integer in [0, {t}), got {trial!r}", field="trial")
-    if len(ac) != 4 or str(ac[0]) not in ("dec", "oct", "lin"):
-        raise CircuitError("ac must be (sweep, points, f_start_hz, f_stop_hz) with sweep dec, oct or lin", field="ac")
-    sweep, npts, f1, f2 = str(ac[0]), int(ac[1]), float(ac[2]), float(ac[3])
-    if npts < 1 or not (0 < f1 <= f2) or not math.isfinite(f2):
-        raise CircuitError("ac needs points >= 1 and 0 < f_start_hz <= f_stop_hz", field="ac")
+    ac = _sweep(ac, "ac") if ac is not None else None
+    noise = _sweep(noise, "noise") if noise is not None else None
+    t_k = float(temperature_k)
+    if not (math.isfinite(t_k) and t_k > 0):
+        raise CircuitError(f"temperature_k must be a positive number of kelvin, got {temperature_k!r}",
+                           field="temperature_k")
     head = (title if title is not None else circuit.title).replace("\n", " ").strip() or "circuit"
     lines = [head, f"* output node: {output}"]
     models: dict[object, str] = {}
@@ -158,10 +242,12 @@ def to_spice(circuit: Circuit, *, output: str = "out", ac: tuple = ("dec", 125, 
             body.append(f"{name} {nodes} {format_value(_pick(el.value, trial))}")
         elif el.kind is ElementKind.VOLTAGE_SOURCE:
             body.append(f"{name} {nodes} AC {format_value(el.value)}")
+        elif el.kind is ElementKind.SUPPLY:
+            body.append(f"{name} {nodes} DC {format_value(el.value)}")
         elif el.kind in (ElementKind.VCVS, ElementKind.VCCS):
             body.append(f"{name} {nodes} {format_value(_pick(el.value, trial))}")
         elif el.kind is ElementKind.OPAMP:
-            key = _model_key(el.value, trial)
+            key = _model_key(el.value, trial, el.sources)
             if key not in models:
                 base = "OPAMP_IDEAL" if key is None else _SUBCKT_RE.sub("_", key[3]).upper() or "OPAMP"
                 cand, i = base, 1
@@ -171,9 +257,22 @@ def to_spice(circuit: Circuit, *, output: str = "out", ac: tuple = ("dec", 125, 
                 used_names.add(cand)
                 models[key] = cand
             body.append(f"{name} {nodes} {models[key]}")
+    generators = any(key is not None and len(key) > 4 and key[4].noisy for key in models)
+    if noise is not None:
+        src = circuit.input_source
+        lines.append(f"* noise analysis: output v({output}), input source {spice_name(src.name, src.kind)}")
     for key, sub in models.items():
-        lines += _subckt_lines(sub, key)
+        lines += _subckt_lines(sub, key, t_k)
     lines += body
-    lines.append(f".ac {sweep} {npts} {format_value(f1)} {format_value(f2)}")
+    if noise is not None or generators:
+        lines.append(f".temp {t_k - 273.15:.15g}")
+    if op:
+        lines.append(".op")
+    if ac is not None:
+        lines.append(f".ac {ac[0]} {ac[1]} {format_value(ac[2])} {format_value(ac[3])}")
+    if noise is not None:
+        src = circuit.input_source
+        lines.append(f".noise v({output}) {spice_name(src.name, src.kind)} {noise[0]} {noise[1]} "
+                     f"{format_value(noise[2])} {format_value(noise[3])}")
     lines.append(".end")
     return "\n".join(lines) + "\n"

@@ -23,7 +23,7 @@ from service.realization.cascade import analysis_grid, grid_peak
 from service.realization.fit import dominant_poles, fit_section, standard_shape, zpk_eval
 from service.realization.gbw import required_gbw_sweep
 from service.realization.opamp import DEFAULT_A0_DB, RULE_OF_THUMB, SLEW_RULE, gbw_rule_of_thumb, slew_required
-from service.realization.results import Component, Design, OpAmpRequirement, OpAmpUse, Stage
+from service.realization.results import AnalysisOptions, Component, Design, OpAmpRequirement, OpAmpUse, Stage
 from service.realization.warnings import collect_warnings
 
 #: Highest frequency considered for "where the stage passes signal", as a multiple
@@ -92,29 +92,73 @@ def cascade_circuit(plans: list[StagePlan], *, ideal: bool = False, title: str =
     return c
 
 
+def design_roots(plans: list[StagePlan], values: dict | None = None, *, ideal: bool = False):
+    """Zeros, poles and gain of the whole filter (rad/s), one trial per row (a :class:`service.circuit.RootSet`).
+
+    Parameters
+    ----------
+    plans : list of StagePlan
+    values : dict of str to ndarray (T,), optional
+        Per-trial values by ref (``"U3.gbw_hz"`` style keys for op-amp GBW), as
+        :meth:`service.circuit.Circuit.with_values` takes them; default the nominal values.
+    ideal : bool
+        Ideal op-amps instead of the stages' macromodels.
+
+    Returns
+    -------
+    RootSet
+        The product of the stages (each driven by the ideal output of the one before), ``pole_group``
+        the stage index from 0 -- or, when op-amps have output resistance and the stages load each other,
+        the whole circuit at once with ``pole_group`` -1.
+    """
+    from service.circuit.roots import RootSet, transfer_roots
+
+    loaded = not ideal and any((u.rout_ohm or 0.0) > 0 for p in plans for u in p.opamps)
+    if loaded:
+        circuit = cascade_circuit(plans)
+        if values:
+            circuit = circuit.with_values(values)
+        roots = transfer_roots(circuit)
+        return RootSet(roots.zeros, roots.poles, roots.log_gain, np.full(roots.poles.shape[1], -1))
+    parts = []
+    for plan in plans:
+        c = stage_circuit(plan, None if ideal else plan.model())
+        if values:
+            refs = set(plan.refs.values())
+            mine = {k: v for k, v in values.items() if k.split(".")[0] in refs}
+            if mine:
+                c = c.with_values(mine)
+        parts.append(transfer_roots(c))
+    return RootSet.cascade(parts)
+
+
 def _zpk(plan: StagePlan, model) -> tuple[np.ndarray, np.ndarray, float]:
     z, p, k = transfer_function_zpk(stage_circuit(plan, model), output="out")
     return np.asarray(z, dtype=complex), np.asarray(p, dtype=complex), float(np.real(k))
 
 
 def analyze(plans: list[StagePlan], *, response: str | None, family: str | None, order: int,
-            requirement: dict | None, settings: dict, notes: list | None = None) -> Design:
-    """Achieved figures, op-amp needs, peaks, summary, BOM, netlist and warnings.
+            options: AnalysisOptions = AnalysisOptions(), part_ranges: dict | None = None,
+            part_series: dict | None = None, notes: list | None = None, stopbands_hz=()) -> Design:
+    """Achieved figures, op-amp needs, peaks, BOM, netlist and warnings.
 
     Parameters
     ----------
     plans : list of StagePlan
         In cascade order.
-    settings : dict
-        ``gbw_error`` (relative), ``output_amplitude_v`` (V peak at the
-        filter output), ``stage_peak_margin_db`` (dB).
+    options : AnalysisOptions
+        What the GBW, slew-rate and peaking figures are for.
+    part_ranges, part_series : dict, optional
+        Allowed range (ohm or F) and series per part kind, recorded on the design.
     notes : list of DesignWarning, optional
-        Cautions found before the analysis (out-of-range parts, gain shortfalls).
+        Cautions found before the analysis (gain shortfalls).
+    stopbands_hz : sequence of (float, float)
+        The requirement's stopbands (Hz), for the mains caution.
     """
     sections = [p.section for p in plans]
     grid = analysis_grid(sections)
     s_grid = 2j * np.pi * grid
-    error = float(settings["gbw_error"])
+    error = float(options.gbw_error)
 
     ideal_zpk = [_zpk(p, None) for p in plans]
     achieved = [fit_section(p.section, *zk) for p, zk in zip(plans, ideal_zpk)]
@@ -134,7 +178,7 @@ def analyze(plans: list[StagePlan], *, response: str | None, family: str | None,
     cum = cumulative(grid)
     peaks, fpeaks = grid_peak(cumulative, grid, cum)
     out_level = float(peaks[-1]) if peaks[-1] > 0 else 1.0
-    v_in = float(settings["output_amplitude_v"]) / out_level
+    v_in = float(options.output_amplitude_v) / out_level
     f_top = SIGNAL_BAND_FACTOR * max([s.f0_hz for s in sections] + [s.fz_hz or 0.0 for s in sections])
 
     stages: list[Stage] = []
@@ -170,50 +214,20 @@ def analyze(plans: list[StagePlan], *, response: str | None, family: str | None,
             output_node="out" if k == len(plans) - 1 else f"out{k + 1}",
         ))
 
-    summary = _summary(requirement, sections, used_zpk, grid, out_level)
     design = Design(
-        response=response, family=family, order=order, stages=stages, requirement=requirement,
-        settings=dict(settings), overall_gain=float(np.prod([p.section.gain for p in plans])),
+        response=response, family=family, order=order, stages=stages, options=options,
+        part_ranges=dict(part_ranges or {}), part_series=dict(part_series or {}),
+        overall_gain=float(np.prod([p.section.gain for p in plans])),
         output_peak_gain_db=float(20 * np.log10(out_level)),
     )
-    design.summary = summary
     design.plans = list(plans)
     design.bom = _bom(plans)
     circuit = cascade_circuit(plans)
     lo = 10 ** math.floor(math.log10(grid[0]) + 1e-9)
     hi = 10 ** math.ceil(math.log10(grid[-1]) - 1e-9)
     design.netlist = to_spice(circuit, output="out", ac=("dec", 125, float(lo), float(hi)))
-    design.warnings = collect_warnings(design, plans, notes or [], settings)
+    design.warnings = collect_warnings(design, plans, notes or [], stopbands_hz)
     return design
-
-
-def _summary(requirement, sections, used_zpk, grid, out_level) -> dict:
-    edges = (requirement or {}).get("edges") or []
-    if not edges:
-        return {"edges": [], "meets": None}
-    f = np.array([e["frequency_hz"] for e in edges], dtype=float)
-    s = 2j * np.pi * f
-    h = np.prod([zpk_eval(*zk, s) for zk in used_zpk], axis=0)
-    sg = 2j * np.pi * grid
-    ideal_curve = np.prod([np.abs(sec.gain * standard_shape(sec, sg, sec.f0_hz, sec.q, sec.fz_hz))
-                           for sec in sections], axis=0)
-    ideal_level = float(np.max(ideal_curve))
-    ideal = np.prod([sec.gain * standard_shape(sec, s, sec.f0_hz, sec.q, sec.fz_hz) for sec in sections], axis=0)
-    with np.errstate(divide="ignore"):
-        loss = 20 * np.log10(out_level / np.maximum(np.abs(h), 1e-300))
-        ideal_loss = 20 * np.log10(ideal_level / np.maximum(np.abs(ideal), 1e-300))
-    rows = []
-    meets = True
-    for e, l, il in zip(edges, loss, ideal_loss):
-        req = float(e["required_db"])
-        band = e.get("band", "passband")
-        margin = (req - l) if band == "passband" else (l - req)
-        meets = meets and margin >= -1e-9
-        rows.append({
-            "frequency_hz": float(e["frequency_hz"]), "band": band, "loss_db": float(l),
-            "required_db": req, "margin_db": float(margin), "ideal_loss_db": float(il),
-        })
-    return {"edges": rows, "meets": bool(meets)}
 
 
 def _bom(plans: list[StagePlan]) -> list[dict]:

@@ -8,6 +8,26 @@ no intermediate output peaks more than a margin above the filter's own output
 level, the last stage with a free gain taking up whatever the earlier ones
 leave (ibid., "dynamic range scaling").  Peaks are found on a logarithmic
 frequency grid and refined by zooming twice on the largest sample.
+
+``section_order="max_dynamic_range"`` chooses the order of the largest
+dynamic range, the criterion of cascade design stated by Schaumann and Van
+Valkenburg (ch. 6, from memory): the ratio of the largest output before any
+intermediate output reaches the swing to the output noise.  For a candidate
+order the stage gains are those :func:`distribute_gains` would give it (so the
+estimate sees the same gains the design will have); the clipping term is
+``max_k P_k / P_n``, ``P_k`` the peak of ``|prod_{j<=k} g_j T_j(f)|`` on the
+analysis grid (``T_j`` the standard shapes), and for a stage whose topology has
+op-amps ahead of its output (state-variable, Tow-Thomas) also the peak of
+``|prod_{j<k} g_j T_j * T_k|``: those internal outputs carry the section's
+shape before the stage's gain is applied; the noise term is the output
+noise of a unit white source at the input and at the output of every stage,
+``sum_k int (|prod_{j>=k} g_j T_j|^2 + |prod_{j>k} g_j T_j|^2) df`` (the
+resistors' noise enters a stage ahead of its shaping, the op-amp's at its
+output).  The estimate is maximized over all ``n!`` orders up to
+:data:`EXHAUSTIVE_SECTIONS` sections, beyond that by swapping neighbours from
+the ascending-Q order until no swap improves it.  It is an estimate: the
+realized circuit's noise and levels are measured afterwards by the noise and
+headroom analyses.
 """
 
 from __future__ import annotations
@@ -16,31 +36,46 @@ from typing import Callable
 
 import numpy as np
 
+from service.approximation.enums import SectionOrder
 from service.approximation.types import Section
 from service.realization.errors import RealizationError
 from service.realization.fit import standard_shape
 
-SECTION_ORDERS = ("ascending_q", "descending_q", "given")
+SECTION_ORDERS = tuple(o.value for o in SectionOrder)
+
+#: Most sections whose every order the dynamic-range search evaluates; beyond, neighbour swaps.
+EXHAUSTIVE_SECTIONS = 6
 
 #: Points per decade of the coarse peak-search grid, and decades beyond the section frequencies.
 GRID_POINTS_PER_DECADE = 60
 GRID_DECADES_BEYOND = 2.0
 
 
-def order_sections(sections: list[Section], section_order: str) -> list[int]:
+def order_sections(sections: list[Section], section_order: str, *,
+                   freedoms: list[tuple[str, float]] | None = None, margin_db: float = 1.0,
+                   internal: list[bool] | None = None) -> list[int]:
     """Indices of ``sections`` in cascade order.
 
     ``"ascending_q"`` (first-order sections count as Q = 0.5 and come first),
-    ``"descending_q"`` or ``"given"``; ties keep the given order.
+    ``"descending_q"``, ``"as_computed"`` (the given order), or ``"max_dynamic_range"`` (see the
+    module notes; :func:`dynamic_range_order`, with the sections' gain
+    ``freedoms`` (:func:`gain_freedom`, in the given order; default all
+    fixed at their gains), the stage peak ``margin_db`` and which sections'
+    topologies have ``internal`` op-amps); ties keep the given order.
     """
+    section_order = getattr(section_order, "value", section_order)
     if section_order not in SECTION_ORDERS:
         raise RealizationError(
             f"unknown section_order {section_order!r}: expected one of {', '.join(SECTION_ORDERS)}",
             field="section_order",
         )
     idx = list(range(len(sections)))
-    if section_order == "given":
+    if section_order == "as_computed":
         return idx
+    if section_order == "max_dynamic_range":
+        if len(sections) < 2:
+            return idx
+        return dynamic_range_order(sections, freedoms, margin_db, internal)[0]
     q = [0.5 if s.q is None else float(s.q) for s in sections]
     return sorted(idx, key=lambda i: q[i], reverse=(section_order == "descending_q"))
 
@@ -119,6 +154,130 @@ def gain_freedom(topology, section: Section, strategy: str) -> tuple[str, float]
     return "fixed", float(forced)
 
 
+def section_shapes(sections: list[Section], grid_hz: np.ndarray | None = None) -> np.ndarray:
+    """``|T_j(f)|`` of each section's standard shape (gain 1) on the analysis grid, shape (n, F)."""
+    grid = analysis_grid(sections) if grid_hz is None else grid_hz
+    s = 2j * np.pi * grid
+    return np.array([np.abs(standard_shape(sec, s, sec.f0_hz, sec.q, sec.fz_hz)) for sec in sections])
+
+
+def _magnitudes(shapes: np.ndarray, sections, freedoms, total_gain: float, margin_db: float):
+    """Gain magnitudes of :func:`distribute_gains` from precomputed shapes (n, F) in cascade order."""
+    n = len(sections)
+    level = abs(total_gain) * float(np.max(np.prod(shapes, axis=0)))
+    limit = level * 10 ** (margin_db / 20)
+    free = [i for i in range(n) if freedoms[i][0] != "fixed"]
+    absorber = free[-1] if free else None
+    mags = [0.0] * n
+    for i in range(n):
+        mode, val = freedoms[i]
+        if mode == "fixed":
+            mags[i] = abs(val)
+    cum = np.ones(shapes.shape[1])
+    for i in range(n):
+        mode, val = freedoms[i]
+        if i == absorber:
+            others = np.prod([mags[j] for j in range(n) if j != i]) if n > 1 else 1.0
+            mags[i] = abs(total_gain) / others if others > 0 else 1.0
+        elif mode != "fixed":
+            g = abs(sections[i].gain)
+            pk = float(np.max(cum * shapes[i]))
+            if i < n - 1 and g * pk > limit and pk > 0:
+                g = level / pk
+            mags[i] = g
+        cum = cum * shapes[i] * mags[i]
+    return mags, level, absorber
+
+
+def order_figure(shapes: np.ndarray, sections, freedoms, total_gain: float, margin_db: float,
+                 lnf_weights: np.ndarray, internal=None) -> float:
+    """The dynamic-range estimate of one order (module notes), dB up to a constant; larger is better.
+
+    ``shapes``, ``sections``, ``freedoms`` and ``internal`` (bool per stage: op-amps ahead of its output)
+    are in the candidate's cascade order; ``lnf_weights`` (F,) integrates a density over the grid
+    (``int S df = sum S * w``).
+    """
+    mags, _, _ = _magnitudes(shapes, sections, freedoms, total_gain, margin_db)
+    staged = shapes * np.asarray(mags)[:, None]
+    prefix = np.cumprod(staged, axis=0)
+    peaks = prefix.max(axis=1)
+    if peaks[-1] <= 0:
+        return -np.inf
+    top = float(peaks.max())
+    if internal is not None and any(internal):
+        ahead = np.vstack([np.ones((1, shapes.shape[1])), prefix[:-1]])
+        inner = (ahead * shapes).max(axis=1)
+        top = max(top, float(np.max(np.where(np.asarray(internal, dtype=bool), inner, 0.0))))
+    clip = top / float(peaks[-1])
+    suffix = np.cumprod(staged[::-1], axis=0)[::-1]                    # prod_{j>=k}
+    after = np.vstack([suffix[1:], np.ones((1, shapes.shape[1]))])     # prod_{j>k}
+    noise = float(np.sum((suffix ** 2 + after ** 2) @ lnf_weights))
+    return -20 * np.log10(clip) - 10 * np.log10(noise)
+
+
+def dynamic_range_order(sections: list[Section], freedoms: list[tuple[str, float]] | None = None,
+                        margin_db: float = 1.0, internal: list[bool] | None = None) -> tuple[list[int], float]:
+    """The order of the largest dynamic-range estimate (module notes).
+
+    Parameters
+    ----------
+    sections : list of Section
+    freedoms : list of (mode, value), optional
+        :func:`gain_freedom` of each section, in the given order; default:
+        every gain fixed at the section's gain.
+    margin_db : float
+        Stage peak margin of :func:`distribute_gains`, dB.
+    internal : list of bool, optional
+        Whether each section's topology has op-amps ahead of its output
+        (in the given order; default none).
+
+    Returns
+    -------
+    order : list of int
+        Indices of ``sections``, first stage first.
+    figure_db : float
+        Its estimate, dB (relative: only differences between orders mean anything).
+    """
+    n = len(sections)
+    if freedoms is None:
+        freedoms = [("fixed", float(sec.gain)) for sec in sections]
+    if len(freedoms) != n:
+        raise RealizationError("freedoms must give one entry per section", field="section_order")
+    grid = analysis_grid(sections)
+    shapes = section_shapes(sections, grid)
+    total = float(np.prod([sec.gain for sec in sections]))
+    lnf = np.log(grid)
+    w = np.zeros_like(grid)
+    d = np.diff(lnf) / 2
+    w[:-1] += d * grid[:-1]
+    w[1:] += d * grid[1:]
+
+    def figure(order) -> float:
+        order = list(order)
+        return order_figure(shapes[order], [sections[i] for i in order], [freedoms[i] for i in order], total,
+                            margin_db, w, None if internal is None else [internal[i] for i in order])
+
+    if n <= EXHAUSTIVE_SECTIONS:
+        import itertools
+        best, best_fig = None, -np.inf
+        for perm in itertools.permutations(range(n)):
+            fig = figure(perm)
+            if fig > best_fig + 1e-9:
+                best, best_fig = list(perm), fig
+        return best, float(best_fig)
+    order = order_sections(sections, "ascending_q")
+    fig = figure(order)
+    improved = True
+    while improved:
+        improved = False
+        for k in range(n - 1):
+            cand = order[:k] + [order[k + 1], order[k]] + order[k + 2:]
+            f2 = figure(cand)
+            if f2 > fig + 1e-9:
+                order, fig, improved = cand, f2, True
+    return order, float(fig)
+
+
 def distribute_gains(sections: list[Section], freedoms: list[tuple[str, float]], total_gain: float,
                      margin_db: float) -> tuple[list[float], dict]:
     """Stage gains for a cascade (in cascade order).
@@ -143,32 +302,7 @@ def distribute_gains(sections: list[Section], freedoms: list[tuple[str, float]],
         the stage that took up the remaining gain, or None).
     """
     n = len(sections)
-    grid = analysis_grid(sections)
-    s = 2j * np.pi * grid
-    shapes = np.array([np.abs(standard_shape(sec, s, sec.f0_hz, sec.q, sec.fz_hz)) for sec in sections])
-    total_shape = np.prod(shapes, axis=0)
-    level = abs(total_gain) * float(np.max(total_shape))
-    limit = level * 10 ** (margin_db / 20)
-    free = [i for i in range(n) if freedoms[i][0] != "fixed"]
-    absorber = free[-1] if free else None
-    mags = [0.0] * n
-    for i in range(n):
-        mode, val = freedoms[i]
-        if mode == "fixed":
-            mags[i] = abs(val)
-    cum = np.ones_like(grid)
-    for i in range(n):
-        mode, val = freedoms[i]
-        if i == absorber:
-            others = np.prod([mags[j] for j in range(n) if j != i]) if n > 1 else 1.0
-            mags[i] = abs(total_gain) / others if others > 0 else 1.0
-        elif mode != "fixed":
-            g = abs(sections[i].gain)
-            pk = float(np.max(cum * shapes[i]))
-            if i < n - 1 and g * pk > limit and pk > 0:
-                g = level / pk
-            mags[i] = g
-        cum = cum * shapes[i] * mags[i]
+    mags, level, absorber = _magnitudes(section_shapes(sections), sections, freedoms, total_gain, margin_db)
     gains = []
     for i in range(n):
         mode, val = freedoms[i]

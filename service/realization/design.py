@@ -20,9 +20,9 @@ from service.realization.cascade import distribute_gains, gain_freedom, order_se
 from service.realization.errors import (
     RealizationError, UnknownStrategy, UnknownTopology, UnsupportedSection, WrongLength,
 )
-from service.realization.opamp import OpAmpSpec
+from service.realization.opamp import FIGURES, OpAmpSpec
 from service.realization.parts import PartsPolicy, resolve_kind
-from service.realization.results import Component, Design, DesignWarning, OpAmpUse
+from service.realization.results import AnalysisOptions, Component, Design, DesignWarning, OpAmpUse
 from service.realization.selection import select_values
 from service.realization.topologies import TOPOLOGIES, auto_topology
 
@@ -102,21 +102,6 @@ def _check_options(impedance_ohm, stage_peak_margin_db, output_amplitude_v, gbw_
         raise RealizationError("gbw_error must be a relative error between 0 and 0.5", field="gbw_error")
 
 
-def _edges(approximation, requirement: dict | None = None) -> list[dict]:
-    """The requirement's edges: frequencies from the approximation, required losses from ``requirement``
-    when it states them (the approximation may have been designed for a tighter requirement)."""
-    asked = {"passband": (requirement or {}).get("passband_ripple_db"),
-             "stopband": (requirement or {}).get("stopband_attenuation_db")}
-    out = []
-    for e in getattr(approximation, "edges", None) or []:
-        band = getattr(e, "band", "passband")
-        band = str(getattr(band, "value", band))
-        required = asked.get(band)
-        out.append({"frequency_hz": float(e.frequency_hz), "band": band,
-                    "required_db": float(e.required_db if required is None else required)})
-    return out
-
-
 def _enum_value(x):
     return getattr(x, "value", x)
 
@@ -151,7 +136,7 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
                   exact: bool = False, impedance_ohm: float | None = None, section_order: str = "ascending_q",
                   stage_peak_margin_db: float = DEFAULT_STAGE_PEAK_MARGIN_DB,
                   output_amplitude_v: float = DEFAULT_OUTPUT_AMPLITUDE_V, gbw_error: float = DEFAULT_GBW_ERROR,
-                  requirement: dict | None = None) -> Design:
+                  stopbands_hz=()) -> Design:
     """Realize an approximation as a cascade of op-amp stages with parts that can be bought.
 
     Parameters
@@ -177,15 +162,16 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
     impedance_ohm : float or None
         Preferred resistor level (ohm).
     section_order : str
-        ``"ascending_q"`` (default), ``"descending_q"`` or ``"given"``.
+        ``"ascending_q"`` (default), ``"descending_q"``, ``"as_computed"`` or
+        ``"max_dynamic_range"`` (:func:`service.realization.cascade.dynamic_range_order`).
     stage_peak_margin_db : float
         How far (dB) an intermediate stage output may peak above the filter's output level.
     output_amplitude_v : float
         Peak output voltage (V) the slew-rate and swing figures are for.
     gbw_error : float
         Relative f0/Q error the GBW figures are for (0.01 = 1 %).
-    requirement : dict or None
-        The requirement's passband/stopband fields, echoed in the document.
+    stopbands_hz : sequence of (float, float)
+        The requirement's stopbands (Hz), for the mains caution.
 
     Returns
     -------
@@ -222,7 +208,9 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
             s = check_strategy(t, sec, strat_in[i], strategies, sfield)
         chosen.append((t, s))
 
-    order = order_sections(sections, section_order)
+    order = order_sections(sections, section_order, margin_db=stage_peak_margin_db,
+                           freedoms=[gain_freedom(t, sec, s) for sec, (t, s) in zip(sections, chosen)],
+                           internal=[len(t.opamp_roles(sec, s)) > 1 for sec, (t, s) in zip(sections, chosen)])
     ordered = [sections[i] for i in order]
     picks = [chosen[i] for i in order]
     total = float(np.prod([s.gain for s in sections]))
@@ -273,22 +261,14 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
             else:
                 ops.append(OpAmpUse(ref=ref, role=role, gbw_hz=spec.gbw_hz, slew_v_per_us=spec.slew_v_per_us,
                                     a0_db=spec.a0_db, output_swing_v=spec.output_swing_v, supply_v=spec.supply_v,
-                                    rout_ohm=spec.rout_ohm, part_id=spec.part_id))
+                                    rout_ohm=spec.rout_ohm, part_id=spec.part_id,
+                                    **{k: getattr(spec, k) for k in FIGURES}))
         plans.append(StagePlan(section=stage_sec, topology=t, strategy=s, components=comps, opamps=ops))
 
-    req = dict(requirement) if requirement else {}
-    edges = _edges(approximation, requirement)
-    if edges:
-        req["edges"] = edges
-    settings = {
-        "gbw_error": float(gbw_error), "output_amplitude_v": float(output_amplitude_v),
-        "stage_peak_margin_db": float(stage_peak_margin_db), "section_order": section_order,
-        "exact": bool(exact), "impedance_ohm": impedance_ohm,
-        "ranges": {kind: [float(a.low), float(a.high)] for kind, a in allowed.items()},
-        "series": {kind: a.series for kind, a in allowed.items()},
-    }
     return analyze(plans, response=_enum_value(getattr(approximation, "response", None)),
                    family=_enum_value(getattr(approximation, "family", None)),
                    order=int(getattr(approximation, "order", sum(s.order for s in sections))),
-                   requirement=req or None, settings=settings, notes=notes)
-
+                   options=AnalysisOptions(float(gbw_error), float(output_amplitude_v), float(stage_peak_margin_db)),
+                   part_ranges={kind: (float(a.low), float(a.high)) for kind, a in allowed.items()},
+                   part_series={kind: a.series for kind, a in allowed.items()},
+                   notes=notes, stopbands_hz=stopbands_hz)

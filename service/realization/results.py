@@ -88,12 +88,21 @@ class OpAmpUse:
     supply_v: float | None = None
     rout_ohm: float | None = None
     part_id: str | None = None
+    en_nv_rthz: float | None = None
+    in_pa_rthz: float | None = None
+    en_corner_hz: float | None = None
+    in_corner_hz: float | None = None
+    vos_v: float | None = None
+    ib_a: float | None = None
+    rail_headroom_v: float | None = None
 
     def as_dict(self) -> dict:
         return {
             "ref": self.ref, "role": self.role, "gbw_hz": self.gbw_hz, "slew_v_per_us": self.slew_v_per_us,
             "a0_db": self.a0_db, "output_swing_v": self.output_swing_v, "supply_v": self.supply_v,
-            "rout_ohm": self.rout_ohm, "part_id": self.part_id,
+            "rout_ohm": self.rout_ohm, "part_id": self.part_id, "en_nv_rthz": self.en_nv_rthz,
+            "in_pa_rthz": self.in_pa_rthz, "en_corner_hz": self.en_corner_hz, "in_corner_hz": self.in_corner_hz,
+            "vos_v": self.vos_v, "ib_a": self.ib_a, "rail_headroom_v": self.rail_headroom_v,
         }
 
 
@@ -162,39 +171,61 @@ class Stage:
     output_node: str = "out"
 
 
+@dataclass(frozen=True)
+class AnalysisOptions:
+    """What the op-amp and headroom figures of an analysis are for.
+
+    Attributes
+    ----------
+    gbw_error : float
+        Relative f0/Q error the GBW figures are for (0.01 = 1 %), in (0, 0.5).
+    output_amplitude_v : float
+        Peak output voltage (V) of the slew-rate and swing figures, > 0.
+    stage_peak_margin_db : float
+        How far (dB) an intermediate stage output may peak above the filter output, >= 0.
+    """
+
+    gbw_error: float = 0.01
+    output_amplitude_v: float = 1.0
+    stage_peak_margin_db: float = 1.0
+
+
 @dataclass
 class Design:
-    """A realized filter: stages, BOM, netlist, summary and warnings.
+    """A realized filter: stages, BOM, netlist and warnings (what it must meet is the workflow's).
 
     Attributes
     ----------
     response, family : str or None
     order : int
     stages : list of Stage
-    requirement : dict or None
-        Passband / stopband fields and the edges the summary checks.
-    settings : dict
-        The options the design was made with (so evaluation can redo it).
+        In cascade order; ``Stage.index`` counts from 0, stage numbers in messages from 1.
+    options : AnalysisOptions
+    part_ranges : dict of str to (float, float)
+        Allowed value range per part kind (``resistor``, ``capacitor``), ohm or F.
+    part_series : dict of str to str
+        Series name or ``"stock"`` per part kind.
     bom : list of dict
     netlist : str
         SPICE netlist of the whole filter (``VIN in 0 AC 1``, output ``out``).
-    summary : dict
-        ``edges`` (list of {frequency_hz, band, loss_db, required_db,
-        margin_db, ideal_loss_db}) and ``meets`` (bool or None).
     warnings : list of DesignWarning
     overall_gain : float
         Product of the stage gains (dimensionless, sign included).
+    output_peak_gain_db : float
+        Largest gain from input to output (dB).
+    plans : list of StagePlan
+        What the stages were analysed from.
     """
 
     response: str | None
     family: str | None
     order: int
     stages: list[Stage]
-    requirement: dict | None
-    settings: dict
+    options: AnalysisOptions = field(default_factory=AnalysisOptions)
+    part_ranges: dict = field(default_factory=dict)
+    part_series: dict = field(default_factory=dict)
     bom: list = field(default_factory=list)
     netlist: str = ""
-    summary: dict = field(default_factory=dict)
     warnings: list = field(default_factory=list)
     overall_gain: float = 1.0
     output_peak_gain_db: float = 0.0

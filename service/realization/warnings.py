@@ -1,6 +1,7 @@
 """Cautions about a realized design (``warnings`` of the design document).
 
-Codes (stable, public):
+Codes (stable, public); every warning about one stage carries its number (from 1) in ``stage`` and in
+the message, with the value and the limit it breaks:
 
 - ``high_k_dielectric``: an X7R/X5R/Y5V/Z5U ceramic sets a frequency; class 2
   and 3 ceramics change capacitance with DC bias, temperature and age
@@ -14,7 +15,6 @@ Codes (stable, public):
   the filter's output level (clipping risk).
 - ``gain_mismatch``, ``inverting``: the cascade's gain differs from the one
   asked for, or the output is inverted.
-- ``requirement_missed``: with the chosen parts the loss misses a band edge.
 - ``mains_connection``: a notch or bandstop aimed at mains frequencies.
 """
 
@@ -25,6 +25,7 @@ import math
 from service.approximation.types import SectionKind
 from service.realization.parts import HIGH_K_DIELECTRICS
 from service.realization.results import DesignWarning
+from service.units import format_quantity
 
 #: Q above which a single-op-amp section is flagged (common practice).
 HIGH_Q_SINGLE_OPAMP = 20.0
@@ -52,10 +53,13 @@ def _fmt(x: float, unit: str) -> str:
     return f"{x:.4g} {unit}"
 
 
-def collect_warnings(design, plans, notes, settings) -> list[DesignWarning]:
-    """All cautions of ``design`` (the :class:`Design` being assembled)."""
+def collect_warnings(design, plans, notes, stopbands_hz=()) -> list[DesignWarning]:
+    """All cautions of ``design`` (the :class:`Design` being assembled); stage numbers from 1.
+
+    ``stopbands_hz`` lists the requirement's stopbands ``(low, high)`` (Hz), for the mains caution.
+    """
     out: list[DesignWarning] = list(notes)
-    margin_db = float(settings["stage_peak_margin_db"])
+    margin_db = float(design.options.stage_peak_margin_db)
     n = len(design.stages)
     for st, plan in zip(design.stages, plans):
         k = st.index + 1
@@ -66,19 +70,26 @@ def collect_warnings(design, plans, notes, settings) -> list[DesignWarning]:
                 "high_k_dielectric",
                 f"stage {k}: {', '.join(hk)} use a high-permittivity ceramic dielectric in a frequency-setting "
                 "position; its capacitance moves with applied voltage and temperature. Prefer C0G/NP0 or film.",
-                stage=st.index))
-        out_r = [c.ref for c in st.components if not c.in_range]
+                stage=k))
+        out_r = [c for c in st.components if not c.in_range]
         if out_r:
+            rng = design.part_ranges
+            unit = {"resistor": "ohm", "capacitor": "F"}
+            parts = "; ".join(
+                f"{c.ref} = {format_quantity(c.value, unit[c.kind])}"
+                + (f" outside {format_quantity(rng[c.kind][0], unit[c.kind])} to "
+                   f"{format_quantity(rng[c.kind][1], unit[c.kind])}" if c.kind in rng else "")
+                for c in out_r)
             out.append(DesignWarning(
                 "part_out_of_range",
-                f"stage {k}: {', '.join(out_r)} lie outside the allowed value range", stage=st.index))
+                f"stage {k}: {parts} (the allowed {', '.join(sorted({c.kind for c in out_r}))} range)", stage=k))
         n_opamps = len(plan.topology.opamp_roles(plan.section, plan.strategy))
         if st.section.q is not None and st.section.q > HIGH_Q_SINGLE_OPAMP and n_opamps == 1:
             out.append(DesignWarning(
                 "high_q_single_opamp",
                 f"stage {k}: Q = {st.section.q:.3g} in the single-op-amp {st.topology} topology; above about "
                 f"{HIGH_Q_SINGLE_OPAMP:g} its Q is very sensitive to part values and op-amp gain. "
-                "Consider a state-variable or Tow-Thomas stage.", stage=st.index))
+                "Consider a state-variable or Tow-Thomas stage.", stage=k))
         req = st.opamp_requirement
         for u in st.opamps[:1]:
             if u.gbw_hz is None:
@@ -87,7 +98,7 @@ def collect_warnings(design, plans, notes, settings) -> list[DesignWarning]:
                 out.append(DesignWarning(
                     "opamp_gbw_short",
                     f"stage {k}: no gain-bandwidth product keeps f0 and Q within {req.error:.3g} with the given "
-                    "open-loop gain", stage=st.index))
+                    "open-loop gain", stage=k))
             elif u.gbw_hz < req.gbw_required_hz:
                 out.append(DesignWarning(
                     "opamp_gbw_short",
@@ -96,24 +107,24 @@ def collect_warnings(design, plans, notes, settings) -> list[DesignWarning]:
                     f"with it the stage reaches f0 error {100 * st.achieved_macromodel['f0_error']:.3g} %"
                     + (f", Q error {100 * st.achieved_macromodel['q_error']:.3g} %"
                        if st.achieved_macromodel.get("q_error") is not None else ""),
-                    stage=st.index))
+                    stage=k))
             if u.slew_v_per_us is not None and u.slew_v_per_us < req.slew_required_v_per_us:
                 out.append(DesignWarning(
                     "opamp_slew_short",
                     f"stage {k}: slew rate {u.slew_v_per_us:.3g} V/us is below the "
                     f"{req.slew_required_v_per_us:.3g} V/us a {req.output_peak_v:.3g} V peak output needs at "
-                    f"{_fmt(req.signal_frequency_hz, 'Hz')}", stage=st.index))
+                    f"{_fmt(req.signal_frequency_hz, 'Hz')}", stage=k))
             if u.output_swing_v is not None and u.output_swing_v < req.output_peak_v:
                 out.append(DesignWarning(
                     "opamp_swing_short",
                     f"stage {k}: the output peaks at {req.output_peak_v:.3g} V, beyond the op-amp's "
-                    f"{u.output_swing_v:.3g} V swing", stage=st.index))
+                    f"{u.output_swing_v:.3g} V swing", stage=k))
         if st.index < n - 1 and st.peak_gain_db > design.output_peak_gain_db + margin_db + 1e-6:
             out.append(DesignWarning(
                 "stage_peaking",
                 f"stage {k}: its output peaks at {st.peak_gain_db:.2f} dB ({_fmt(st.peak_frequency_hz, 'Hz')}), "
                 f"{st.peak_gain_db - design.output_peak_gain_db:.2f} dB above the filter output "
-                f"(margin {margin_db:g} dB); it clips first", stage=st.index))
+                f"(margin {margin_db:g} dB); it clips first", stage=k))
         if st.section.kind == SectionKind.NOTCH:
             fz = st.section.fz_hz or st.section.f0_hz
             m = _near_mains(fz)
@@ -121,14 +132,9 @@ def collect_warnings(design, plans, notes, settings) -> list[DesignWarning]:
                 out.append(DesignWarning(
                     "mains_connection",
                     MAINS_MESSAGE.format(what=f"stage {k} notches {_fmt(fz, 'Hz')}, near {m:g} Hz"),
-                    stage=st.index))
+                    stage=k))
     if design.response == "bandstop" and not any(w.code == "mains_connection" for w in out):
-        req = design.requirement or {}
-        bands = []
-        for key in ("stopband_hz", "cutoff_hz"):
-            v = req.get(key)
-            if isinstance(v, (list, tuple)) and len(v) == 2:
-                bands.append((float(min(v)), float(max(v))))
+        bands = [(float(min(b)), float(max(b))) for b in stopbands_hz]
         hit = None
         for lo, hi in bands:
             for base in MAINS_HZ:
@@ -149,20 +155,4 @@ def collect_warnings(design, plans, notes, settings) -> list[DesignWarning]:
     if design.overall_gain < 0:
         out.append(DesignWarning("inverting", "the filter output is inverted (overall gain "
                                  f"{design.overall_gain:.4g}); inverting stages change its sign"))
-    for row in design.summary.get("edges", []):
-        if row["margin_db"] < -1e-9:
-            worst = max(max(abs(st.achieved["f0_error"]), abs(st.achieved.get("q_error") or 0.0))
-                        for st in design.stages)
-            why = f"part values snapped to what can be bought (f0/Q errors up to {100 * worst:.2g} %)"
-            if any(st.achieved_macromodel is not None for st in design.stages):
-                why += " and the op-amp's finite gain-bandwidth"
-            if row["ideal_loss_db"] is not None:
-                ideal_margin = (row["required_db"] - row["ideal_loss_db"]) if row["band"] == "passband" \
-                    else (row["ideal_loss_db"] - row["required_db"])
-                if ideal_margin < 0:
-                    why = "the approximation itself has no margin there"
-            out.append(DesignWarning(
-                "requirement_missed",
-                f"at {_fmt(row['frequency_hz'], 'Hz')} ({row['band']}) the loss is {row['loss_db']:.3f} dB "
-                f"against {row['required_db']:.3f} dB required: {-row['margin_db']:.3f} dB short; cause: {why}"))
     return out

@@ -12,7 +12,7 @@ from service.response import zpk as _zpk
 from service.response.errors import InvalidMask
 from service.response.grids import (AUTOMATIC_TIME_POINTS, DEFAULT_MAX_FREQUENCY_POINTS, DEFAULT_MAX_TIME_POINTS,
                                     TimeGrid, resolve_frequencies)
-from service.response.mask import Mask, check_mask
+from service.response.verification import Band, Verdict
 from service.response.metrics import ResponseMetrics, frequency_metrics, step_metrics
 from service.response.refine import analysis_grid_hz
 from service.response.result import ResponseResult, TimeResponse
@@ -20,8 +20,8 @@ from service.response.systems import CircuitSystem, ZpkSystem, as_system
 from service.response.timeresp import automatic_span, simulate
 
 
-def _passbands_from(passband_hz, rt: ResponseType | None, obj: Any, mask: Mask | None):
-    """Passband intervals (Hz) from explicit edges, the approximation's edges or the mask."""
+def _passbands_from(passband_hz, rt: ResponseType | None, obj: Any, verdict: Verdict | None):
+    """Passband intervals (Hz) from explicit edges, the verdict's passband segments or the approximation's edges."""
     if passband_hz is not None:
         arr = np.atleast_1d(np.asarray(passband_hz, dtype=float)).ravel()
         if not np.all(np.isfinite(arr)) or np.any(arr <= 0) or arr.size not in (1, 2):
@@ -38,8 +38,10 @@ def _passbands_from(passband_hz, rt: ResponseType | None, obj: Any, mask: Mask |
                               field="passband_hz")
         lo, hi = float(arr[0]), float(arr[1])
         return [(lo, hi)] if rt is ResponseType.BANDPASS else [(0.0, lo), (hi, math.inf)]
-    if mask is not None and mask.passbands:
-        return mask.passbands
+    if verdict is not None and verdict.segments:
+        bands = [(s.limit.start_hz, s.checked_to_hz) for s in verdict.segments if s.limit.band is Band.PASSBAND]
+        if bands:
+            return bands
     edges = getattr(obj, "edges", None)
     if edges and rt is not None:
         pf = sorted(float(e.frequency_hz) for e in edges if str(getattr(e, "band", "")).startswith("pass"))
@@ -48,7 +50,7 @@ def _passbands_from(passband_hz, rt: ResponseType | None, obj: Any, mask: Mask |
     return None
 
 
-def analyze(system: Any, frequencies, *, time: TimeGrid | None = None, mask: Mask | None = None,
+def analyze(system: Any, frequencies, *, time: TimeGrid | None = None, verdict: Verdict | None = None,
             response_type: ResponseType | str | None = None, passband_hz=None,
             attenuation_at_hz: Sequence[float] = (), max_points: int = DEFAULT_MAX_FREQUENCY_POINTS,
             max_time_points: int = DEFAULT_MAX_TIME_POINTS,
@@ -64,8 +66,9 @@ def analyze(system: Any, frequencies, *, time: TimeGrid | None = None, mask: Mas
         Display grid (Hz); explicit lists strictly increasing, >= 0.
     time : TimeGrid, optional
         Time grid; None: automatic (see :class:`TimeGrid`).
-    mask : Mask, optional
-        Requirement mask to check (see :mod:`service.response.mask`).
+    verdict : Verdict, optional
+        The system's verification against its requirement or mask
+        (:mod:`service.response.verification`), carried into the result and its figure.
     response_type : ResponseType or str, optional
         None: from the approximation, else inferred from the response.
     passband_hz : float or (float, float), optional
@@ -127,16 +130,8 @@ def analyze(system: Any, frequencies, *, time: TimeGrid | None = None, mask: Mas
         ginf = float(gain_db(grid[-1:])[0])
         notes.append("no exact transfer function: metrics use a log grid around the requested frequencies")
 
-    passbands = _passbands_from(passband_hz, rt_given, obj, mask)
+    passbands = _passbands_from(passband_hz, rt_given, obj, verdict)
     metrics, rt = frequency_metrics(gain_db, sysm.group_delay, grid, g0, ginf, rt_given, passbands, att)
-
-    mres = None
-    if mask is not None:
-        if z is None:
-            zz, pp = np.zeros(0), 2 * np.pi * grid[[0, -1]].astype(complex) * -1
-        else:
-            zz, pp = z, p
-        mres = check_mask(mask, gain_db, zz, pp, extra_hz=f, peak_gain_db=metrics.peak_gain_db)
 
     step = impulse = None
     if zpk is None:
@@ -156,4 +151,4 @@ def analyze(system: Any, frequencies, *, time: TimeGrid | None = None, mask: Mas
         step = TimeResponse(sim.time_s, sim.step)
         impulse = TimeResponse(sim.time_s, sim.impulse, sim.dirac_weight)
         step_metrics(sim, metrics)
-    return ResponseResult(rt, f, mag, np.degrees(ph), gd, step, impulse, metrics, mres, notes)
+    return ResponseResult(rt, f, mag, np.degrees(ph), gd, step, impulse, metrics, verdict, notes)

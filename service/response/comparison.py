@@ -4,8 +4,8 @@ For each family the lowest order meeting the requirement is designed
 (:func:`service.approximation.design_by_requirement`) and judged on the same
 figures: order, number of second-order sections, highest section Q,
 passband group-delay variation, step overshoot, settling time to 1 %, and the
-worst margin against the requirement mask (checked densely, see
-:mod:`service.response.mask`). A family that cannot meet the requirement
+worst margin against the requirement (the one verifier,
+:mod:`service.response.verification`). A family that cannot meet the requirement
 within ``max_order`` is listed with ``meets=False`` and the reason.
 
 The recommended family is the lowest-order one that meets the mask and also
@@ -26,7 +26,8 @@ from service.errors import RolloffError
 from service.response import zpk as _zpk
 from service.errors import InvalidParameter
 from service.response.grids import TimeGrid
-from service.response.mask import Mask, check_mask
+from service.circuit.roots import RootSet
+from service.response.verification import Band, Criteria, verify
 from service.response.metrics import ResponseMetrics, delay_variation, step_metrics
 from service.response.modal import modal_step
 from service.response.refine import analysis_grid_hz
@@ -78,14 +79,14 @@ class Comparison:
     recommended : Family or None
     recommended_reason : str
         Why that family (or why none).
-    mask : Mask
-        The requirement mask every family was checked against.
+    criteria : Criteria
+        The requirement every family was verified against.
     """
 
     families: list[FamilyComparison]
     recommended: Family | None
     recommended_reason: str
-    mask: Mask
+    criteria: Criteria
     response: ResponseType
 
     def as_dict(self) -> dict:
@@ -141,7 +142,8 @@ def _step_response(z: np.ndarray, p: np.ndarray, k: float):
     return sim
 
 
-def _evaluate_family(family: Family, approx: Any, mask: Mask, overshoot_limit_pct, gd_limit_s) -> FamilyComparison:
+def _evaluate_family(family: Family, approx: Any, criteria: Criteria, overshoot_limit_pct, gd_limit_s
+                     ) -> FamilyComparison:
     z = np.asarray(approx.zeros, dtype=complex)
     p = np.asarray(approx.poles, dtype=complex)
     k = float(np.real(approx.gain))
@@ -152,17 +154,16 @@ def _evaluate_family(family: Family, approx: Any, mask: Mask, overshoot_limit_pc
     row = FamilyComparison(family=family, meets=False, order=int(approx.order), sections=n2,
                            first_order_sections=n1, max_q=max(qs) if qs else None, approximation=approx)
 
-    def gain_db(f):
-        return _zpk.magnitude_db(_zpk.freqresp(z, p, k, 2 * math.pi * np.asarray(f, dtype=float)))
-
     def delay(f):
         return _zpk.group_delay(z, p, 2 * math.pi * np.asarray(f, dtype=float))
 
-    mres = check_mask(mask, gain_db, z, p)
-    row.margin_db = mres.worst_margin_db
-    row.meets = mres.passed
-    grid = analysis_grid_hz(z, p, extra_hz=[e for s in mask.segments for e in (s.start_hz, s.stop_hz)])
-    row.group_delay_variation_s = delay_variation(delay, mask.passbands, grid)
+    verdict = verify(RootSet.from_zpk(z, p, k), criteria).verdict()
+    row.margin_db = verdict.worst_margin_db
+    row.meets = verdict.meets
+    passbands = [(lim.start_hz, lim.stop_hz) for lim in criteria.limits if lim.band is Band.PASSBAND]
+    grid = analysis_grid_hz(z, p, extra_hz=[e for lim in criteria.limits for e in (lim.start_hz, lim.stop_hz)
+                                            if math.isfinite(e)])
+    row.group_delay_variation_s = delay_variation(delay, passbands, grid)
     sim = _step_response(z, p, k)
     m = ResponseMetrics()
     step_metrics(sim, m)
@@ -175,12 +176,14 @@ def _evaluate_family(family: Family, approx: Any, mask: Mask, overshoot_limit_pc
         ok = ok and row.group_delay_variation_s <= gd_limit_s
     row.within_limits = bool(ok)
     if not row.meets:
-        row.reason = f"misses the requirement mask by {-row.margin_db:.3g} dB at {mres.worst_frequency_hz:.6g} Hz"
+        worst = verdict.worst
+        row.reason = (f"misses the requirement by {-row.margin_db:.3g} dB at {worst.worst_hz:.6g} Hz"
+                      if worst is not None else f"does not meet the requirement ({verdict.status})")
     return row
 
 
 def compare_families(response: ResponseType | str, passband_hz, stopband_hz, passband_ripple_db: float,
-                     stopband_attenuation_db: float, *, overshoot_limit_pct: float | None = None,
+                     stopband_attenuation_db: float, *, criteria: Criteria, overshoot_limit_pct: float | None = None,
                      group_delay_variation_limit_s: float | None = None, max_order: int = 20,
                      families: Sequence[Family | str] | None = None) -> Comparison:
     """Design every family for one requirement and compare them.
@@ -192,6 +195,8 @@ def compare_families(response: ResponseType | str, passband_hz, stopband_hz, pas
         Band edges (Hz); pairs for bandpass and bandstop.
     passband_ripple_db, stopband_attenuation_db : float
         Largest passband loss and smallest stopband loss (dB).
+    criteria : Criteria
+        What "meets" means for this requirement (the workflow derives it from the requirement).
     overshoot_limit_pct : float, optional
         Largest acceptable step overshoot (%) for the recommendation.
     group_delay_variation_limit_s : float, optional
@@ -215,7 +220,6 @@ def compare_families(response: ResponseType | str, passband_hz, stopband_hz, pas
     from service.approximation import design_by_requirement
 
     rt = ResponseType(response)
-    mask = Mask.from_requirement(rt, passband_hz, stopband_hz, passband_ripple_db, stopband_attenuation_db)
     for name, v in (("overshoot_limit_pct", overshoot_limit_pct),
                     ("group_delay_variation_limit_s", group_delay_variation_limit_s)):
         if v is not None and not (math.isfinite(v) and v >= 0):
@@ -229,7 +233,7 @@ def compare_families(response: ResponseType | str, passband_hz, stopband_hz, pas
         except RolloffError as exc:
             rows.append(FamilyComparison(family=fam, meets=False, reason=exc.message))
             continue
-        rows.append(_evaluate_family(fam, approx, mask, overshoot_limit_pct, group_delay_variation_limit_s))
+        rows.append(_evaluate_family(fam, approx, criteria, overshoot_limit_pct, group_delay_variation_limit_s))
     candidates = [r for r in rows if r.meets and r.within_limits]
     limits = []
     if overshoot_limit_pct is not None:
@@ -240,5 +244,5 @@ def compare_families(response: ResponseType | str, passband_hz, stopband_hz, pas
     if candidates:
         best = min(candidates, key=lambda r: (r.order, r.max_q if r.max_q is not None else 0.0, fams.index(r.family)))
         reason = f"lowest order ({best.order}) that meets the requirement{stated}"
-        return Comparison(rows, best.family, reason, mask, rt)
-    return Comparison(rows, None, f"no family meets the requirement{stated} within order {max_order}", mask, rt)
+        return Comparison(rows, best.family, reason, criteria, rt)
+    return Comparison(rows, None, f"no family meets the requirement{stated} within order {max_order}", criteria, rt)

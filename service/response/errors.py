@@ -19,3 +19,7 @@ class InvalidMask(InvalidParameter):
 
 class ImproperSystem(InvalidParameter):
     """A transfer function cannot be analysed (more zeros than poles, unstable...)."""
+
+
+class InvalidLevel(InvalidParameter):
+    """A noise or headroom option is out of range (band, temperature, signal level, swing)."""

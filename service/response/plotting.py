@@ -99,25 +99,36 @@ def _gain_axis(ax) -> None:
     _sparse_value_axis(ax, nbins=8, steps=(1, 2, 5, 10))
 
 
-def _draw_mask(ax, mask_result, f_lo: float, f_hi: float, y_lo: float) -> None:
-    """Shade the forbidden regions of a mask on a magnitude (dB) axis."""
-    ref = mask_result.reference_gain_db
-    for seg in mask_result.segments:
-        s = seg.segment
-        a = max(s.start_hz, f_lo)
-        b = min(s.stop_hz, f_hi) if math.isfinite(s.stop_hz) else f_hi
+def _draw_limits(ax, limits, ref: float, f_lo: float, f_hi: float, y_lo: float, met=None, worst_hz=None) -> None:
+    """Shade the forbidden regions of requirement segments (LossLimit) on a magnitude (dB) axis.
+
+    ``ref`` is the reference gain (dB); ``met`` (one bool per segment) colours them.
+    """
+    from service.response.verification import Band
+
+    for i, lim in enumerate(limits):
+        a = max(lim.start_hz, f_lo)
+        b = min(lim.stop_hz, f_hi) if math.isfinite(lim.stop_hz) else f_hi
         if not b > a:
             continue
-        colour = "tab:green" if seg.passed else "tab:red"
-        if s.max_loss_db is not None:
-            ax.fill_between([a, b], [ref - s.max_loss_db] * 2, [y_lo] * 2, color=colour, alpha=0.12, lw=0)
-            ax.plot([a, b], [ref - s.max_loss_db] * 2, color=colour, lw=1.0)
-        if s.min_loss_db is not None:
-            top = ref + 10.0
-            ax.fill_between([a, b], [ref - s.min_loss_db] * 2, [top] * 2, color=colour, alpha=0.12, lw=0)
-            ax.plot([a, b], [ref - s.min_loss_db] * 2, color=colour, lw=1.0)
-    if mask_result.worst_frequency_hz and f_lo <= mask_result.worst_frequency_hz <= f_hi:
-        ax.axvline(mask_result.worst_frequency_hz, color="0.4", ls=":", lw=0.8)
+        colour = "tab:green" if (met is None or met[i]) else "tab:red"
+        level = ref - lim.limit_db
+        if lim.band is Band.PASSBAND:
+            ax.fill_between([a, b], [level] * 2, [y_lo] * 2, color=colour, alpha=0.12, lw=0)
+        else:
+            ax.fill_between([a, b], [level] * 2, [ref + 10.0] * 2, color=colour, alpha=0.12, lw=0)
+        ax.plot([a, b], [level] * 2, color=colour, lw=1.0)
+    if worst_hz and math.isfinite(worst_hz) and f_lo <= worst_hz <= f_hi:
+        ax.axvline(worst_hz, color="0.4", ls=":", lw=0.8)
+
+
+def _draw_verdict(ax, verdict, f_lo: float, f_hi: float, y_lo: float) -> None:
+    """Shade a verdict's segments, coloured by whether each is met, and mark its worst point."""
+    if not verdict.stable or not verdict.segments:
+        return
+    worst = verdict.worst
+    _draw_limits(ax, [s.limit for s in verdict.segments], verdict.reference_gain_db, f_lo, f_hi, y_lo,
+                 met=[s.met for s in verdict.segments], worst_hz=None if worst is None else worst.worst_hz)
 
 
 def response_figure_svg(result) -> bytes:
@@ -145,8 +156,8 @@ def response_figure_svg(result) -> bytes:
     ax.plot(*decimate(fx, mag), color="tab:blue", lw=1.2)
     top = float(np.max(mag)) if mag.size else 0.0
     y_lo = max(float(np.min(mag)) if mag.size else -100.0, top - 140.0)
-    if result.mask_result is not None and fx.size:
-        _draw_mask(ax, result.mask_result, float(fx[0]), float(fx[-1]), y_lo - 10.0)
+    if result.verdict is not None and fx.size:
+        _draw_verdict(ax, result.verdict, float(fx[0]), float(fx[-1]), y_lo - 10.0)
     ax.set_ylim(y_lo - 5.0, top + 5.0)
     ax.set_title("Magnitude", y=1.0)
     ax.set_ylabel("gain (dB)")
@@ -199,19 +210,11 @@ def comparison_figure_svg(comparison) -> bytes:
         ax_m.plot(f, mag, lw=1.1, label=name)
         if t is not None:
             ax_s.plot(t * 1e3, y, lw=1.1, label=name)
-    if comparison.mask is not None and curves:
+    if comparison.criteria is not None and curves:
         f0 = min(float(c[0][0]) for c in curves.values())
         f1 = max(float(c[0][-1]) for c in curves.values())
-        att = max((s.min_loss_db or 0.0) for s in comparison.mask.segments)
-        for seg in comparison.mask.segments:
-            a = max(seg.start_hz, f0)
-            b = min(seg.stop_hz, f1)
-            if b <= a:
-                continue
-            if seg.max_loss_db is not None:
-                ax_m.plot([a, b], [-seg.max_loss_db] * 2, color="k", lw=1.0)
-            if seg.min_loss_db is not None:
-                ax_m.fill_between([a, b], [-seg.min_loss_db] * 2, [5.0] * 2, color="tab:red", alpha=0.12, lw=0)
+        att = max((lim.limit_db for lim in comparison.criteria.limits if lim.band.value == "stopband"), default=0.0)
+        _draw_limits(ax_m, comparison.criteria.limits, 0.0, f0, f1, -(att + 50.0))
         ax_m.set_ylim(-(att + 40.0), 5.0)
     _log_frequency_axis(ax_m)
     ax_m.set_xlabel("frequency (Hz)")

@@ -8,7 +8,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from service.approximation.types import ResponseType
-from service.response.mask import MaskResult
+from service.response.verification import Verdict
 from service.response.metrics import ResponseMetrics
 
 
@@ -66,7 +66,8 @@ class ResponseResult:
     group_delay_s : ndarray (F,) s
     step, impulse : TimeResponse or None
     metrics : ResponseMetrics
-    mask_result : MaskResult or None
+    verdict : Verdict or None
+        The verification against the requirement or mask (``mask_result`` in the reply).
     notes : list of str
         Anything the caller should know (e.g. why the time response is missing).
     """
@@ -79,7 +80,7 @@ class ResponseResult:
     step: TimeResponse | None
     impulse: TimeResponse | None
     metrics: ResponseMetrics
-    mask_result: MaskResult | None = None
+    verdict: Verdict | None = None
     notes: list[str] = field(default_factory=list)
 
     def as_dict(self) -> dict:
@@ -93,7 +94,7 @@ class ResponseResult:
             "step": None if self.step is None else {"time_s": self.step.time_s, "value": self.step.value},
             "impulse": None if self.impulse is None else self.impulse.as_dict(),
             "metrics": self.metrics.as_dict(),
-            "mask_result": None if self.mask_result is None else self.mask_result.as_dict(),
+            "mask_result": None if self.verdict is None else self.verdict.as_dict(),
             "notes": list(self.notes),
         })
 

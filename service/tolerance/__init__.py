@@ -2,9 +2,9 @@
 
 Public surface
 --------------
-run_tolerance(document, *, trials, seed, distribution, temperature, tempco_ppm_per_c, gbw_spread,
-              frequencies_hz, mask, sensitivity_frequencies_hz, include_trials, memory_limit_bytes,
-              max_trials, max_frequency_points, chunk_trials) -> ToleranceResult
+run_tolerance(plans, *, draw_order, response, trials, seed, distribution, temperature, tempco_ppm_per_c,
+              gbw_spread, frequencies_hz, criteria, sensitivity_frequencies_hz, include_trials,
+              memory_limit_bytes, max_trials, max_frequency_points, chunk_trials) -> ToleranceResult
 ToleranceResult
     ``as_dict()`` (the JSON reply), ``table()`` (columns per frequency), ``svg()``.
 wilson_interval, PERCENTILES

@@ -6,10 +6,10 @@ sec. 2.1-2.3), read on the metric grid of :mod:`service.tolerance.grids`
 instead of refined on one exact response:
 
 reference gain
-    The largest gain over the mask's passband points; without a mask the
+    The largest gain over the requirement's passband points; without one the
     DC gain (lowpass, bandstop) or the peak gain (highpass, bandpass -- an
     op-amp macromodel takes a highpass's gain to 0 at high frequency); a
-    mask's ``reference_gain_db`` when it gives one.
+    fixed ``reference_gain_db`` when the criteria give one.
 loss
     reference gain minus gain, dB.
 f3db_hz
@@ -18,11 +18,11 @@ f3db_hz
     (the dense window around the nominal 3 dB point keeps that within
     ~1e-5 relative); NaN when the trial has no crossing in the grid.
 passband_ripple_db
-    Largest minus smallest gain over the passband points (needs a mask).
-mask margins
-    Per segment: ``max_loss_db - loss`` (passband) and ``loss - min_loss_db``
-    (stopband), the worst over the segment's points; a trial passes a
-    segment when that margin is >= -MARGIN_TOLERANCE_DB.
+    Largest minus smallest gain over the passband points (needs a requirement).
+
+The yield itself is not read here: every trial is verified on the whole band
+by :func:`service.response.verification.verify` (the same verdict as a
+design's); these figures describe the spread.
 """
 
 from __future__ import annotations
@@ -30,7 +30,6 @@ from __future__ import annotations
 import numpy as np
 
 from service.approximation.types import ResponseType
-from service.response import MARGIN_TOLERANCE_DB
 from service.tolerance.grids import HALF_POWER_DB, Grids
 
 #: Smallest |H| before the logarithm (keeps an exact transmission zero finite, -3000 dB).
@@ -62,9 +61,9 @@ def positive_columns(grids: Grids) -> slice | np.ndarray:
 
 def reference_gain(g: np.ndarray, grids: Grids) -> np.ndarray:
     """Reference gain (dB) per trial, shape (Tc,), from the metric-grid gains ``g`` (Tc, M)."""
-    mask = grids.mask
-    if mask is not None and mask.reference_gain_db is not None:
-        return np.full(g.shape[0], float(mask.reference_gain_db))
+    criteria = grids.criteria
+    if criteria is not None and criteria.reference_gain_db is not None:
+        return np.full(g.shape[0], float(criteria.reference_gain_db))
     if grids.passband_columns is not None:
         return g[:, columns(grids.passband_columns)].max(axis=1)
     if grids.response in (ResponseType.LOWPASS, ResponseType.BANDSTOP) and grids.metric_hz[0] == 0.0:
@@ -130,29 +129,4 @@ def ripple(g: np.ndarray, grids: Grids) -> np.ndarray | None:
     return gp.max(axis=1) - gp.min(axis=1)
 
 
-def margins(g: np.ndarray, ref: np.ndarray, grids: Grids) -> np.ndarray:
-    """Worst mask margin (dB) per trial and segment, shape (Tc, S).
-
-    ``max_loss - (ref - g)`` rises and ``(ref - g) - min_loss`` falls with
-    ``g`` (correctly rounded subtraction is monotonic), so their minimum
-    over a segment's points is the value at the segment's smallest
-    (largest) gain -- the same number as the minimum over every point.
-    """
-    out = np.empty((g.shape[0], len(grids.segment_columns)))
-    for j, (seg, cols) in enumerate(zip(grids.mask.segments, grids.segment_columns)):
-        gs = g[:, columns(cols)]
-        m = np.full(g.shape[0], np.inf)
-        if seg.max_loss_db is not None:
-            m = np.minimum(m, seg.max_loss_db - (ref - gs.min(axis=1)))
-        if seg.min_loss_db is not None:
-            m = np.minimum(m, (ref - gs.max(axis=1)) - seg.min_loss_db)
-        out[:, j] = m
-    return out
-
-
-def passes(margin: np.ndarray) -> np.ndarray:
-    """Bool (Tc, S): the trial meets the segment (margin >= -MARGIN_TOLERANCE_DB)."""
-    return margin >= -MARGIN_TOLERANCE_DB
-
-
-__all__ = ["gain_db", "reference_gain", "f3db", "ripple", "margins", "passes", "columns", "MAGNITUDE_FLOOR"]
+__all__ = ["gain_db", "reference_gain", "f3db", "ripple", "columns", "MAGNITUDE_FLOOR"]

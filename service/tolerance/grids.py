@@ -1,4 +1,4 @@
-"""The frequencies a tolerance run evaluates, and the mask geometry on them.
+"""The frequencies a tolerance run evaluates, and the requirement's geometry on them.
 
 Three sets of frequencies (Hz) are evaluated together for every trial:
 
@@ -12,12 +12,12 @@ shifted (F)
     truncation error is ``d/2 |f tau'(f)/tau|`` relative, about 5e-6 here;
     rounding adds ~1e-13/(2 pi f d tau), below 1e-7 for ``f tau > 0.01``.
 metric grid (M)
-    The caller's grid, every finite mask edge, a dense window of
+    The caller's grid, every finite requirement edge, a dense window of
     :data:`WINDOW_POINTS` log-spaced points around each nominal 3 dB
     frequency, the sensitivity frequencies, and DC for lowpass and bandstop
-    responses.  Per-trial figures (3 dB frequency, ripple, mask margins,
-    loss at the edges) are read on it: the mask is checked on the grid
-    points inside each segment and at the segment's edges.
+    responses.  Per-trial figures (3 dB frequency, ripple, loss at the
+    edges) are read on it; the verdict of each trial is the verifier's, on
+    the whole band (:mod:`service.response.verification`).
 """
 
 from __future__ import annotations
@@ -28,7 +28,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from service.approximation.types import ResponseType
-from service.response import Mask
+from service.response.verification import Band, Criteria
 
 #: Relative frequency step of the group-delay difference.
 DELAY_STEP = 1e-5
@@ -42,7 +42,7 @@ HALF_POWER_DB = 10.0 * math.log10(2.0)
 
 @dataclass
 class Edge:
-    """A finite mask edge: frequency (Hz), band, its segment and its column in the metric grid."""
+    """A finite requirement edge: frequency (Hz), band, its segment and its column in the metric grid."""
 
     frequency_hz: float
     band: str
@@ -61,7 +61,7 @@ class Grids:
     extra_hz: np.ndarray              # metric points not on the caller's grid
     order: np.ndarray                 # concat(F, extra)[order] == metric
     response: ResponseType
-    mask: Mask | None
+    criteria: Criteria | None
     segment_columns: list[np.ndarray] = field(default_factory=list)   # bool (M,) per segment
     edges: list[Edge] = field(default_factory=list)
     passband_columns: np.ndarray | None = None                        # bool (M,)
@@ -113,7 +113,7 @@ def crossings(f_hz: np.ndarray, gain_db: np.ndarray, level_db: float, response: 
     return out
 
 
-def build_grids(frequency_hz: np.ndarray, response: ResponseType, mask: Mask | None, f3_nominal: list[float],
+def build_grids(frequency_hz: np.ndarray, response: ResponseType, criteria: Criteria | None, f3_nominal: list[float],
                 window: float, sensitivity_hz: np.ndarray) -> Grids:
     """Assemble the metric grid and the mask's index maps.
 
@@ -122,7 +122,8 @@ def build_grids(frequency_hz: np.ndarray, response: ResponseType, mask: Mask | N
     frequency_hz : ndarray (F,)
         The caller's grid, Hz, increasing.
     response : ResponseType
-    mask : Mask or None
+    criteria : Criteria or None
+        The requirement's segments (their edges join the metric grid).
     f3_nominal : list of float
         Nominal 3 dB frequencies (Hz) to surround with a dense window.
     window : float
@@ -136,10 +137,10 @@ def build_grids(frequency_hz: np.ndarray, response: ResponseType, mask: Mask | N
     for f3 in f3_nominal:
         extra.append(np.geomspace(f3 / (1.0 + w), f3 * (1.0 + w), WINDOW_POINTS))
     edge_list = []
-    if mask is not None:
-        for i, seg in enumerate(mask.segments):
-            band = "passband" if seg.is_passband else "stopband"
-            for e in (seg.start_hz, seg.stop_hz):
+    if criteria is not None:
+        for i, lim in enumerate(criteria.limits):
+            band = lim.band.value
+            for e in (lim.start_hz, lim.stop_hz):
                 if math.isfinite(e) and e > 0:
                     edge_list.append((float(e), band, i))
         extra.append(np.array([e for e, _, _ in edge_list], dtype=float))
@@ -152,17 +153,17 @@ def build_grids(frequency_hz: np.ndarray, response: ResponseType, mask: Mask | N
     extra_hz = metric[others]
     order = np.argsort(np.concatenate([f, extra_hz]), kind="stable")
     g = Grids(frequency_hz=f, shifted_hz=shifted(f), metric_hz=metric, caller_columns=cols, extra_hz=extra_hz,
-              order=order, response=response, mask=mask, sensitivity_hz=np.asarray(sensitivity_hz, dtype=float))
-    if mask is not None:
+              order=order, response=response, criteria=criteria, sensitivity_hz=np.asarray(sensitivity_hz, dtype=float))
+    if criteria is not None:
         top = metric[-1]
         pb = np.zeros(metric.size, dtype=bool)
-        for seg in mask.segments:
-            stop = seg.stop_hz if math.isfinite(seg.stop_hz) else top
-            inside = (metric >= seg.start_hz) & (metric <= stop)
-            if seg.start_hz > 0 or 0.0 not in metric:
+        for lim in criteria.limits:
+            stop = lim.stop_hz if math.isfinite(lim.stop_hz) else top
+            inside = (metric >= lim.start_hz) & (metric <= stop)
+            if lim.start_hz > 0 or 0.0 not in metric:
                 inside &= metric > 0
             g.segment_columns.append(inside)
-            if seg.is_passband:
+            if lim.band is Band.PASSBAND:
                 pb |= inside
         g.passband_columns = pb if pb.any() else None
         g.edges = [Edge(e, band, i, int(np.searchsorted(metric, e))) for e, band, i in edge_list]

@@ -68,7 +68,6 @@ class TrialFigures:
     reference_gain_db: np.ndarray          # (T,)
     f3db_hz: np.ndarray                    # (T,) or (T, 2)
     ripple_db: np.ndarray | None           # (T,)
-    margins_db: np.ndarray | None          # (T, S)
     edge_gain_db: np.ndarray               # (T, E)
 
 
@@ -92,7 +91,6 @@ class _Figures:
         self.f3 = np.empty((trials, 2) if band else trials)
         has_pb = grids.passband_columns is not None
         self.rip = np.empty(trials) if has_pb else None
-        self.marg = np.empty((trials, len(grids.segment_columns))) if grids.mask is not None else None
         self.edge = np.empty((trials, len(grids.edges)))
         self.edge_cols = np.array([e.column for e in grids.edges], dtype=int)
 
@@ -102,13 +100,11 @@ class _Figures:
         self.f3[sl] = fig.f3db(g, ref, self.g)
         if self.rip is not None:
             self.rip[sl] = fig.ripple(g, self.g)
-        if self.marg is not None:
-            self.marg[sl] = fig.margins(g, ref, self.g)
         if self.edge_cols.size:
             self.edge[sl] = g[:, self.edge_cols]
 
     def result(self) -> TrialFigures:
-        return TrialFigures(self.ref, self.f3, self.rip, self.marg, self.edge)
+        return TrialFigures(self.ref, self.f3, self.rip, self.edge)
 
 
 class _Engine:

@@ -54,7 +54,8 @@ class ToleranceResult:
         Distribution per part kind.
     seed : int
     temperature : dict or None
-    mask : Mask or None
+    criteria : Criteria or None
+        The requirement each trial was verified against (``mask`` in the reply).
     notes : dict
         How figures were computed (methods, tile size, frequency blocks).
     """
@@ -73,7 +74,7 @@ class ToleranceResult:
     seed: int
     temperature: dict | None
     trial_count: int
-    mask: object = None
+    criteria: object = None
     notes: dict = field(default_factory=dict)
 
     def as_dict(self) -> dict:
@@ -93,7 +94,7 @@ class ToleranceResult:
             "distribution": dict(self.distribution),
             "seed": self.seed,
             "temperature": self.temperature,
-            "mask": None if self.mask is None else self.mask.as_dict(),
+            "mask": None if self.criteria is None else _criteria_json(self.criteria),
             "notes": dict(self.notes),
         }
 
@@ -138,23 +139,13 @@ class ToleranceResult:
         ax.plot(x, self.nominal_magnitude_db[keep], color="k", lw=0.8, ls="--", label="nominal")
         top = float(np.max(m[6])) if m.size else 0.0
         y_lo = max(float(np.min(m[0])) if m.size else -100.0, top - 140.0)
-        if self.mask is not None and x.size:
+        if self.criteria is not None and x.size:
+            from service.response.plotting import _draw_limits
+
             ref = self.notes.get("nominal_reference_gain_db", 0.0)
-            if self.mask.reference_gain_db is not None:
-                ref = self.mask.reference_gain_db
-            for seg in self.mask.segments:
-                a = max(seg.start_hz, x[0])
-                b = min(seg.stop_hz, x[-1]) if math.isfinite(seg.stop_hz) else x[-1]
-                if not b > a:
-                    continue
-                if seg.max_loss_db is not None:
-                    ax.fill_between([a, b], [ref - seg.max_loss_db] * 2, [y_lo - 10] * 2, color="tab:red",
-                                    alpha=0.12, lw=0)
-                    ax.plot([a, b], [ref - seg.max_loss_db] * 2, color="tab:red", lw=1.0)
-                if seg.min_loss_db is not None:
-                    ax.fill_between([a, b], [ref - seg.min_loss_db] * 2, [top + 10] * 2, color="tab:red",
-                                    alpha=0.12, lw=0)
-                    ax.plot([a, b], [ref - seg.min_loss_db] * 2, color="tab:red", lw=1.0)
+            if self.criteria.reference_gain_db is not None:
+                ref = self.criteria.reference_gain_db
+            _draw_limits(ax, self.criteria.limits, ref, float(x[0]), float(x[-1]), y_lo - 10)
         if log_x:
             ax.set_xscale("log")
         ax.set_ylim(y_lo - 5, top + 5)
@@ -169,6 +160,18 @@ class ToleranceResult:
         buf = io.BytesIO()
         fig.savefig(buf, format="svg", metadata={"Date": None})
         return buf.getvalue()
+
+
+def _criteria_json(criteria) -> dict:
+    """The verified segments (and delay limit) as plain JSON; open ends as null."""
+    return {
+        "segments": [{"band": lim.band.value, "start_hz": lim.start_hz,
+                      "stop_hz": lim.stop_hz if math.isfinite(lim.stop_hz) else None, "limit_db": lim.limit_db,
+                      "open_end": lim.open_end} for lim in criteria.limits],
+        "group_delay": None if criteria.delay is None else {"stop_hz": criteria.delay.stop_hz,
+                                                            "max_deviation_pct": criteria.delay.max_deviation_pct},
+        "reference_gain_db": criteria.reference_gain_db,
+    }
 
 
 __all__ = ["ToleranceResult"]

@@ -1,4 +1,9 @@
-"""``run_tolerance``: Monte Carlo, sensitivity, worst case and yield of a design document."""
+"""``run_tolerance``: Monte Carlo, sensitivity, worst case and yield of a realized design.
+
+The yield counts the trials the verifier (:func:`service.response.verification.verify`)
+finds meeting the criteria on the whole band -- each trial's circuit, with its
+part values and op-amp models, judged exactly as a design is.
+"""
 
 from __future__ import annotations
 
@@ -10,9 +15,9 @@ import numpy as np
 from service.approximation.types import ResponseType
 from service.circuit import ac_response
 from service.errors import LimitExceeded
-from service.realization.analysis import cascade_circuit
-from service.realization.document import plans_from_document
-from service.response import Mask, resolve_frequencies
+from service.realization.analysis import StagePlan, cascade_circuit, design_roots
+from service.response import resolve_frequencies
+from service.response.verification import Band, Criteria, verify
 from service.response.metrics import infer_response_type
 from service.tolerance import figures as fig
 from service.tolerance.errors import ToleranceError
@@ -29,6 +34,8 @@ DEFAULT_MAX_TRIALS = 100_000
 DEFAULT_MEMORY_LIMIT_BYTES = 512 * 2**20
 #: Most trials whose values and figures are returned one by one.
 MAX_INCLUDED_TRIALS = 1000
+#: How closely a trial's worst margin is located (dB); its pass/fail is proved to 1e-9 dB regardless.
+TRIAL_PRECISION_DB = 1e-3
 #: Points of the dense nominal sweep that places the 3 dB windows.
 NOMINAL_POINTS = 2000
 
@@ -39,28 +46,35 @@ def _int(value, name: str, lo: int) -> int:
     return int(value)
 
 
-def _response_type(document: dict, f: np.ndarray, g: np.ndarray) -> ResponseType:
+def _response_type(response: str | None, f: np.ndarray, g: np.ndarray) -> ResponseType:
     try:
-        return ResponseType(document.get("response"))
+        return ResponseType(response)
     except ValueError:
         return infer_response_type(float(g[0]), float(g[-1]), float(np.max(g)))
 
 
-def run_tolerance(document: dict, *, trials: int = DEFAULT_TRIALS, seed: int = 0,
+def run_tolerance(plans: list[StagePlan], *, draw_order: Sequence[str] = (), response: str | None = None,
+                  trials: int = DEFAULT_TRIALS, seed: int = 0,
                   distribution: str | dict = "gaussian", temperature: dict | None = None,
                   tempco_ppm_per_c: dict | None = None, gbw_spread: float | None = None,
-                  frequencies_hz, mask: Mask | None = None, sensitivity_frequencies_hz: Sequence[float] = (),
+                  frequencies_hz, criteria: Criteria | None = None, sensitivity_frequencies_hz: Sequence[float] = (),
                   include_trials: int = 0, memory_limit_bytes: int = DEFAULT_MEMORY_LIMIT_BYTES,
                   max_trials: int = DEFAULT_MAX_TRIALS, max_frequency_points: int = 10_000,
-                  chunk_trials: int | None = None, store_budget_bytes: int | None = None) -> ToleranceResult:
+                  chunk_trials: int | None = None, store_budget_bytes: int | None = None,
+                  precision_db: float = TRIAL_PRECISION_DB) -> ToleranceResult:
     """Monte Carlo analysis, sensitivities, worst case and yield of a design.
 
     Parameters
     ----------
-    document : dict
-        A design document (see :mod:`service.realization.document`); each
-        part's ``tolerance`` (relative) or the default of its kind
-        (:data:`service.tolerance.sampling.DEFAULT_TOLERANCE`: 1 % R, 5 % C).
+    plans : list of StagePlan
+        The design's stages; each part's ``tolerance`` (relative) or the
+        default of its kind (:data:`service.tolerance.sampling.DEFAULT_TOLERANCE`:
+        1 % R, 5 % C).
+    draw_order : sequence of str
+        Refs of the passive parts in the order their deviates are drawn
+        (the design document's order); parts not listed follow.
+    response : str or None
+        The response type (inferred from the nominal response when None).
     trials : int
         Monte Carlo trials, 1 ... ``max_trials``.
     seed : int
@@ -80,10 +94,10 @@ def run_tolerance(document: dict, *, trials: int = DEFAULT_TRIALS, seed: int = 0
         ``opamp``; only op-amps with a ``gbw_hz`` vary.
     frequencies_hz : array_like or FrequencyGrid
         Grid (Hz) of the percentiles; should contain the mask edges.
-    mask : Mask or None
-        Requirement mask for the yield, ripple, attenuation and worst case.
+    criteria : Criteria or None
+        The requirement for the yield (verified per trial), ripple, attenuation and worst case.
     sensitivity_frequencies_hz : sequence of float
-        Frequencies (Hz) of the magnitude sensitivities; default the mask edges.
+        Frequencies (Hz) of the magnitude sensitivities; default the requirement's edges.
     include_trials : int
         Return the values and figures of the first N trials (N <= 1000).
     memory_limit_bytes : int
@@ -97,6 +111,9 @@ def run_tolerance(document: dict, *, trials: int = DEFAULT_TRIALS, seed: int = 0
         Bound of the per-frequency stores (default 160 MiB); larger runs are
         split into frequency blocks.  Numbers are identical for a given
         budget (see :mod:`service.tolerance.montecarlo`).
+    precision_db : float
+        How closely each trial's worst margin is located (dB); the pass/fail of
+        a trial is proved to the verifier's tolerance whatever this is.
 
     Returns
     -------
@@ -121,15 +138,14 @@ def run_tolerance(document: dict, *, trials: int = DEFAULT_TRIALS, seed: int = 0
     if chunk_trials is not None:
         chunk_trials = _int(chunk_trials, "chunk_trials", 1)
     memory_limit_bytes = _int(memory_limit_bytes, "memory_limit_bytes", 2**20)
-    if mask is not None and not isinstance(mask, Mask):
-        raise ToleranceError("mask must be a Mask", field="mask")
+    if criteria is not None and not isinstance(criteria, Criteria):
+        raise ToleranceError("criteria must be a Criteria", field="mask")
     f = resolve_frequencies(frequencies_hz, max_frequency_points)
     dist = resolve_distribution(distribution)
     temp = resolve_temperature(temperature)
 
-    plans, _ = plans_from_document(document)
     circuit = cascade_circuit(plans)
-    parts = varied_parts(plans, document, dist, tempco_ppm_per_c, gbw_spread)
+    parts = varied_parts(plans, draw_order, dist, tempco_ppm_per_c, gbw_spread)
     samples = draw(parts, trials, seed, temp)
 
     # nominal sweep: response type and where the 3 dB windows go
@@ -137,23 +153,23 @@ def run_tolerance(document: dict, *, trials: int = DEFAULT_TRIALS, seed: int = 0
     lo, hi = (pos.min(), pos.max()) if pos.size else (1.0, 1e6)
     dense = np.unique(np.concatenate([np.geomspace(lo, hi, NOMINAL_POINTS), f]))
     g_dense = fig.gain_db(ac_response(circuit, dense, output="out"))[0]
-    response = _response_type(document, dense, g_dense)
+    response = _response_type(response, dense, g_dense)
     if sensitivity_frequencies_hz is None or len(sensitivity_frequencies_hz) == 0:
-        sens_f = np.array(sorted({e for s in (mask.segments if mask else ()) for e in (s.start_hz, s.stop_hz)
+        sens_f = np.array(sorted({e for s in (criteria.limits if criteria else ()) for e in (s.start_hz, s.stop_hz)
                                   if math.isfinite(e) and e > 0}))
     else:
         sens_f = np.asarray(sensitivity_frequencies_hz, dtype=float).ravel()
         if not np.all(np.isfinite(sens_f) & (sens_f > 0)):
             raise ToleranceError("sensitivity_frequencies_hz must be positive frequencies (Hz)",
                                  field="sensitivity_frequencies_hz")
-    pre = build_grids(dense, response, mask, [], 0.0, sens_f)
+    pre = build_grids(dense, response, criteria, [], 0.0, sens_f)
     g_pre = fig.gain_db(ac_response(circuit, pre.metric_hz, output="out"))
     ref_pre = fig.reference_gain(g_pre, pre)
     pos_pre = pre.metric_hz > 0
     f3_nom = crossings(pre.metric_hz[pos_pre], g_pre[0, pos_pre], float(ref_pre[0]) - HALF_POWER_DB, response)
     span = max([p.tolerance + p.tempco_ppm_per_c * 1e-6 * (0 if temp is None else max(
         abs(temp[0] - REFERENCE_TEMPERATURE_C), abs(temp[1] - REFERENCE_TEMPERATURE_C))) for p in parts] + [0.0])
-    grids = build_grids(f, response, mask, f3_nom, 4.0 * span, sens_f)
+    grids = build_grids(f, response, criteria, f3_nom, 4.0 * span, sens_f)
 
     h_nom = ac_response(circuit, grids.metric_hz, output="out")
     g_nom = fig.gain_db(h_nom)
@@ -185,23 +201,37 @@ def run_tolerance(document: dict, *, trials: int = DEFAULT_TRIALS, seed: int = 0
         stage_figs.append((a["f0_hz"], a["q"] if plan.section.order == 2 else None))
         metrics.setdefault("stages", []).append(entry)
 
-    # yield
+    # yield: every trial verified on the whole band, as a design is
     yld = None
-    if mask is not None:
-        ok = fig.passes(tf.margins_db)                                     # (T, S)
-        passed = ok.all(axis=1)
+    verdicts = None
+    if criteria is not None:
+        roots = design_roots(plans, samples.values)
+        verdicts = verify(roots, criteria, precision_db=precision_db)
+        ok = verdicts.segment_met()                                         # (T, S)
+        passed = verdicts.meets()
         n_pass = int(passed.sum())
         lo_ci, hi_ci = wilson_interval(n_pass, trials)
         fails = []
-        for j, seg in enumerate(mask.segments):
-            d = seg.as_dict()
-            d.update(segment=j, band="passband" if seg.is_passband else "stopband", failures=int((~ok[:, j]).sum()),
-                     worst_margin_db=float(np.min(tf.margins_db[:, j])))
-            fails.append(d)
-        fails.sort(key=lambda r: (-r["failures"], r["segment"]))
+        for j, lim in enumerate(criteria.limits):
+            margins = verdicts.margin_db[:, j]
+            fails.append({
+                "segment": j, "band": lim.band.value, "start_hz": lim.start_hz,
+                "stop_hz": lim.stop_hz if math.isfinite(lim.stop_hz) else None, "limit_db": lim.limit_db,
+                "failures": int((~ok[:, j] & verdicts.stable).sum()),
+                "worst_margin_db": float(np.nanmin(margins)) if np.isfinite(margins).any() else None})
+        if criteria.delay is not None:
+            dm = verdicts.delay_margin_pct
+            fails.append({"segment": None, "band": "group_delay", "start_hz": 0.0, "stop_hz": criteria.delay.stop_hz,
+                          "limit_pct": criteria.delay.max_deviation_pct,
+                          "failures": int(((dm < 0) & verdicts.stable).sum()),
+                          "worst_margin_pct": float(np.nanmin(dm)) if np.isfinite(dm).any() else None})
+        unstable = int((~verdicts.stable).sum())
+        fails.sort(key=lambda r: (-r["failures"], -1 if r["segment"] is None else r["segment"]))
         yld = {"fraction": n_pass / trials, "ci95_low": lo_ci, "ci95_high": hi_ci, "trials": trials,
-               "passed": n_pass, "failures_by_criterion": fails,
-               "interval": "Wilson score, 95 % (E. B. Wilson, JASA 22 (1927) 209-212)"}
+               "passed": n_pass, "unstable": unstable, "failures_by_criterion": fails,
+               "unresolved": int(np.sum(np.nan_to_num(verdicts.unresolved_db) > 0)),
+               "interval": "Wilson score, 95 % (E. B. Wilson, JASA 22 (1927) 209-212)",
+               "verdict": "each trial verified on the whole band like a design (stability, every segment, delay)"}
 
     # sensitivity and worst case (nominal values, 25 degC)
     edge_f = np.array([e.frequency_hz for e in grids.edges])
@@ -230,9 +260,10 @@ def run_tolerance(document: dict, *, trials: int = DEFAULT_TRIALS, seed: int = 0
         r["edges"] = [{"frequency_hz": e.frequency_hz, "band": e.band, "gain_db": float(tf.edge_gain_db[i, j]),
                        "loss_db": float(edge_loss[i, j])} for j, e in enumerate(grids.edges)]
         r["stages"] = [{"f0_hz": float(f0[i]), "q": None if q is None else float(q[i])} for f0, q in stage_figs]
-        if mask is not None:
-            r["margins_db"] = [float(x) for x in tf.margins_db[i]]
-            r["passes"] = bool(ok[i].all())
+        if verdicts is not None:
+            r["margins_db"] = [_finite_or_none(x) for x in verdicts.margin_db[i]]
+            r["stable"] = bool(verdicts.stable[i])
+            r["passes"] = bool(passed[i])
         else:
             r["passes"] = None
         rows.append(r)
@@ -244,7 +275,8 @@ def run_tolerance(document: dict, *, trials: int = DEFAULT_TRIALS, seed: int = 0
         "sensitivity": "central differences (h = 1e-4) with the circuit engine",
         "gaussian": "tolerance read as 3 sigma, deviates truncated at 6 sigma",
         "percentiles": "Hyndman and Fan (1996) definition 7",
-        "mask_check": "on the caller's grid, the mask edges and the dense 3 dB windows",
+        "verdict": "per trial, the whole-band verifier of the designs (interval bounds on each trial's poles and "
+                   f"zeros), margins located to {precision_db:g} dB, pass/fail proved to 1e-9 dB",
         "engine_tile_trials": sweep.tile,          # default trials per chunk (speed only)
         "frequency_blocks": sweep.blocks,
         "reference_temperature_c": REFERENCE_TEMPERATURE_C,
@@ -254,7 +286,7 @@ def run_tolerance(document: dict, *, trials: int = DEFAULT_TRIALS, seed: int = 0
         frequency_hz=f, magnitude_db=sweep.magnitude_db, phase_deg=sweep.phase_deg,
         group_delay_s=sweep.group_delay_s, nominal_magnitude_db=g_nom[0, grids.caller_columns],
         metrics=metrics, yield_=yld, sensitivity=sens, worst_case=wc, trials=rows, distribution=dist, seed=seed,
-        temperature=temp_out, trial_count=trials, mask=mask, notes=notes)
+        temperature=temp_out, trial_count=trials, criteria=criteria, notes=notes)
 
 
 def _finite_or_none(x) -> float | None:

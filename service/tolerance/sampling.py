@@ -180,16 +180,16 @@ def _tempco(comp, overrides: Mapping[str, float]) -> float:
     return DEFAULT_TEMPCO_PPM_PER_C.get(d, DEFAULT_TEMPCO_PPM_PER_C["capacitor"])
 
 
-def varied_parts(plans, document: dict, distribution: dict[str, str], tempco_ppm_per_c=None,
+def varied_parts(plans, draw_order, distribution: dict[str, str], tempco_ppm_per_c=None,
                  gbw_spread: float | None = None) -> list[VariedPart]:
     """The parts that vary, in the fixed draw order (see the module notes).
 
     Parameters
     ----------
     plans : list of StagePlan
-        From :func:`service.realization.document.plans_from_document`.
-    document : dict
-        The design document (its component order fixes the draw order).
+        The design's stages.
+    draw_order : sequence of str
+        Refs of the passive parts in document order (fixes the draw order); unlisted parts follow.
     distribution : dict of str to str
         From :func:`resolve_distribution`.
     tempco_ppm_per_c : mapping or None
@@ -202,11 +202,7 @@ def varied_parts(plans, document: dict, distribution: dict[str, str], tempco_ppm
     for k, plan in enumerate(plans):
         for c in plan.components:
             by_ref[c.ref] = (k, c)
-    order = []
-    for st in document.get("stages", []):
-        for c in st.get("components", []):
-            if isinstance(c, dict) and c.get("ref") in by_ref:
-                order.append(c["ref"])
+    order = [r for r in draw_order if r in by_ref]
     order += [r for r in by_ref if r not in order]
     known_dielectrics = {(c.dielectric or "").upper() for _, c in by_ref.values() if c.kind == "capacitor"}
     overrides: dict[str, float] = {}

@@ -109,3 +109,22 @@ def test_transient_helper_rc_step():
     assert t[-1] == pytest.approx(5e-3)
     sel = t > 1e-4
     np.testing.assert_allclose(v["out"][sel], 1 - np.exp(-t[sel] / (r * c)), atol=2e-3)
+
+
+def test_supply_and_dc_sources_in_the_subcircuit():
+    from service.circuit import OpAmpSources
+    ckt = sallen_key_lowpass(None).with_opamp_sources({"U1": OpAmpSources(vos_v=-2e-3, ib_a=15e-9)})
+    ckt.add_supply("VPOS", "vp", "0", 5.0)
+    ckt.add_resistor("RB", "vp", "0", 10e3)
+    net = to_spice(ckt, op=True)
+    lines = net.splitlines()
+    assert "VPOS vp 0 DC 5" in lines
+    assert ".op" in lines and ".ac dec 125 10 100k" in lines
+    # the ideal op-amp gets its own subcircuit with the offset in series with + and the bias currents
+    assert ".subckt OPAMP_IDEAL inp inn out" in lines
+    assert "VOS inp_v inp DC -2m" in lines and "IBP inp 0 DC 15n" in lines and "IBN inn 0 DC 15n" in lines
+    assert f"E1 out 0 inp_v inn {format_value(1e9)}" in lines
+    assert ".temp" not in net                       # no noise generators, no noise analysis
+    with pytest.raises(CircuitError) as err:
+        to_spice(ckt, noise=("log", 10, 1.0, 10.0))
+    assert err.value.field == "noise"

@@ -7,7 +7,10 @@ from webargs.fields import DelimitedList
 
 from service.api.fields import Quantity, StrictInteger
 from service.api.schemas.common import ReplySchema, StrictSchema, one_of
-from service.approximation import CutoffAt, Excess, Family, ResponseType, SectionKind, SectionOrder
+from service.approximation import CutoffAt, Excess, Family, GroupDelayLimit, ResponseType, SectionKind, SectionOrder
+from service.workflows import Requirement
+from service.workflows import limits as L
+from service.workflows.requirement import OPEN_PASSBAND_FACTOR
 
 BAND_RESPONSES = {"bandpass", "bandstop"}
 
@@ -84,9 +87,16 @@ class FilterSchema(StrictSchema):
                        "Chebyshev II and elliptic."})
     excess = one_of(Excess, load_default="stopband",
                     description="Requirement designs: where the excess selectivity of the integer order goes.")
+    passband_upper_hz = Quantity(unit="Hz", validate=FREQ_RANGE, metadata={
+        "description": "Requirement, highpass and bandstop: where the open passband's check ends (Hz). Default "
+                       f"{OPEN_PASSBAND_FACTOR:g} x the passband edge; with the default, real op-amps may end the "
+                       "passband earlier (reported, not a failure); a stated value is checked as stated."})
     group_delay = ma.fields.Nested(GroupDelayLimitSchema, metadata={
-        "description": "Bessel requirement: a limit on group-delay deviation from its DC value."})
-    section_order = one_of(SectionOrder, load_default="ascending_q", description="Order of the sections.")
+        "description": "Bessel lowpass requirement: a limit on the group delay's deviation from its DC value up to "
+                       "a frequency, verified on the circuit."})
+    section_order = one_of(SectionOrder, load_default="ascending_q", description=(
+        "Order of the sections: `ascending_q`, `descending_q`, `as_computed` (as the approximation lists them), "
+        "`max_dynamic_range` (designs: the order that maximizes the undistorted output over the noise)."))
 
     @ma.validates_schema
     def _one_way_of_asking(self, data, **kwargs):
@@ -112,6 +122,20 @@ class FilterSchema(StrictSchema):
                                      "stopband_attenuation_db", "_schema")
 
 
+REQUIREMENT_KEYS = ("response", "family", "order", "cutoff_hz", "cutoff_at", "passband_hz", "stopband_hz",
+                    "passband_ripple_db", "stopband_attenuation_db", "passband_upper_hz", "group_delay", "excess",
+                    "section_order")
+
+
+def requirement_from(data: dict) -> Requirement:
+    """The typed requirement of loaded filter fields (the workflow checks its sense: edges, limits)."""
+    fields = {k: data[k] for k in REQUIREMENT_KEYS if data.get(k) is not None}
+    gd = fields.get("group_delay")
+    if gd is not None:
+        fields["group_delay"] = GroupDelayLimit(gd["frequency_hz"], gd["max_deviation_pct"])
+    return Requirement(**fields)
+
+
 def _check_pair(data: dict, name: str, band: bool) -> None:
     is_pair = isinstance(data[name], tuple)
     if band and not is_pair:
@@ -120,7 +144,7 @@ def _check_pair(data: dict, name: str, band: bool) -> None:
         raise ma.ValidationError({name: ["a lowpass or highpass needs one frequency, not a pair"]})
 
 
-SECTION_FREQ_RANGE = ma.validate.Range(min=1e-6, max=1e13)
+SECTION_FREQ_RANGE = ma.validate.Range(min=L.SECTION_FREQUENCY_RANGE_HZ[0], max=L.SECTION_FREQUENCY_RANGE_HZ[1])
 
 
 class SectionSchema(StrictSchema):
@@ -131,11 +155,11 @@ class SectionSchema(StrictSchema):
     order = StrictInteger(required=True, validate=ma.validate.OneOf([1, 2]))
     f0_hz = Quantity(unit="Hz", required=True, validate=SECTION_FREQ_RANGE,
                      metadata={"description": "Pole frequency (Hz)."})
-    q = ma.fields.Float(allow_none=True, validate=ma.validate.Range(min=1e-9, max=1e6),
+    q = ma.fields.Float(allow_none=True, validate=ma.validate.Range(min=L.SECTION_Q_RANGE[0], max=L.SECTION_Q_RANGE[1]),
                         metadata={"description": "Pole Q (null for first order)."})
     fz_hz = Quantity(unit="Hz", allow_none=True, validate=SECTION_FREQ_RANGE,
                      metadata={"description": "Zero frequency (Hz) of the notch kinds, else null."})
-    gain = ma.fields.Float(required=True, validate=ma.validate.Range(min=-1e12, max=1e12),
+    gain = ma.fields.Float(required=True, validate=ma.validate.Range(min=-L.MAX_SECTION_GAIN, max=L.MAX_SECTION_GAIN),
                            metadata={"description": "Gain g of the standard form."})
 
 
@@ -219,6 +243,8 @@ class CompareRequestSchema(StrictSchema):
     stopband_hz = FrequencyOrPair(required=True, metadata={"description": "Stopband edge (Hz) or pair."})
     passband_ripple_db = ma.fields.Float(required=True, validate=_RIPPLE)
     stopband_attenuation_db = ma.fields.Float(required=True, validate=_ATTEN)
+    passband_upper_hz = Quantity(unit="Hz", validate=FREQ_RANGE, metadata={
+        "description": "Highpass and bandstop: where the open passband's check ends (Hz); default 10 x its edge."})
     overshoot_limit_pct = ma.fields.Float(validate=ma.validate.Range(min=0, max=100), metadata={
         "description": "Recommend only a family whose step overshoot stays within this (%)."})
     group_delay_variation_limit_s = Quantity(unit="s", validate=ma.validate.Range(min=0, max=1e3), metadata={

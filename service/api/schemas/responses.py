@@ -9,8 +9,12 @@ from service.api.schemas.common import ReplySchema, StrictSchema, one_of
 from service.api.schemas.designs import DesignDocumentSchema
 from service.api.schemas.filters import (
     BAND_RESPONSES, FREQ_RANGE, FilterSchema, FrequencyOrPair, SectionSchema, _ATTEN, _RIPPLE, _check_pair,
+    requirement_from,
 )
-from service.approximation import CutoffAt, Family, ResponseType
+from service.api.schemas.verdicts import VerdictSchema
+from service.approximation import CutoffAt, Family, ResponseType, Section, SectionKind
+from service.response import FrequencyGrid, TimeGrid
+from service.workflows import DesignDocument, MaskSegment, Requirement, ResponseRequest, Zpk
 
 MAX_LIST = 10_000
 _FREQ0 = ma.validate.Range(min=0, max=1e10)
@@ -19,8 +23,8 @@ _FREQ0 = ma.validate.Range(min=0, max=1e10)
 class FrequencyGridSchema(StrictSchema):
     start_hz = Quantity(unit="Hz", required=True, validate=_FREQ0, metadata={"description": "First frequency (Hz)."})
     stop_hz = Quantity(unit="Hz", required=True, validate=FREQ_RANGE, metadata={"description": "Last frequency (Hz)."})
-    points = StrictInteger(load_default=501, validate=ma.validate.Range(min=2, max=MAX_LIST), metadata={
-        "description": "Number of points, at most ROLLOFF_MAX_FREQUENCY_POINTS."})
+    points = StrictInteger(load_default=501, validate=ma.validate.Range(min=2), metadata={
+        "description": "Number of points, at most ROLLOFF_MAX_FREQUENCY_POINTS (see the catalog)."})
     spacing = one_of(["log", "linear"], load_default="log", description="`log` (start_hz > 0) or `linear`.")
 
     @ma.validates_schema
@@ -37,7 +41,7 @@ class FrequenciesField(ma.fields.Field):
 
     def __init__(self, **kwargs):
         self._grid = ma.fields.Nested(FrequencyGridSchema)
-        self._list = ma.fields.List(Quantity(unit="Hz", validate=_FREQ0), validate=ma.validate.Length(min=1, max=MAX_LIST))
+        self._list = ma.fields.List(Quantity(unit="Hz", validate=_FREQ0), validate=ma.validate.Length(min=1))
         super().__init__(**kwargs)
 
     def _deserialize(self, value, attr, data, **kwargs):
@@ -53,19 +57,20 @@ class FrequenciesField(ma.fields.Field):
     def openapi_properties(self) -> dict:
         item = Quantity(unit="Hz").openapi_properties() | {"minimum": 0, "maximum": 1e10}
         return {"oneOf": [{"$ref": "#/components/schemas/FrequencyGrid"},
-                          {"type": "array", "items": item, "minItems": 1, "maxItems": MAX_LIST}]}
+                          {"type": "array", "items": item, "minItems": 1}]}
 
 
 class TimeGridSchema(StrictSchema):
     stop_s = Quantity(unit="s", validate=ma.validate.Range(min=1e-12, max=1e6, min_inclusive=False), metadata={
         "description": "End time (s); default: long enough for the slowest pole to settle."})
-    points = StrictInteger(validate=ma.validate.Range(min=2, max=MAX_LIST), metadata={
+    points = StrictInteger(validate=ma.validate.Range(min=2), metadata={
         "description": "Number of samples, at most ROLLOFF_MAX_TIME_POINTS; default: resolves the fastest pole."})
 
 
 class MaskSegmentSchema(StrictSchema):
     start_hz = Quantity(unit="Hz", required=True, validate=_FREQ0)
-    stop_hz = Quantity(unit="Hz", required=True, validate=FREQ_RANGE)
+    stop_hz = Quantity(unit="Hz", allow_none=True, validate=FREQ_RANGE, metadata={
+        "description": "Upper end (Hz); null or absent: to infinity (a stopband only)."})
     max_loss_db = ma.fields.Float(validate=ma.validate.Range(min=-200, max=400), metadata={
         "description": "Largest allowed loss in the band (a passband bound, dB)."})
     min_loss_db = ma.fields.Float(validate=ma.validate.Range(min=-200, max=400), metadata={
@@ -75,8 +80,11 @@ class MaskSegmentSchema(StrictSchema):
     def _bounds(self, data, **kwargs):
         if "max_loss_db" not in data and "min_loss_db" not in data:
             raise ma.ValidationError("a segment needs max_loss_db or min_loss_db", "max_loss_db")
-        if "start_hz" in data and "stop_hz" in data and not data["stop_hz"] > data["start_hz"]:
+        if data.get("start_hz") is not None and data.get("stop_hz") is not None \
+                and not data["stop_hz"] > data["start_hz"]:
             raise ma.ValidationError("stop_hz must be above start_hz", "stop_hz")
+        if data.get("stop_hz") is None and "max_loss_db" in data:
+            raise ma.ValidationError("a segment with max_loss_db needs a finite stop_hz", "stop_hz")
 
 
 class RequirementMaskSchema(StrictSchema):
@@ -85,6 +93,8 @@ class RequirementMaskSchema(StrictSchema):
     stopband_hz = FrequencyOrPair(required=True)
     passband_ripple_db = ma.fields.Float(required=True, validate=_RIPPLE)
     stopband_attenuation_db = ma.fields.Float(required=True, validate=_ATTEN)
+    passband_upper_hz = Quantity(unit="Hz", validate=FREQ_RANGE, metadata={
+        "description": "Highpass and bandstop: where the open passband's check ends (Hz); default 10 x its edge."})
 
     @ma.validates_schema
     def _pairs(self, data, **kwargs):
@@ -92,6 +102,23 @@ class RequirementMaskSchema(StrictSchema):
         for name in ("passband_hz", "stopband_hz"):
             if name in data:
                 _check_pair(data, name, band)
+
+
+def mask_from(spec: dict | None):
+    """A loaded ``mask`` field as the workflow's mask: a Requirement or a tuple of MaskSegment (None stays None)."""
+    if spec is None:
+        return None
+    if "requirement" in spec:
+        return Requirement(**spec["requirement"])
+    return tuple(MaskSegment(seg["start_hz"], seg.get("stop_hz"), seg.get("max_loss_db"), seg.get("min_loss_db"))
+                 for seg in spec["segments"])
+
+
+def frequencies_from(spec):
+    """A loaded ``frequencies`` field as a FrequencyGrid or a list of Hz (None stays None)."""
+    if isinstance(spec, dict):
+        return FrequencyGrid(spec["start_hz"], spec["stop_hz"], spec["points"], spec["spacing"])
+    return spec
 
 
 class MaskField(ma.fields.Field):
@@ -162,6 +189,26 @@ class ResponseRequestSchema(StrictSchema):
         if "poles" in data and "gain" not in data:
             raise ma.ValidationError({"gain": ["Missing data for required field."]})
 
+    @ma.post_load
+    def _typed(self, data, **kwargs):
+        if "filter" in data:
+            system = requirement_from(data["filter"])
+        elif "poles" in data:
+            system = Zpk(tuple(complex(*z) for z in data.get("zeros", [])),
+                         tuple(complex(*p) for p in data["poles"]), data["gain"])
+        elif "sections" in data:
+            system = tuple(Section(SectionKind(s["kind"]), s["order"], s["f0_hz"], s.get("q"), s.get("fz_hz"),
+                                   s["gain"]) for s in data["sections"])
+        else:
+            system = DesignDocument.from_json(data["design"], "design")
+        time = data.get("time")
+        return {"request": ResponseRequest(
+            system=system, frequencies=frequencies_from(data.get("frequencies")),
+            time=TimeGrid(time.get("stop_s"), time.get("points")) if time else None,
+            mask=mask_from(data.get("mask")), passband_hz=data.get("passband_hz"),
+            attenuation_at_hz=tuple(data.get("attenuation_at_hz") or ()), figure=data["format"] == "svg"),
+            "format": data["format"], "table": data["table"]}
+
 
 class ResponseQuerySchema(StrictSchema):
     """The by-order transfer function and a log grid as query parameters."""
@@ -175,7 +222,8 @@ class ResponseQuerySchema(StrictSchema):
     cutoff_at = one_of(CutoffAt, load_default="family", description="`family` or `-3db`.")
     start_hz = Quantity(unit="Hz", validate=FREQ_RANGE)
     stop_hz = Quantity(unit="Hz", validate=FREQ_RANGE)
-    points = ma.fields.Integer(load_default=501, validate=ma.validate.Range(min=2, max=MAX_LIST))
+    points = StrictInteger(load_default=501, validate=ma.validate.Range(min=2), metadata={
+        "description": "Number of points, at most ROLLOFF_MAX_FREQUENCY_POINTS."})
     format = one_of(["json", "csv", "svg"], load_default="json", description="`csv` or `svg` as for POST.")
     table = one_of(["frequency", "time"], load_default="frequency", description="Rows of the CSV table.")
 
@@ -224,24 +272,6 @@ class MetricsSchema(ma.Schema):
         "description": "Metrics that do not apply, with the reason."})
 
 
-class SegmentResultSchema(ma.Schema):
-    start_hz = ma.fields.Float()
-    stop_hz = ma.fields.Float(allow_none=True)
-    max_loss_db = ma.fields.Float(allow_none=True)
-    min_loss_db = ma.fields.Float(allow_none=True)
-    worst_margin_db = ma.fields.Float()
-    worst_frequency_hz = ma.fields.Float()
-    passed = ma.fields.Boolean(attribute="pass", data_key="pass")
-
-
-class MaskResultSchema(ma.Schema):
-    passed = ma.fields.Boolean(attribute="pass", data_key="pass", metadata={"description": "Every segment is met."})
-    worst_margin_db = ma.fields.Float(metadata={"description": "Smallest margin over all segments (dB)."})
-    worst_frequency_hz = ma.fields.Float(metadata={"description": "Where it occurs (Hz)."})
-    reference_gain_db = ma.fields.Float(allow_none=True)
-    segments = ma.fields.List(ma.fields.Nested(SegmentResultSchema))
-
-
 class ResponseSchema(ReplySchema):
     response_type = ma.fields.String()
     frequency_hz = ma.fields.List(ma.fields.Float())
@@ -251,7 +281,8 @@ class ResponseSchema(ReplySchema):
     step = ma.fields.Nested(TimeResponseSchema, allow_none=True)
     impulse = ma.fields.Nested(TimeResponseSchema, allow_none=True)
     metrics = ma.fields.Nested(MetricsSchema)
-    mask_result = ma.fields.Nested(MaskResultSchema, allow_none=True)
+    mask_result = ma.fields.Nested(VerdictSchema, allow_none=True, metadata={
+        "description": "With a mask: the verdict of the one verifier (the same as a design's)."})
     notes = ma.fields.List(ma.fields.String())
 
 

@@ -7,7 +7,8 @@ import marshmallow as ma
 from service.api.fields import Quantity, StrictInteger
 from service.api.schemas.common import ReplySchema, StrictSchema, one_of
 from service.api.schemas.designs import DesignDocumentSchema
-from service.api.schemas.responses import FrequenciesField, MaskField
+from service.api.schemas.responses import FrequenciesField, MaskField, frequencies_from, mask_from
+from service.workflows import DesignDocument, ToleranceRequest
 
 DISTRIBUTIONS = ["uniform", "gaussian"]
 
@@ -56,9 +57,10 @@ class TemperatureSchema(StrictSchema):
 class ToleranceRequestSchema(StrictSchema):
     design = ma.fields.Nested(DesignDocumentSchema, required=True, metadata={
         "description": "A design document from /v1/designs (each part's tolerance, or 1 % R / 5 % C)."})
-    trials = StrictInteger(load_default=1000, validate=ma.validate.Range(min=1, max=100_000), metadata={
-        "description": "Monte Carlo trials, at most ROLLOFF_MAX_TRIALS; trials x frequency points (at least 400) x (2 + the sum "
-                       "over stages of (op-amps in the stage)^2) at most ROLLOFF_MAX_WORK."})
+    trials = StrictInteger(load_default=1000, validate=ma.validate.Range(min=1), metadata={
+        "description": "Monte Carlo trials, at most ROLLOFF_MAX_TRIALS (see the catalog); the run's estimated work "
+                       "(trials x frequency points x the circuit's cost, plus each trial's verification) at most "
+                       "ROLLOFF_MAX_WORK — a problem over the limit says how many trials fit."})
     seed = StrictInteger(load_default=0, validate=ma.validate.Range(min=0, max=2**63 - 1), metadata={
         "description": "Same request and seed, same numbers."})
     distribution = DistributionField(load_default="gaussian", metadata={
@@ -76,7 +78,8 @@ class ToleranceRequestSchema(StrictSchema):
     frequencies = FrequenciesField(metadata={
         "description": "Grid of the percentiles: {start_hz, stop_hz, points, spacing} or a list (Hz); default 501 "
                        "log-spaced points around the stages' frequencies."})
-    mask = MaskField(metadata={"description": "Requirement mask for the yield (default: the design's requirement)."})
+    mask = MaskField(metadata={"description": "What each trial is verified against for the yield (default: the "
+                                              "design's requirement): requirement fields or segments."})
     sensitivity_frequencies_hz = ma.fields.List(
         Quantity(unit="Hz", validate=ma.validate.Range(min=0, max=1e10)), validate=ma.validate.Length(max=64),
         metadata={"description": "Where to report the magnitude sensitivities (default: the mask edges)."})
@@ -84,6 +87,17 @@ class ToleranceRequestSchema(StrictSchema):
         "description": "Return the sampled part values and figures of the first N trials."})
     format = one_of(["json", "csv", "svg"], load_default="json",
                     description="`csv`: percentiles per frequency; `svg`: the magnitude envelope with the mask.")
+
+    @ma.post_load
+    def _typed(self, data, **kwargs):
+        return {"request": ToleranceRequest(
+            document=DesignDocument.from_json(data["design"], "design"), trials=data["trials"], seed=data["seed"],
+            distribution=data["distribution"], temperature=data.get("temperature"),
+            tempco_ppm_per_c=data.get("tempco_ppm_per_c"), gbw_spread=data.get("gbw_spread"),
+            frequencies=frequencies_from(data.get("frequencies")), mask=mask_from(data.get("mask")),
+            sensitivity_frequencies_hz=tuple(data.get("sensitivity_frequencies_hz") or ()),
+            include_trials=data["include_trials"], figure=data["format"] == "svg"),
+            "format": data["format"]}
 
 
 class ToleranceSchema(ReplySchema):

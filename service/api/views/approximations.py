@@ -5,14 +5,13 @@ from __future__ import annotations
 from flask import current_app
 from flask.views import MethodView
 
-from service.api.dispatch import approximation_from_filter, check_limit
 from service.api.extension import Blueprint
 from service.api.formats import CSV_MEDIA_TYPE, alternative_content, csv_response
 from service.api.schemas.filters import (
     ApproximationQuerySchema, ApproximationRequestSchema, ApproximationSchema, ComparisonSchema,
-    CompareRequestSchema,
+    CompareRequestSchema, requirement_from,
 )
-from service.response import compare_families
+from service.workflows import approximate, compare
 
 blp = Blueprint("approximations", __name__, url_prefix="/v1/approximations",
                 description="Requirement or order to transfer function and sections.")
@@ -55,7 +54,7 @@ def _sections_table(approx) -> dict:
 
 
 def _answer(args):
-    approx = approximation_from_filter(args, current_app.config["ROLLOFF_SETTINGS"])
+    approx = approximate(requirement_from(args), current_app.config["ROLLOFF_SETTINGS"])
     if args.get("format") == "csv":
         return csv_response(_sections_table(approx), filename="sections.csv")
     return approx.as_dict()
@@ -113,11 +112,9 @@ class Compare(MethodView):
              **alternative_content(CSV_MEDIA_TYPE, schema="Comparison",
                                    description="The comparison (JSON) or a row per family (CSV)."))
     def post(self, args):
-        settings = current_app.config["ROLLOFF_SETTINGS"]
-        comparison = compare_families(
-            args["response"], args["passband_hz"], args["stopband_hz"], args["passband_ripple_db"],
-            args["stopband_attenuation_db"], overshoot_limit_pct=args.get("overshoot_limit_pct"),
-            group_delay_variation_limit_s=args.get("group_delay_variation_limit_s"), max_order=settings.max_order)
+        comparison = compare(requirement_from(args), current_app.config["ROLLOFF_SETTINGS"],
+                             overshoot_limit_pct=args.get("overshoot_limit_pct"),
+                             group_delay_variation_limit_s=args.get("group_delay_variation_limit_s"))
         if args.get("format") == "csv":
             return csv_response(comparison.table(), filename="compare.csv")
         return comparison.as_dict()

@@ -13,6 +13,15 @@ from service.api.schemas.common import ReplySchema, StrictSchema
 from service.approximation import ResponseType, SectionKind, all_family_info
 from service.components import SERIES, SERIES_TOLERANCE, series_mantissas
 from service.realization.topologies import describe_all
+from service.response.verification import TOLERANCE_DB
+from service.workflows.requirement import OPEN_BAND_RULE, REFERENCE_GAIN_RULE
+from service.realization.topologies import auto_topology
+
+
+def _auto_rule() -> str:
+    """How ``topology: auto`` chooses: the rule's own statement (its docstring's first paragraph)."""
+    doc = (auto_topology.__doc__ or "").strip().split("\n\n")[0]
+    return " ".join(doc.split())
 from service.version import API_VERSION, SERVICE_VERSION
 
 blp = Blueprint("catalog", __name__, url_prefix="/v1", description="What the service offers.")
@@ -56,6 +65,15 @@ class TopologySchema(ma.Schema):
     reference = ma.fields.String(metadata={"description": "Published source of its design equations."})
 
 
+class VerificationRulesSchema(ma.Schema):
+    reference = ma.fields.String(metadata={"description": "The gain loss is measured from."})
+    open_bands = ma.fields.String(metadata={"description": "How far open passbands and stopbands are checked."})
+    numerical_tolerance_db = ma.fields.Float(metadata={"description": "Margins within this of 0 dB are 0 (met)."})
+    method = ma.fields.String()
+    stage_numbering = ma.fields.String()
+    auto_topology = ma.fields.String(allow_none=True, metadata={"description": "How `topology: auto` chooses."})
+
+
 class CatalogSchema(ReplySchema):
     api_version = ma.fields.String()
     responses = ma.fields.List(ma.fields.String(), metadata={"description": "Response types."})
@@ -65,6 +83,9 @@ class CatalogSchema(ReplySchema):
     series = ma.fields.List(ma.fields.Nested(SeriesSchema))
     limits = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.Nested(LimitSchema))
     endpoints = ma.fields.List(ma.fields.String(), metadata={"description": "Operations this service answers."})
+    verification = ma.fields.Nested(VerificationRulesSchema, metadata={
+        "description": "What \"meets\" means, for every verdict the service gives (designs, edited documents, "
+                       "response masks, Monte Carlo trials)."})
 
 
 def build_catalog(settings) -> dict:
@@ -88,6 +109,15 @@ def build_catalog(settings) -> dict:
                     "values": list(series_mantissas(s))} for s in SERIES],
         "limits": settings.limits(),
         "endpoints": rules,
+        "verification": {
+            "reference": REFERENCE_GAIN_RULE, "open_bands": OPEN_BAND_RULE, "numerical_tolerance_db": TOLERANCE_DB,
+            "method": "every band checked whole: branch-and-bound over interval bounds of the gain and delay from the "
+                      "circuit's poles and zeros (with its op-amp models); a pole in the closed right half-plane "
+                      "makes the circuit unstable, meeting nothing",
+            "stage_numbering": "stage numbers count from 1 (fields named stage or number, and messages); field "
+                               "paths in problems count array entries from 0 (stages[0] is stage 1)",
+            "auto_topology": _auto_rule(),
+        },
     }
 
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 from flask import current_app
 from flask.views import MethodView
 
-from service.api.dispatch import design_approximation, design_document, evaluate
+from service.workflows import design, evaluate_json
 from service.api.extension import Blueprint
 from service.api.formats import CSV_MEDIA_TYPE, TEXT_MEDIA_TYPE, alternative_content, csv_response, text_response
 from service.api.schemas.common import StrictSchema, one_of
@@ -24,14 +24,30 @@ op-amp requirements of each stage (gain-bandwidth by the rule of thumb and exact
 from the single-pole macromodel, slew rate for `output_amplitude_v`), each stage
 output's peak gain (clipping risk), a BOM (`part_id`s returned), a SPICE netlist
 of the whole filter (`VIN in 0 AC 1`, output node `out`; runs in ngspice batch
-mode unchanged), a summary of achieved against required loss at each edge with
-the chosen parts, and `warnings`.
+mode unchanged), the `verdict` and `warnings`.
+
+The **verdict** is a proof about the circuit a board gets, with its snapped
+part values and op-amp models, against the requirement *as asked*: every
+passband and stopband is checked on the whole band (not at sample points) by a
+branch-and-bound over interval bounds of the gain computed from the circuit's
+poles and zeros; loss is measured from the largest passband gain; an open
+passband (highpass, bandstop) up to `passband_upper_hz` (default 10 × its edge;
+with the default, real op-amps may end it earlier: `ended_hz`, a warning, not a
+failure); stopbands up to infinity; a `group_delay` limit on the circuit's
+delay; and a circuit with a pole in the closed right half-plane is `unstable`
+and meets nothing. Margins within 1e-9 dB of 0 are 0; `meets` is exactly
+"worst margin ≥ 0". A missed segment says its cause (the transfer function, the
+snapped parts, or the op-amps). `summary` repeats `meets` with the loss at each
+edge. Stage numbers (`number`, warnings' `stage`, messages) count from 1; field
+paths in problems count array entries from 0 (`stages[0]` is stage 1).
 
 By requirement, the transfer function is computed for a tighter requirement
 than asked (`passband_margin_db`, default a quarter of the ripple, less passband
 loss; `stopband_margin_db`, default 2 dB, more stopband loss), so that the
-snapped part values still meet the requirement as asked; `summary` checks that.
-Set both margins to 0 for the minimum order of /v1/approximations.
+snapped part values still meet the requirement as asked, which the verdict
+checks. Set both margins to 0 for the minimum order of /v1/approximations. A
+design whose parts would leave the representable range (resistors
+0.01 Ω–10 GΩ, capacitors 1 fF–1 F, section gains up to 10⁶) is a 422.
 
 Achieved f0, Q and gain are read back from the circuit built with the chosen
 values (circuit engine), not from the design formulas.
@@ -73,6 +89,8 @@ EVALUATE_EXAMPLE = {
         ],
         "opamps": [{"ref": "U1", "role": "U1", "gbw_hz": "10MHz", "part_id": "PM7-U-OPA-GP"}],
     }],
+    "requirement": {"response": "lowpass", "passband_hz": "300Hz", "stopband_hz": "10kHz",
+                    "passband_ripple_db": 0.5, "stopband_attenuation_db": 35},
 }
 
 _DOC = alternative_content(CSV_MEDIA_TYPE, TEXT_MEDIA_TYPE, schema="Design",
@@ -100,20 +118,21 @@ class Designs(MethodView):
                       description="Invalid request, infeasible requirement, or parts that cannot realize it.")
     @blp.doc(summary="Design a filter with parts from stock", description=_DESCRIPTION, **_DOC)
     def post(self, args):
-        settings = current_app.config["ROLLOFF_SETTINGS"]
-        approximation = design_approximation(args, settings)
-        document = design_document(approximation, args, settings)
-        return _reply(document, args.get("format", "json"))
+        outcome = design(args["request"], current_app.config["ROLLOFF_SETTINGS"])
+        return _reply(outcome.as_dict(), args["format"])
 
 
 _EVALUATE_DESCRIPTION = """\
 A design document — as /v1/designs returned it, or edited (a value swapped for
 one in stock, a part's tolerance changed) — gives the achieved figures, BOM,
-netlist, summary and warnings again. Only `stages[*].section`, `topology`,
+netlist, verdict and warnings again. Only `stages[*].section`, `topology`,
 `strategy`, `components` and `opamps`, and the document's `requirement` and
-`settings`, are read; everything else is recomputed. A removed part, a repeated
-ref or a part of the wrong kind is a 422 naming it. Values may be strings such as
-"10n" or "4k7". `?format=csv` returns the BOM, `?format=spice` the netlist.
+`settings`, are read; everything else is recomputed, and the verdict is
+verified against the document's `requirement` as it stands (edit it to
+re-verify: the same verifier as /v1/designs). An unknown key anywhere, a
+removed part, a repeated ref or a part of the wrong kind is a 422 naming it.
+Values may be strings such as "10n" or "4k7". `?format=csv` returns the BOM,
+`?format=spice` the netlist.
 """
 
 
@@ -135,4 +154,5 @@ class Evaluate(MethodView):
              **alternative_content(CSV_MEDIA_TYPE, TEXT_MEDIA_TYPE, schema="Design",
                                    description="The design document again (JSON), its BOM (CSV) or netlist (text)."))
     def post(self, query, document):
-        return _reply(evaluate(document), query["format"])
+        outcome = evaluate_json(document, current_app.config["ROLLOFF_SETTINGS"])
+        return _reply(outcome.as_dict(), query["format"])

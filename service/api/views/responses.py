@@ -5,13 +5,14 @@ from __future__ import annotations
 from flask import current_app
 from flask.views import MethodView
 
-from service.api.dispatch import frequencies_of, mask_of, response_system
 from service.api.extension import Blueprint
 from service.api.formats import (
     CSV_MEDIA_TYPE, SVG_MEDIA_TYPE, alternative_content, csv_response, svg_response,
 )
 from service.api.schemas.responses import ResponseQuerySchema, ResponseRequestSchema, ResponseSchema
-from service.response import TimeGrid, analyze
+from service.approximation import Family, ResponseType
+from service.response import FrequencyGrid
+from service.workflows import Requirement, ResponseRequest, respond
 
 blp = Blueprint("responses", __name__, url_prefix="/v1/responses",
                 description="Frequency and time response, metrics and requirement masks.")
@@ -31,7 +32,9 @@ group delay at DC or band centre and its variation across the passband, step
 overshoot %, rise time 10–90 %, settling to 1 % and 0.1 %); and with a `mask`,
 pass/fail, the worst margin and where. The mask check refines around every
 extremum of the margin between grid points, so a ripple peak between samples
-cannot hide a failure.
+cannot hide a failure. The mask is checked by the same verifier as the designs'
+verdict (`mask_result`: on the whole band, from the poles and zeros, with
+stability and the open-band rule).
 
 `format=csv`: a row per frequency (or per time point with `table: time`);
 `format=svg`: magnitude and phase, group delay and step response, with the mask.
@@ -52,13 +55,8 @@ _DOC = alternative_content(CSV_MEDIA_TYPE, SVG_MEDIA_TYPE, schema="Response",
                            description="The response and its metrics (JSON), a table (CSV) or a figure (SVG).")
 
 
-def _answer(system, roots, response_type, *, frequencies, time, mask, passband_hz, attenuation_at_hz, fmt, table,
-            default_points: int = 501):
-    settings = current_app.config["ROLLOFF_SETTINGS"]
-    grid = frequencies_of(frequencies, roots, settings, default_points=default_points)
-    result = analyze(system, grid, time=time, mask=mask, response_type=response_type, passband_hz=passband_hz,
-                     attenuation_at_hz=attenuation_at_hz or (), max_points=settings.max_frequency_points,
-                     max_time_points=settings.max_time_points)
+def _answer(request: ResponseRequest, fmt: str, table: str):
+    result = respond(request, current_app.config["ROLLOFF_SETTINGS"])
     if fmt == "csv":
         return csv_response(result.table(table), filename=f"response-{table}.csv")
     if fmt == "svg":
@@ -73,21 +71,17 @@ class Responses(MethodView):
     @blp.alt_response(422, response="UNPROCESSABLE_ENTITY", description="Invalid or infeasible request.")
     @blp.doc(summary="Response of a by-order transfer function (query parameters)", description=_DESCRIPTION, **_DOC)
     def get(self, args):
-        from service.api.dispatch import approximation_from_filter
-
-        settings = current_app.config["ROLLOFF_SETTINGS"]
-        filt = {k: args[k] for k in ("response", "family", "order", "cutoff_hz", "passband_ripple_db",
-                                     "stopband_attenuation_db", "cutoff_at") if k in args}
-        approx = approximation_from_filter(filt, settings)
-        freqs = None
+        requirement = Requirement(
+            response=ResponseType(args["response"]), family=Family(args["family"]), order=args["order"],
+            cutoff_hz=args["cutoff_hz"], cutoff_at=args["cutoff_at"],
+            passband_ripple_db=args.get("passband_ripple_db"),
+            stopband_attenuation_db=args.get("stopband_attenuation_db"))
+        grid = None
         if "start_hz" in args:
-            freqs = {"start_hz": args["start_hz"], "stop_hz": args["stop_hz"], "points": args["points"],
-                     "spacing": "log"}
-        import numpy as np
-
-        return _answer(approx, np.concatenate([approx.poles, approx.zeros]), approx.response, frequencies=freqs,
-                       time=None, mask=None, passband_hz=None, attenuation_at_hz=None, fmt=args["format"],
-                       table=args["table"], default_points=args["points"])
+            grid = FrequencyGrid(args["start_hz"], args["stop_hz"], args["points"], "log")
+        request = ResponseRequest(requirement, frequencies=grid, default_points=args["points"],
+                                  figure=args["format"] == "svg")
+        return _answer(request, args["format"], args["table"])
 
     @blp.arguments(ResponseRequestSchema, example=EXAMPLE)
     @blp.response(200, ResponseSchema)
@@ -97,10 +91,4 @@ class Responses(MethodView):
     @blp.alt_response(422, response="UNPROCESSABLE_ENTITY", description="Invalid or infeasible request.")
     @blp.doc(summary="Frequency and time response, metrics and mask check", description=_DESCRIPTION, **_DOC)
     def post(self, args):
-        settings = current_app.config["ROLLOFF_SETTINGS"]
-        system, roots, response_type = response_system(args, settings)
-        time = args.get("time")
-        return _answer(system, roots, response_type, frequencies=args.get("frequencies"),
-                       time=TimeGrid(time.get("stop_s"), time.get("points")) if time else None,
-                       mask=mask_of(args.get("mask")), passband_hz=args.get("passband_hz"),
-                       attenuation_at_hz=args.get("attenuation_at_hz"), fmt=args["format"], table=args["table"])
+        return _answer(args["request"], args["format"], args["table"])

@@ -6,7 +6,7 @@ from flask import current_app
 from flask.views import MethodView
 
 from service.api import metrics
-from service.api.dispatch import tolerance_analysis
+from service.workflows import tolerance
 from service.api.extension import Blueprint
 from service.api.formats import CSV_MEDIA_TYPE, SVG_MEDIA_TYPE, alternative_content, csv_response, svg_response
 from service.api.schemas.tolerance import ToleranceRequestSchema, ToleranceSchema
@@ -26,17 +26,20 @@ temperature range with temperature coefficients; optional op-amp GBW spread),
 evaluated at circuit level: per-frequency percentiles (min, 0.135, 2.5, 50,
 97.5, 99.865, max) of magnitude, phase and group delay; distributions of the
 −3 dB frequency, passband ripple, stopband attenuation and each stage's f0 and
-Q; the yield against the mask (default: the design's requirement) with its 95 %
-Wilson interval and which criterion fails most; normalized sensitivities of
+Q; the yield -- each board's circuit verified against the requirement (or the
+`mask`) by the same whole-band verifier as /v1/designs, so a board counts as
+passing exactly when a design with its values would be said to meet it
+(unstable boards fail) -- with its 95 % Wilson interval and which criterion
+fails most; normalized sensitivities of
 each stage's f0 and Q and of the magnitude (dB per % change) for every part,
 ranked; and worst-case corners at each mask edge. `include_trials: N` returns
 the first N boards' part values so a failing one can be rebuilt in a simulator.
 
 The same request and `seed` give the same numbers. `format=csv`: percentiles
 per frequency; `format=svg`: the magnitude envelope with the mask. At most
-ROLLOFF_MAX_TRIALS trials, and trials × frequency points (at least 400) × (2 + the sum over
-stages of (op-amps in the stage)²) at most ROLLOFF_MAX_WORK (about 2 s of CPU; a
-problem over the limit says how many trials fit).
+ROLLOFF_MAX_TRIALS trials, and the run's estimated work (trials × points × the
+circuit's cost, plus each trial's verification) at most ROLLOFF_MAX_WORK (about
+2 s of CPU; a problem over the limit says how many trials fit).
 
 Example (PM-7 bearing-noise channel sketch): 2,000 boards, Gaussian, −20 to 70 °C.
 """
@@ -61,8 +64,9 @@ class Tolerance(MethodView):
                                    description="The analysis (JSON), percentiles per frequency (CSV) or the "
                                                "envelope figure (SVG)."))
     def post(self, args):
-        result = tolerance_analysis(args, current_app.config["ROLLOFF_SETTINGS"])
-        metrics.count_trials(args["trials"])
+        request = args["request"]
+        result = tolerance(request, current_app.config["ROLLOFF_SETTINGS"])
+        metrics.count_trials(request.trials)
         if args["format"] == "csv":
             return csv_response(result.table(), filename="tolerance.csv")
         if args["format"] == "svg":

@@ -1,0 +1,116 @@
+"""The cost model of every request: what a request will cost is checked against the limits before any work.
+
+Each estimate counts the terms that cost time and memory -- stages and their
+op-amps, the whole-circuit path that op-amps with output resistance force,
+frequency and time points, Monte Carlo trials, sensitivity frequencies,
+figures -- in *work units*, a measured proxy of CPU time: about
+:data:`UNITS_PER_SECOND` units per second of one core on the machines the
+service was measured on (see ``tests/bench/bench_limits.py``).  A request over
+``ROLLOFF_MAX_WORK`` units is refused with a 422 naming the limit and what would
+fit; a deadline (``service.deadline``) is the second line of defence.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from service.config import Settings, setting_env
+from service.errors import LimitExceeded
+
+#: Work units per second of CPU (measured proxy; see the module notes).
+UNITS_PER_SECOND = 16_000_000
+#: Per-trial, per-point cost apart from the circuit (percentile stores, per-trial figures), in stage units.
+PER_TRIAL_POINT_WEIGHT = 2
+#: Frequencies every Monte Carlo trial is evaluated at whatever the caller's grid (metric grid, verification).
+METRIC_GRID_POINTS = 400
+#: A stage of n op-amps costs about n^2 units per trial and point; a loaded circuit (op-amps with output
+#: resistance, solved whole) costs about (unknowns)^3 / LOADED_DIVISOR per trial and point.
+LOADED_DIVISOR = 8
+#: Unknowns of the MNA system per stage (a generous average over the topologies).
+UNKNOWNS_PER_STAGE = 9
+#: Fixed cost of analysing one stage (poles, zeros, op-amp requirement search): units.
+STAGE_ANALYSIS_UNITS = 400_000
+#: Cost of one verification round per trial (interval bounds of every segment): units.
+VERIFICATION_UNITS_PER_TRIAL = 20_000
+#: Cost of one SVG figure: units.
+FIGURE_UNITS = 3_000_000
+
+
+def check_limit(name: str, asked: float, settings: Settings, *, field: str, what: str) -> None:
+    """Raise :class:`LimitExceeded` when ``asked`` exceeds the setting ``name``."""
+    value = getattr(settings, name)
+    if asked > value:
+        raise LimitExceeded(
+            f"{what} {asked:g} exceeds the limit {name} = {value} (set by {setting_env(name)})",
+            limit=name, value=value, setting=setting_env(name), field=field)
+
+
+@dataclass(frozen=True)
+class CircuitShape:
+    """What a design's circuit costs to evaluate: its stages, op-amps per stage, and whether it is loaded."""
+
+    opamps_per_stage: tuple[int, ...]
+    loaded: bool = False
+
+    @property
+    def stages(self) -> int:
+        return len(self.opamps_per_stage)
+
+    def point_weight(self) -> float:
+        """Units per trial and frequency point."""
+        if self.loaded:
+            n = UNKNOWNS_PER_STAGE * self.stages
+            return n ** 3 / LOADED_DIVISOR
+        return float(sum(max(1, k) ** 2 for k in self.opamps_per_stage))
+
+
+def _refuse(units: float, settings: Settings, *, field: str, what: str, fits: str = "") -> None:
+    if units > settings.max_work:
+        raise LimitExceeded(
+            f"{what} is estimated at {units:,.0f} work units, above the limit max_work = {settings.max_work:,} "
+            f"(set by ROLLOFF_MAX_WORK; about {settings.max_work / UNITS_PER_SECOND:.1f} s of CPU)"
+            + (f"; {fits}" if fits else ""),
+            limit="max_work", value=settings.max_work, setting="ROLLOFF_MAX_WORK", field=field)
+
+
+def analysis_units(shape: CircuitShape, verifications: int = 1) -> float:
+    """Evaluating a design once: stage analyses, the whole-circuit roots when loaded, verifications."""
+    units = STAGE_ANALYSIS_UNITS * shape.stages * (1 + (max(shape.opamps_per_stage, default=0) > 1))
+    if shape.loaded:
+        units += (UNKNOWNS_PER_STAGE * shape.stages) ** 3 * 40
+    return units + verifications * VERIFICATION_UNITS_PER_TRIAL * 30 * max(1, shape.stages)
+
+
+def check_design(shape: CircuitShape, settings: Settings, *, verifications: int = 3, field: str = "order") -> None:
+    """A design or evaluation of ``shape`` (verified up to ``verifications`` times) fits the budget."""
+    _refuse(analysis_units(shape, verifications), settings, field=field, what="analysing this design")
+
+
+def check_response(shape: CircuitShape | None, points: int, time_points: int, settings: Settings, *,
+                   figure: bool = False) -> None:
+    """A response of a circuit (or, with ``shape`` None, of a transfer function) fits the budget."""
+    units = 0.0
+    if shape is not None:
+        units += analysis_units(shape, 1) + points * shape.point_weight() * 4
+    units += time_points * 50 + (FIGURE_UNITS if figure else 0)
+    _refuse(units, settings, field="frequencies", what="this response")
+
+
+def check_tolerance(shape: CircuitShape, trials: int, points: int, sensitivity_points: int, settings: Settings, *,
+                    verified: bool, figure: bool = False) -> None:
+    """A Monte Carlo run fits the budget; the problem says how many trials would fit."""
+    check_limit("max_trials", trials, settings, field="trials", what="trials")
+    points = max(points, METRIC_GRID_POINTS)
+    per_trial = points * (shape.point_weight() + PER_TRIAL_POINT_WEIGHT)
+    if verified:
+        per_trial += VERIFICATION_UNITS_PER_TRIAL * (4 if shape.loaded else 1)
+        if shape.loaded:
+            per_trial += (UNKNOWNS_PER_STAGE * shape.stages) ** 3 * 20
+    fixed = analysis_units(shape, 1) + (FIGURE_UNITS if figure else 0)
+    # sensitivity and worst case: two circuit evaluations per part and frequency
+    parts = shape.stages * 6
+    fixed += sensitivity_points * parts * 2 * shape.point_weight() * 50
+    units = fixed + trials * per_trial
+    fits = max(0, int((settings.max_work - fixed) // per_trial)) if per_trial else trials
+    _refuse(units, settings, field="trials", what=f"a Monte Carlo run of {trials:,} trials at {points} points",
+            fits=f"use at most {fits:,} trials at {points} points")

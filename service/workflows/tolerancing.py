@@ -1,0 +1,75 @@
+"""Tolerance runs: Monte Carlo, sensitivity, worst case and yield of a design document.
+
+The yield verifies every trial's circuit against the requirement of the
+document (or a mask given with the request) with the verifier designs use:
+a trial passes exactly when a design with its part values would be said to
+meet the requirement.  The cost of the run is checked before it starts.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Sequence
+
+import numpy as np
+
+from service.config import Settings
+from service.response import FrequencyGrid, resolve_frequencies
+from service.tolerance import ToleranceResult, run_tolerance
+from service.workflows import costs
+from service.workflows.document import DesignDocument
+from service.workflows.masks import Mask, mask_criteria
+from service.workflows.responding import DEFAULT_POINTS, default_grid
+from service.workflows.verdicts import finite_opamps
+
+
+@dataclass(frozen=True)
+class ToleranceRequest:
+    """What ``/v1/tolerance`` asks for (see :func:`service.tolerance.run_tolerance` for the meaning)."""
+
+    document: DesignDocument
+    trials: int = 1000
+    seed: int = 0
+    distribution: str | dict = "gaussian"
+    temperature: dict | None = None
+    tempco_ppm_per_c: dict | None = None
+    gbw_spread: float | None = None
+    frequencies: FrequencyGrid | Sequence[float] | None = None
+    mask: Mask | None = None
+    sensitivity_frequencies_hz: tuple[float, ...] = ()
+    include_trials: int = 0
+    figure: bool = False
+
+
+def tolerance(request: ToleranceRequest, settings: Settings, *, path: str = "design") -> ToleranceResult:
+    """Run the tolerance analysis ``request`` asks for, after its cost check.
+
+    Raises
+    ------
+    LimitExceeded, DocumentError, RealizationError, ToleranceError
+    """
+    doc = request.document
+    plans = doc.plans(path)
+    finite = finite_opamps(plans)
+    criteria = None
+    if request.mask is not None:
+        criteria = mask_criteria(request.mask, finite_opamps=finite)
+    elif doc.requirement is not None and doc.requirement.by_specification:
+        criteria = doc.requirement.criteria(finite_opamps=finite)
+    grid = request.frequencies
+    if grid is None:
+        roots = [2 * np.pi * p.section.f0_hz for p in plans]
+        grid = default_grid(np.array(roots), DEFAULT_POINTS)
+    points = len(resolve_frequencies(grid, settings.max_frequency_points))
+    sens = len(request.sensitivity_frequencies_hz) or (2 * len(criteria.limits) if criteria else 0)
+    shape = costs.CircuitShape(tuple(len(p.opamps) for p in plans),
+                               loaded=any((u.rout_ohm or 0.0) > 0 for p in plans for u in p.opamps))
+    costs.check_tolerance(shape, request.trials, points, sens, settings, verified=criteria is not None,
+                          figure=request.figure)
+    return run_tolerance(
+        plans, draw_order=doc.draw_order(), response=None if doc.response is None else doc.response.value,
+        trials=request.trials, seed=request.seed, distribution=request.distribution,
+        temperature=request.temperature, tempco_ppm_per_c=request.tempco_ppm_per_c, gbw_spread=request.gbw_spread,
+        frequencies_hz=grid, criteria=criteria, sensitivity_frequencies_hz=request.sensitivity_frequencies_hz,
+        include_trials=request.include_trials, memory_limit_bytes=settings.memory_limit_bytes,
+        max_trials=settings.max_trials, max_frequency_points=settings.max_frequency_points)
