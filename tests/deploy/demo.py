@@ -20,7 +20,7 @@ NOTCH = {"filter": {"response": "bandstop", "family": "chebyshev2", "passband_hz
                   "passband_ripple_db": 1, "stopband_attenuation_db": 40}}
 
 
-def tolerance_request(design_document: dict, trials: int = 1000, seed: int = 1) -> dict:
+def tolerance_request(design_document: dict, trials: int = 500, seed: int = 1) -> dict:
     """A seeded Monte Carlo run of a design document (-20...70 degC)."""
     return {"design": design_document, "trials": trials, "seed": seed, "temperature": {"min_c": -20, "max_c": 70}}
 
@@ -47,5 +47,5 @@ def with_design(design_document: dict) -> list[tuple[str, str, str, dict | None]
     """The requests that send a design document back."""
     return [
         ("designs/evaluate", "POST", "/v1/designs/evaluate", design_document),
-        ("tolerance (1000 trials)", "POST", "/v1/tolerance", tolerance_request(design_document)),
+        ("tolerance (500 trials)", "POST", "/v1/tolerance", tolerance_request(design_document)),
     ]

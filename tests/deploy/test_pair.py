@@ -164,7 +164,7 @@ def test_busy_replica_stays_in_rotation_until_its_health_fails(stack, design_doc
     lb.wait_status("calm", "UP")
 
     # Busy: one worker kept computing Monte Carlo runs sent straight to it (not through the balancer).
-    heavy = demo.tolerance_request(design_document, trials=1000, seed=3)
+    heavy = demo.tolerance_request(design_document, trials=500, seed=3)
     stop = threading.Event()
     heavy_done: Counter = Counter()
 
