@@ -141,10 +141,10 @@ def test_resources_follow_the_worker_count():
     assert _quantity(res["requests"]["cpu"]) == workers
     for kind in ("cpu", "memory"):
         assert _quantity(res["limits"][kind]) >= _quantity(res["requests"][kind])
-    # measured (README "Capacity"): master ~95 MiB, a worker at most ~325 MiB at the default limits,
+    # measured (README "Capacity"): master ~100 MiB, a worker up to ~800 MiB in a Monte Carlo run,
     # plus the in-memory /tmp volume
     tmp = next(v for v in POD["volumes"] if v["name"] == "tmp")["emptyDir"]
-    assert _quantity(res["limits"]["memory"]) >= (95 + workers * 325) * 2**20 + _quantity(tmp["sizeLimit"])
+    assert _quantity(res["limits"]["memory"]) >= (100 + workers * 800) * 2**20 + _quantity(tmp["sizeLimit"])
 
 
 def test_api_keys_come_from_a_secret_where_the_service_reads_them():
