@@ -15,6 +15,7 @@ from dataclasses import dataclass, field, fields, replace
 from typing import Any, Callable, Mapping, TextIO
 
 PREFIX = "ROLLOFF_"
+TEST_PREFIX = "ROLLOFF_TEST_"
 
 
 class ConfigError(ValueError):
@@ -148,7 +149,7 @@ SETTINGS: tuple[Setting, ...] = (
     Setting("host", "ROLLOFF_HOST", _host, "127.0.0.1", "Address `rolloff serve` binds to."),
     Setting("port", "ROLLOFF_PORT", _port, 8000, "Port `rolloff serve` binds to."),
     Setting("workers", "ROLLOFF_WORKERS", _positive_int, 2, "gunicorn worker processes."),
-    Setting("threads", "ROLLOFF_THREADS", _positive_int, 1, "Threads per gunicorn worker."),
+    Setting("threads", "ROLLOFF_THREADS", _positive_int, 16, "Threads per gunicorn worker (gthread): requests a worker holds at once, computing, queued or reading."),
     Setting("timeout_s", "ROLLOFF_TIMEOUT_S", _positive_int, 30,
             "gunicorn worker timeout: a worker silent this long is killed and replaced."),
     Setting("graceful_timeout_s", "ROLLOFF_GRACEFUL_TIMEOUT_S", _positive_int, 20,
@@ -185,6 +186,10 @@ SETTINGS: tuple[Setting, ...] = (
             "Comma-separated origins allowed to call /v1 from a browser (none by default)."),
     Setting("metrics_dir", "PROMETHEUS_MULTIPROC_DIR", _path, "",
             "Folder for multi-process metrics under gunicorn (set by `rolloff serve`)."),
+    Setting("request_deadline_s", "ROLLOFF_REQUEST_DEADLINE_S", _positive_int, 10, "Time limit of one request from the end of its body to the end of its computation (queueing included); past it: 503 with Retry-After.", limit=True),
+    Setting("body_timeout_s", "ROLLOFF_BODY_TIMEOUT_S", _positive_int, 8, "Time a client gets to send a request's headers, and then its body; slower clients get 408.", limit=True),
+    Setting("compute_slots", "ROLLOFF_COMPUTE_SLOTS", _positive_int, 1, "Requests one worker process computes at once; health, readiness, metrics and the catalog never wait for a slot."),
+    Setting("compute_queue", "ROLLOFF_COMPUTE_QUEUE", _count, 8, "Requests one worker process lets wait for a compute slot; more get 503 with Retry-After at once."),
 )
 
 
@@ -195,7 +200,7 @@ class Settings:
     host: str = "127.0.0.1"
     port: int = 8000
     workers: int = 2
-    threads: int = 1
+    threads: int = 16
     timeout_s: int = 30
     graceful_timeout_s: int = 20
     max_requests: int = 5000
@@ -214,6 +219,10 @@ class Settings:
     api_keys_file: str = ""
     cors_origins: tuple[str, ...] = ()
     metrics_dir: str = ""
+    request_deadline_s: float = 10
+    body_timeout_s: float = 8
+    compute_slots: int = 1
+    compute_queue: int = 8
 
     @classmethod
     def from_env(cls, environ: Mapping[str, str] | None = None) -> "Settings":
@@ -259,10 +268,15 @@ def setting_env(name: str) -> str:
 
 
 def unknown_variables(environ: Mapping[str, str] | None = None) -> list[str]:
-    """``ROLLOFF_*`` variables set in ``environ`` that name no setting, sorted."""
+    """``ROLLOFF_*`` variables set in ``environ`` that name no setting, sorted.
+
+    ``ROLLOFF_TEST_*`` variables belong to the test suite (e.g. ``ROLLOFF_TEST_PORTS``) and are
+    not settings of the service: they are not listed.
+    """
     environ = os.environ if environ is None else environ
     known = {s.env for s in SETTINGS}
-    return sorted(name for name in environ if name.startswith(PREFIX) and name not in known)
+    return sorted(name for name in environ
+                  if name.startswith(PREFIX) and not name.startswith(TEST_PREFIX) and name not in known)
 
 
 def unknown_variables_warning(environ: Mapping[str, str] | None = None) -> str | None:

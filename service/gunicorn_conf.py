@@ -2,8 +2,18 @@
 
 The app is preloaded in the master (``preload_app``): numpy and scipy are
 imported once and shared copy-on-write by the workers. SIGTERM drains
-in-flight requests for ``graceful_timeout`` seconds before workers stop; a
-worker that dies (even by SIGKILL) is replaced by the master.
+in-flight and queued requests for ``graceful_timeout`` seconds before workers
+stop; a worker that dies (even by SIGKILL) is replaced by the master.
+
+Workers are :class:`service.gunicorn_worker.RolloffWorker` (gthread with read
+deadlines, problem+json for gunicorn's own errors and a backlog drain on
+stop) with ``ROLLOFF_THREADS`` threads each. A thread holds one connection
+from its headers to its response; the app lets ``ROLLOFF_COMPUTE_SLOTS`` of
+them compute at once (service/api/admission.py), so a thread is always free
+for /healthz and /readyz while slow clients send and every slot computes.
+The worker ``timeout`` is the gthread heartbeat of the worker's main loop,
+which keeps beating while threads compute: long requests are bounded by the
+request deadline (``ROLLOFF_REQUEST_DEADLINE_S``), not by it.
 
 Metrics: with ``PROMETHEUS_MULTIPROC_DIR`` set, every process keeps its
 metric values in files of that folder. The folder is created and emptied of a
@@ -14,6 +24,7 @@ bookkeeping for a worker that has exited.
 
 import glob
 import os
+import sys
 
 from service.config import load_or_exit
 
@@ -23,7 +34,7 @@ _settings = load_or_exit()
 bind = f"{_settings.host}:{_settings.port}"
 workers = _settings.workers
 threads = _settings.threads
-worker_class = "gthread" if _settings.threads > 1 else "sync"
+worker_class = "service.gunicorn_worker.RolloffWorker"
 timeout = _settings.timeout_s
 graceful_timeout = _settings.graceful_timeout_s
 max_requests = _settings.max_requests
@@ -44,12 +55,20 @@ raw_env = ["OPENBLAS_NUM_THREADS=1", "OMP_NUM_THREADS=1", "MKL_NUM_THREADS=1"]
 
 
 def prepare_metrics_dir(path: str) -> None:
-    """Create the multi-process metrics folder and remove a previous run's ``*.db`` files."""
+    """Create the multi-process metrics folder and remove a previous run's ``*.db`` files.
+
+    A folder that cannot be made or cleaned (a full or read-only /tmp) is
+    reported and left as it is: metrics degrade (service/api/metrics.py), the
+    service starts.
+    """
     if not path:
         return
-    os.makedirs(path, exist_ok=True)
-    for stale in glob.glob(os.path.join(path, "*.db")):
-        os.remove(stale)
+    try:
+        os.makedirs(path, exist_ok=True)
+        for stale in glob.glob(os.path.join(path, "*.db")):
+            os.remove(stale)
+    except OSError as exc:
+        sys.stderr.write(f"rolloff: metrics folder {path!r} not usable ({exc.strerror}); metrics are degraded\n")
 
 
 prepare_metrics_dir(_settings.metrics_dir)

@@ -16,6 +16,15 @@ Prefixes: y z a f p n u µ m k M G T (10^-24 ... 10^12).
 Units: Hz, Ω or ohm, F, H, s, V — a unit written in the text must be the unit
 of the field being read.
 
+Digits are ASCII 0-9 (other scripts' digits, such as full-width "４", are
+refused); one ASCII space may separate the number from its prefix or unit,
+and nothing surrounds the text; an exponent and a prefix are never combined
+("1e3k" is refused); a positive exponent has at most two digits, a negative
+one three; at most 64 characters. :func:`quantity_language` is this grammar as
+a regular expression: the OpenAPI document publishes it as the ``pattern`` of
+every quantity field, and :func:`parse_quantity` accepts exactly the strings
+it matches.
+
 References
 ----------
 .. [1] BIPM, "The International System of Units (SI)", 9th ed., 2019, sec. 3 (prefixes).
@@ -47,17 +56,67 @@ _UNIT_OF_SPELLING = {sp: unit for unit, spellings in UNITS.items() for sp in spe
 _UNIT_NAMES = {"Hz": "frequency (Hz)", "ohm": "resistance (Ω)", "F": "capacitance (F)",
                "H": "inductance (H)", "s": "time (s)", "V": "voltage (V)"}
 
-_NUMBER = r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?"
-_PREFIX_CHARS = "yzafpnuµμmkMGT"
-_UNIT_ALT = "|".join(sorted((re.escape(s) for s in _UNIT_OF_SPELLING), key=len, reverse=True))
+#: Longest quantity string accepted (characters); also the documented ``maxLength``.
+MAX_QUANTITY_LENGTH = 64
 
+_PREFIX_CHARS = "yzafpnuµμmkMGT"
+# ASCII digits only: Python's \d also matches other scripts' digits ("４", "٤"), which are refused.
+_MANTISSA = r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)"
+# A positive exponent has at most two digits, a negative one three: with MAX_QUANTITY_LENGTH characters
+# every accepted string is a finite double (|x| < 1e163), so the documented pattern alone says what parses.
+_EXPONENT = r"[eE](?:-[0-9]{1,3}|\+?[0-9]{1,2})"
+
+
+def _alternation(words) -> str:
+    return "|".join(re.escape(w) for w in sorted(words, key=len, reverse=True))
+
+
+def quantity_language(unit: str | None) -> str:
+    """The regular expression (unanchored, portable to ECMA-262) of what :func:`parse_quantity` accepts.
+
+    Parameters
+    ----------
+    unit : str or None
+        Canonical unit of the field; None: no unit may be written.
+
+    Returns
+    -------
+    str
+        Three forms: a number with an exponent and an optional unit (``"1e3"``,
+        ``"1e3 Hz"``); a number with an optional SI prefix and/or unit
+        (``"4.7k"``, ``"4.7 nF"``); an IEC 60062 letter code with an optional
+        unit (``"4k7"``, ``"2R2"`` for resistances). One ASCII space may
+        separate a number from its prefix or unit; nothing surrounds the text.
+    """
+    if unit is not None and unit not in UNITS:
+        raise ValueError(f"unknown unit {unit!r}")
+    prefix = f"[{_PREFIX_CHARS}]"
+    codes = "RKk" + _PREFIX_CHARS if unit in (None, "ohm") else "Kk" + _PREFIX_CHARS
+    if unit is None:
+        exp_form = f"{_MANTISSA}{_EXPONENT}"
+        dec_form = f"{_MANTISSA}(?: ?{prefix})?"
+        letter = f"[0-9]*[{codes}][0-9]+"
+    else:
+        u = f"(?:{_alternation(UNITS[unit])})"
+        exp_form = f"{_MANTISSA}{_EXPONENT}(?: ?{u})?"
+        dec_form = f"{_MANTISSA}(?: ?(?:{prefix}{u}?|{u}))?"
+        letter = f"[0-9]*[{codes}][0-9]+(?: ?{u})?"
+    return f"(?:{exp_form}|{dec_form}|{letter})"
+
+
+def quantity_pattern(units: tuple[str | None, ...]) -> str:
+    """Anchored pattern of a field that accepts any of ``units`` (the union of their languages)."""
+    forms = [quantity_language(u) for u in (units or (None,))]
+    return "^(?:" + "|".join(forms) + ")$"
+
+
+_ACCEPT = {u: re.compile(f"^{quantity_language(u)}$") for u in (None, *UNITS)}
+# Reading an accepted string apart (acceptance is decided by _ACCEPT alone).
+_UNIT_ALT = _alternation(_UNIT_OF_SPELLING)
 _DECIMAL_RE = re.compile(
-    rf"^(?P<num>{_NUMBER})\s?(?P<prefix>[{_PREFIX_CHARS}])?(?P<unit>{_UNIT_ALT})?$"
+    rf"^(?P<num>{_MANTISSA}(?:{_EXPONENT})?) ?(?P<prefix>[{_PREFIX_CHARS}])?(?P<unit>{_UNIT_ALT})?$"
 )
-# IEC 60062 letter code: digits, one code letter in place of the decimal point, digits.
-_LETTER_RE = re.compile(
-    rf"^(?P<int>\d*)(?P<code>[RKk{_PREFIX_CHARS}])(?P<frac>\d+)\s?(?P<unit>{_UNIT_ALT})?$"
-)
+_LETTER_RE = re.compile(rf"^(?P<int>[0-9]*)(?P<code>[RKk{_PREFIX_CHARS}])(?P<frac>[0-9]+) ?(?P<unit>{_UNIT_ALT})?$")
 
 
 class QuantityError(InvalidParameter):
@@ -72,12 +131,30 @@ def _expected(unit: str | None) -> str:
             + (", or an IEC 60062 code such as \"4k7\"" if unit in ("ohm", "F", None) else ""))
 
 
-def _check_unit(found: str | None, unit: str | None, text: str) -> None:
-    if found is None:
-        return
-    canonical = _UNIT_OF_SPELLING[found]
-    if unit is None or canonical != unit:
-        raise QuantityError(f"{text!r} has unit {found!r}, but {_expected(unit)}")
+def _why_not(text: str, unit: str | None) -> str:
+    """Why ``text`` is not in the language of ``unit``: the most specific reason found."""
+    if len(text) > MAX_QUANTITY_LENGTH:
+        return f"a quantity has at most {MAX_QUANTITY_LENGTH} characters, got {len(text)}; {_expected(unit)}"
+    if any(ch.isdigit() and not ch.isascii() for ch in text):
+        return f"cannot read {text!r}: write digits as ASCII 0-9; {_expected(unit)}"
+    if text != text.strip():
+        return f"cannot read {text!r}: no spaces before or after the quantity; {_expected(unit)}"
+    if re.match(rf"^{_MANTISSA}{_EXPONENT} ?[{_PREFIX_CHARS}]", text):
+        return f"cannot read {text!r}: use an exponent or an SI prefix, not both; {_expected(unit)}"
+    if re.match(rf"^{_MANTISSA}[eE]\+?[0-9]{{3,}}", text):
+        return f"cannot read {text!r}: a positive exponent has at most two digits; {_expected(unit)}"
+    if unit not in (None, "ohm") and re.match(r"^[0-9]*R[0-9]+", text):
+        return f"{text!r}: the letter R marks the decimal point of a resistance only; {_expected(unit)}"
+    for other, rx in _ACCEPT.items():
+        found = [sp for sp in UNITS.get(other, ()) if text.endswith(sp)]
+        if other not in (None, unit) and found and rx.match(text):
+            return f"{text!r} has unit {max(found, key=len)!r}, but {_expected(unit)}"
+    hint = ""
+    if re.match(rf"^{_MANTISSA} ?K", text):
+        hint = " (K is not an SI prefix: write k for kilo)"
+    elif re.match(rf"^{_MANTISSA} ?(meg|Meg|MEG)", text):
+        hint = " (write M for mega)"
+    return f"cannot read {text!r} as a quantity{hint}; {_expected(unit)}"
 
 
 def parse_quantity(text: str, unit: str | None = None) -> float:
@@ -86,7 +163,9 @@ def parse_quantity(text: str, unit: str | None = None) -> float:
     Parameters
     ----------
     text : str
-        See the module docstring for what is accepted.
+        See the module docstring for what is accepted; exactly the strings
+        matched by :func:`quantity_language` (``unit``), which is also the
+        pattern the OpenAPI document publishes.
     unit : str, optional
         Canonical unit of the field (``"Hz"``, ``"ohm"``, ``"F"``, ``"H"``,
         ``"s"``, ``"V"``); a unit in ``text`` must equal it. ``None`` accepts
@@ -101,45 +180,25 @@ def parse_quantity(text: str, unit: str | None = None) -> float:
     ------
     QuantityError
         Malformed, ambiguous (``"10K"``: K is not an SI prefix; ``"1meg"``),
-        wrong-unit or non-finite input, with a message saying what was expected.
+        wrong-unit, non-ASCII digits or over-long input, with a message saying
+        what was expected.
     """
     if not isinstance(text, str):
         raise QuantityError(_expected(unit))
-    s = text.strip()
     if unit is not None and unit not in UNITS:
         raise ValueError(f"unknown unit {unit!r}")
-    m = _DECIMAL_RE.match(s)
+    if len(text) > MAX_QUANTITY_LENGTH or not _ACCEPT[unit].match(text):
+        raise QuantityError(_why_not(text, unit))
+    m = _DECIMAL_RE.match(text)
     if m:
-        _check_unit(m.group("unit"), unit, text)
         prefix = m.group("prefix")
-        if prefix and "e" in m.group("num").lower():
-            raise QuantityError(f"cannot read {text!r}: use an exponent or an SI prefix, not both; "
-                                + _expected(unit))
-        value = float(m.group("num"))
-        if prefix:
-            value = _scale(m.group("num"), PREFIXES[prefix])
+        value = _scale(m.group("num"), PREFIXES[prefix]) if prefix else float(m.group("num"))
         return _finite(value, text, unit)
-    m = _LETTER_RE.match(s)
-    if m and (m.group("int") or m.group("frac")):
-        code = m.group("code")
-        _check_unit(m.group("unit"), unit, text)
-        if code == "R":
-            if unit not in (None, "ohm"):
-                raise QuantityError(f"{text!r}: the letter R marks the decimal point of a resistance only; "
-                                    + _expected(unit))
-            exponent = 0
-        elif code in ("k", "K"):
-            exponent = 3
-        else:
-            exponent = PREFIXES[code]
-        number = f"{m.group('int') or '0'}.{m.group('frac')}"
-        return _finite(_scale(number, exponent), text, unit)
-    hint = ""
-    if re.match(rf"^{_NUMBER}\s?K", s):
-        hint = " (K is not an SI prefix: write k for kilo)"
-    elif re.match(rf"^{_NUMBER}\s?(meg|Meg|MEG)", s):
-        hint = " (write M for mega)"
-    raise QuantityError(f"cannot read {text!r} as a quantity{hint}; {_expected(unit)}")
+    m = _LETTER_RE.match(text)
+    code = m.group("code")
+    exponent = 0 if code == "R" else 3 if code in ("k", "K") else PREFIXES[code]
+    number = f"{m.group('int') or '0'}.{m.group('frac')}"
+    return _finite(_scale(number, exponent), text, unit)
 
 
 def _scale(number: str, exponent: int) -> float:

@@ -118,6 +118,27 @@ def run_ngspice_ac(netlist: str, nodes: Sequence[str] = ("out",)) -> tuple[np.nd
     return table[:, 0].copy(), _complex_columns(table, nodes)
 
 
+def run_ngspice_sweeps(netlist: str, sweeps: Sequence[str], node: str = "out") -> list[tuple[np.ndarray, np.ndarray]]:
+    """Several AC sweeps of one netlist in one ngspice run.
+
+    Parameters
+    ----------
+    sweeps : sequence of str
+        ngspice ``ac`` arguments, e.g. ``"dec 200 1 1e6"`` or ``"lin 101 900 1100"``.
+
+    Returns
+    -------
+    list of (freq_hz, complex V(node)), one per sweep.
+    """
+    control = list(_HEAD)
+    for sw in sweeps:
+        control += [f"ac {sw}", f"wrdata result.txt {_vectors((node,))}"]
+    tables = _run(_insert_control(_AC_RE.sub("", netlist), control))
+    if len(tables) != len(sweeps):
+        raise NgspiceError(f"expected {len(sweeps)} tables from ngspice, got {len(tables)}")
+    return [(t[:, 0].copy(), _complex_columns(t, (node,))[node]) for t in tables]
+
+
 def run_ngspice_ac_trials(netlist: str, alters: Sequence[Mapping[str, float]], nodes: Sequence[str] = ("out",)
                           ) -> tuple[np.ndarray, dict[str, np.ndarray]]:
     """Monte Carlo AC analysis in one ngspice run: ``alter`` the named elements, ``ac``, write; per trial.

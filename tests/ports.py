@@ -1,7 +1,7 @@
 """Loopback TCP ports for the servers the tests start.
 
 By default the kernel picks a free ephemeral port. Where only a range of ports
-may be used (a shared machine, a firewall), set ``TEST_PORT_RANGE=18100-18199``:
+may be used (a shared machine, a firewall), set ``ROLLOFF_TEST_PORTS=18100-18199``:
 ports are then taken from that range, each at most once per test process.
 """
 
@@ -25,8 +25,8 @@ def _bindable(port: int, host: str) -> bool:
 
 
 def free_port(host: str = "127.0.0.1") -> int:
-    """A TCP port free on ``host`` at the time of the call (from ``TEST_PORT_RANGE`` when set)."""
-    span = os.environ.get("TEST_PORT_RANGE", "").strip()
+    """A TCP port free on ``host`` at the time of the call (from ``ROLLOFF_TEST_PORTS`` when set)."""
+    span = os.environ.get("ROLLOFF_TEST_PORTS", "").strip()
     if not span:
         with socket.socket() as s:
             s.bind((host, 0))
@@ -38,4 +38,4 @@ def free_port(host: str = "127.0.0.1") -> int:
         if _bindable(port, host):
             _handed_out.add(port)
             return port
-    raise RuntimeError(f"no free port left in TEST_PORT_RANGE={span}")
+    raise RuntimeError(f"no free port left in ROLLOFF_TEST_PORTS={span}")

@@ -1,4 +1,8 @@
-"""The computation packages never import Flask, marshmallow or the api layer (DESIGN.md, layers)."""
+"""The layers (DEVELOPERS.md): api -> workflows -> computation packages, one way.
+
+The computation packages and the workflow layer never import Flask, marshmallow or the api layer; the
+computation packages never import the workflow layer (it composes them, not the other way round).
+"""
 
 from __future__ import annotations
 
@@ -11,10 +15,12 @@ import pytest
 
 SERVICE = Path(__file__).resolve().parents[1] / "service"
 COMPUTATION = ["approximation", "circuit", "components", "realization", "response", "tolerance"]
+BELOW_API = COMPUTATION + ["workflows"]
 FORBIDDEN = ("flask", "marshmallow", "webargs", "flask_smorest", "apispec", "werkzeug", "service.api", "gunicorn")
 
 # Allowed imports between computation packages (DESIGN.md: imports run one way).
 ALLOWED = {
+    "workflows": {"approximation", "circuit", "components", "realization", "response", "tolerance"},
     "approximation": set(),
     "circuit": set(),
     "components": set(),
@@ -39,14 +45,14 @@ def _modules(package: str):
     return sorted((SERVICE / package).rglob("*.py"))
 
 
-@pytest.mark.parametrize("package", COMPUTATION)
+@pytest.mark.parametrize("package", BELOW_API)
 def test_computation_package_imports_no_web_framework(package):
     offenders = [f"{p.relative_to(SERVICE)} imports {name}" for p in _modules(package) for name in _imports(p)
                  if name == "service" or any(name == f or name.startswith(f + ".") for f in FORBIDDEN)]
     assert not offenders, offenders
 
 
-@pytest.mark.parametrize("package", COMPUTATION)
+@pytest.mark.parametrize("package", BELOW_API)
 def test_imports_between_layers_run_one_way(package):
     offenders = []
     for p in _modules(package):
@@ -60,7 +66,7 @@ def test_imports_between_layers_run_one_way(package):
 
 def test_importing_computation_does_not_load_flask():
     code = ("import sys; import service.components, service.units, service.config; "
-            + "".join(f"import service.{p}; " for p in COMPUTATION if (SERVICE / p / "__init__.py").exists())
+            + "".join(f"import service.{p}; " for p in BELOW_API if (SERVICE / p / "__init__.py").exists())
             + "bad = [m for m in ('flask', 'marshmallow', 'werkzeug') if m in sys.modules]; "
               "print(bad); sys.exit(1 if bad else 0)")
     result = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)

@@ -7,7 +7,7 @@ from typing import Any, Mapping
 from flask import Flask
 from werkzeug.exceptions import HTTPException
 
-from service.api import cors, metrics, observability, problems, security
+from service.api import admission, cors, metrics, observability, problems, security
 from service.api.extension import ProblemApi, make_marshmallow_plugin
 from service.config import Settings
 from service.errors import RolloffError
@@ -71,6 +71,7 @@ def create_app(test_config: Mapping[str, Any] | None = None) -> Flask:
     metrics.install(app, settings)
     cors.install(app, settings)
     security.install(app, settings)
+    admission.install(app, settings)
 
     api = ProblemApi(app, spec_kwargs={"marshmallow_plugin": make_marshmallow_plugin()})
     security.document(api)

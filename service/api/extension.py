@@ -5,7 +5,9 @@
   errors through :mod:`service.api.problems`.
 - :class:`Blueprint` reads JSON bodies with :func:`service.api.body.read_json_body`
   (strict: duplicate keys, depth, UTF-8, media type) and rejects unknown query
-  parameters.
+  parameters, a scalar query parameter given more than once, numbers written
+  with other than ASCII digits (``"４.７"``: Python's ``float`` would read it) in
+  a query, and strings in a body's plain number fields (documented as numbers).
 """
 
 from __future__ import annotations
@@ -14,14 +16,18 @@ import http
 
 import marshmallow as ma
 from apispec.ext.marshmallow import MarshmallowPlugin
+from typing import Any, Mapping
+
 from flask import current_app, g, request
 from flask_smorest import Api
 from flask_smorest import Blueprint as _SmorestBlueprint
 from flask_smorest.utils import prepare_response
 from webargs import core
 from webargs.flaskparser import FlaskParser
+from webargs.multidictproxy import MultiDictProxy
 
 from service.api.body import read_json_body
+from service.api.fields import Quantity, StrictInteger
 from service.api.problems import PROBLEM_MEDIA_TYPE
 
 
@@ -43,6 +49,53 @@ class ProblemSchema(ma.Schema):
     setting = ma.fields.String(metadata={"description": "Environment variable that sets that limit."})
 
 
+_NUMBER_TEXT = "Not a valid number: write ASCII digits 0-9, without spaces around."
+_NUMBER_TYPE = "Not a valid number: expected a JSON number."
+
+
+def _field_text_errors(field: ma.fields.Field, value: Any, body: bool = True):
+    """Messages for a value that a plain marshmallow number field would read although the document refuses it."""
+    if isinstance(field, ma.fields.Number) and not isinstance(field, (Quantity, StrictInteger)):
+        if isinstance(value, str) and body:
+            return [_NUMBER_TYPE]
+        if isinstance(value, str) and not (value.isascii() and value.strip() == value):
+            return [_NUMBER_TEXT]
+        return None
+    if isinstance(field, ma.fields.Nested):
+        inner = field.schema
+        if field.many and isinstance(value, list):
+            out = {i: e for i, v in enumerate(value) if (e := number_text_errors(inner, v))}
+            return out or None
+        return number_text_errors(inner, value) or None
+    if isinstance(field, ma.fields.List) and isinstance(value, list):
+        out = {i: e for i, v in enumerate(value) if (e := _field_text_errors(field.inner, v, body))}
+        return out or None
+    if isinstance(field, ma.fields.Dict) and field.value_field is not None and isinstance(value, Mapping):
+        out = {k: e for k, v in value.items() if (e := _field_text_errors(field.value_field, v, body))}
+        return out or None
+    return None
+
+
+def number_text_errors(schema: ma.Schema, data: Any) -> dict:
+    """Field path -> messages for every plain number field of a JSON body that the document would refuse.
+
+    marshmallow's ``Float`` and ``Integer`` also read strings, with Python's
+    ``float`` and ``int`` (any script's digits, surrounding white space),
+    where the OpenAPI document of those fields says ``type: number``: in a
+    body, a plain number field takes a JSON number only. (:class:`Quantity`
+    documents and checks its strings itself; :class:`StrictInteger` refuses
+    strings.)
+    """
+    if not isinstance(data, Mapping):
+        return {}
+    errors = {}
+    for name, field in schema.fields.items():
+        key = field.data_key or name
+        if key in data and (e := _field_text_errors(field, data[key])):
+            errors[key] = e
+    return errors
+
+
 class _StrictParser(FlaskParser):
     """webargs parser reading the body that :func:`read_json_body` checked."""
 
@@ -55,6 +108,33 @@ class _StrictParser(FlaskParser):
             cached = read_json_body(req, max_depth=current_app.config["ROLLOFF_SETTINGS"].max_json_depth)
             g._rolloff_json = cached
         return cached
+
+    def load_json(self, req, schema):
+        data = super().load_json(req, schema)
+        errors = number_text_errors(schema, data)
+        if errors:
+            raise ma.ValidationError(errors)
+        return data
+
+    def load_querystring(self, req, schema):
+        """The query parameters; a scalar parameter given twice, or a number in other digits, is a 422."""
+        by_key = {(f.data_key or n): f for n, f in schema.fields.items()}
+        multiple = MultiDictProxy(req.args, schema).multiple_keys
+        errors: dict[str, list[str]] = {}
+        for key in req.args:
+            values = req.args.getlist(key)
+            field = by_key.get(key)
+            if field is None:
+                continue  # unknown parameters are refused by the schema (unknown=RAISE)
+            if len(values) > 1 and key not in multiple:
+                errors[key] = [f"given {len(values)} times; this parameter takes one value"]
+                continue
+            for v in values:
+                if (e := _field_text_errors(getattr(field, "inner", field), v, body=False)):
+                    errors[key] = e if isinstance(e, list) else [_NUMBER_TEXT]
+        if errors:
+            raise ma.ValidationError(errors)
+        return super().load_querystring(req, schema)
 
 
 class Blueprint(_SmorestBlueprint):

@@ -7,23 +7,22 @@ from typing import Any
 
 import marshmallow as ma
 
-from service.units import QuantityError, parse_quantity
+from service.units import MAX_QUANTITY_LENGTH, QuantityError, parse_quantity, quantity_pattern
 
 _UNIT_SYMBOL = {"Hz": "Hz", "ohm": "Ω", "F": "F", "H": "H", "s": "s", "V": "V"}
 
-# What the string branch accepts, for the OpenAPI document: a decimal or
-# scientific number, an optional SI prefix, an optional unit.
-_NUMBER_PATTERN = r"[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?"
-
 
 def _string_pattern(units: tuple[str, ...]) -> str:
-    spellings = []
-    for unit in units:
-        spellings += {"Hz": ["Hz"], "ohm": ["Ω", "ohm"], "F": ["F"], "H": ["H"], "s": ["s"], "V": ["V"]}[unit]
-    unit_alt = "|".join(spellings)
-    decimal = rf"{_NUMBER_PATTERN} ?[yzafpnuµmkMGT]?({unit_alt})?" if unit_alt else rf"{_NUMBER_PATTERN} ?[yzafpnuµmkMGT]?"
-    letter = r"\d*[RkKpnuµm]\d+" if set(units) & {"ohm", "F"} else None
-    return f"^({decimal}|{letter})$" if letter else f"^({decimal})$"
+    """The documented pattern of a quantity string: exactly what :func:`service.units.parse_quantity` accepts."""
+    return quantity_pattern(tuple(units) or (None,))
+
+
+def finite_float(value: int | float) -> float:
+    """A JSON number as a float; +-inf for an integer beyond the range of a double (no OverflowError)."""
+    try:
+        return float(value)
+    except OverflowError:
+        return math.inf if value > 0 else -math.inf
 
 
 class Quantity(ma.fields.Float):
@@ -41,7 +40,8 @@ class Quantity(ma.fields.Float):
 
     default_error_messages = {
         "invalid": "Not a valid number.",
-        "special": "Special numeric values (NaN, Infinity) are not permitted.",
+        "special": "Not a finite number: NaN, Infinity and numbers beyond the range of a double (about 1.8e308) "
+                   "are not permitted.",
     }
 
     def __init__(self, unit: str | tuple[str, ...] | None = None, **kwargs: Any):
@@ -53,6 +53,8 @@ class Quantity(ma.fields.Float):
         if isinstance(value, bool):
             raise self.make_error("invalid")
         if isinstance(value, str):
+            if len(value) > MAX_QUANTITY_LENGTH:
+                raise ma.ValidationError(f"A quantity string has at most {MAX_QUANTITY_LENGTH} characters.")
             errors = []
             for unit in self.units or (None,):
                 try:
@@ -61,7 +63,7 @@ class Quantity(ma.fields.Float):
                     errors.append(exc.message)
             raise ma.ValidationError(errors[0])
         if isinstance(value, (int, float)):
-            result = float(value) if abs(value) < 1e309 else math.inf
+            result = finite_float(value)
             if not math.isfinite(result):
                 raise self.make_error("special")
             return result
@@ -72,12 +74,27 @@ class Quantity(ma.fields.Float):
         symbols = ", ".join(_UNIT_SYMBOL[u] for u in self.units)
         forms = [
             {"type": "number"},
-            {"type": "string", "pattern": _string_pattern(self.units), "maxLength": 64,
+            {"type": "string", "pattern": _string_pattern(self.units), "maxLength": MAX_QUANTITY_LENGTH,
              "description": "SI-prefixed quantity" + (f" with optional unit {symbols}" if symbols else "")},
         ]
         if self.allow_none:
             forms.append({"type": "null"})
         return {"oneOf": forms}
+
+
+class FullMatch(ma.validate.Regexp):
+    """``Regexp`` that must match the whole string (``$`` alone lets a trailing newline through)."""
+
+    def __call__(self, value):
+        if not isinstance(value, str) or self.regex.fullmatch(value) is None:
+            raise ma.ValidationError(self._format_error(value))
+        return value
+
+
+#: A part reference: a SPICE element name (a letter, then letters, digits and _ . : # + - [ ]), e.g. R7, C3, U1.
+PART_REF = FullMatch(r"^[A-Za-z][A-Za-z0-9_.:#+\-\[\]]*$",
+                     error="A part reference starts with a letter and holds only letters, digits and _ . : # + - [ ] "
+                           "(a SPICE element name, e.g. R7); got {input!r}.")
 
 
 class StrictInteger(ma.fields.Integer):
@@ -90,6 +107,8 @@ class StrictInteger(ma.fields.Integer):
     def _deserialize(self, value, attr, data, **kwargs):
         if isinstance(value, bool):
             raise self.make_error("invalid")
+        if isinstance(value, str) and not (value.isascii() and value.strip() == value):
+            raise ma.ValidationError("Not a valid integer: write ASCII digits 0-9, without spaces.")
         if isinstance(value, float) and value.is_integer() and abs(value) < 2**53:
             value = int(value)
         return super()._deserialize(value, attr, data, **kwargs)
@@ -108,6 +127,22 @@ def _quantity2properties(self, field, ret=None, **kwargs):
     return {}
 
 
+def _exclusive_bounds(self, field, ret=None, **kwargs):
+    """``Range(min_inclusive=False)`` as ``exclusiveMinimum`` (OpenAPI 3.1), not apispec's inclusive ``minimum``."""
+    out: dict[str, Any] = {}
+    for v in field.validators:
+        if not isinstance(v, ma.validate.Range):
+            continue
+        if v.min is not None and not v.min_inclusive and ret is not None and "minimum" in ret:
+            ret.pop("minimum")
+            out["exclusiveMinimum"] = v.min
+        if v.max is not None and not v.max_inclusive and ret is not None and "maximum" in ret:
+            ret.pop("maximum")
+            out["exclusiveMaximum"] = v.max
+    return out
+
+
 def register_openapi_fields(plugin) -> None:
-    """Teach apispec how to describe :class:`Quantity` (call after the plugin is initialized)."""
+    """Teach apispec how to describe :class:`Quantity` and exclusive bounds (call after the plugin is initialized)."""
     plugin.converter.add_attribute_function(_quantity2properties)
+    plugin.converter.add_attribute_function(_exclusive_bounds)

@@ -4,9 +4,11 @@ Every 4xx and 5xx the service sends is ``application/problem+json`` with
 ``type``, ``title``, ``status``, ``detail``, ``instance`` and ``request_id``;
 validation problems add ``errors``, a mapping of field path to messages.
 Computation-layer exceptions are mapped to statuses by :data:`STATUS_OF`
-(most specific class first). No traceback ever reaches a client: an
-unexpected exception is logged with its traceback and answered with a
-generic 500 carrying the request id.
+(most specific class first): a computation stopped by its request deadline
+(:class:`service.deadline.DeadlineExceeded`) is a 503 with ``Retry-After``,
+whose abandoned arrays are released before the answer goes out. No
+traceback ever reaches a client: an unexpected exception is logged with its
+traceback and answered with a generic 500 carrying the request id.
 
 References
 ----------
@@ -15,12 +17,16 @@ References
 
 from __future__ import annotations
 
+import ctypes
 import logging
+import math
+import traceback
 from typing import Any, Mapping
 
 from flask import Response, g, json, request
 from werkzeug.exceptions import HTTPException
 
+from service.deadline import DeadlineExceeded
 from service.errors import InfeasibleSpec, InvalidParameter, LimitExceeded, RolloffError
 
 PROBLEM_MEDIA_TYPE = "application/problem+json"
@@ -30,6 +36,7 @@ log = logging.getLogger("rolloff.errors")
 
 #: Computation exception -> (status, problem slug, title). First match wins.
 STATUS_OF: tuple[tuple[type[BaseException], int, str, str], ...] = (
+    (DeadlineExceeded, 503, "deadline-exceeded", "Computation stopped at its time limit"),
     (LimitExceeded, 422, "limit-exceeded", "Request exceeds a configured limit"),
     (InfeasibleSpec, 422, "infeasible-requirement", "Requirement cannot be met"),
     (InvalidParameter, 422, "invalid-parameter", "Invalid parameter"),
@@ -165,11 +172,40 @@ def handle_http_exception(error: HTTPException) -> Response:
     return problem_response(status, title=title, detail=detail, headers=headers)
 
 
+def retry_after_s() -> int:
+    """Seconds a client is asked to wait before retrying a 503 (the request deadline, rounded up)."""
+    from flask import current_app
+
+    settings = current_app.config.get("ROLLOFF_SETTINGS")
+    return max(1, math.ceil(getattr(settings, "request_deadline_s", 10)))
+
+
+def _release_abandoned(error: BaseException) -> None:
+    """Free what a stopped computation held: its frames' locals, then unused heap back to the system."""
+    traceback.clear_frames(error.__traceback__)
+    try:
+        ctypes.CDLL(None).malloc_trim(0)
+    except (AttributeError, OSError):  # not glibc
+        pass
+
+
 def handle_rolloff_error(error: RolloffError) -> Response:
-    """A computation-layer exception -> 4xx problem naming the field and the reason."""
+    """A computation-layer exception -> 4xx problem naming the field and the reason (503 for a deadline)."""
     for cls, status, slug, title in STATUS_OF:
         if isinstance(error, cls):
             break
+    if isinstance(error, DeadlineExceeded):
+        log.warning("request %s %s stopped by its deadline in %s (request_id=%s)", request.method, request.path,
+                    error.where, getattr(g, "request_id", None))
+        _release_abandoned(error)
+        seconds = retry_after_s()
+        return problem_response(
+            status, title=title, slug=slug, headers={"Retry-After": str(seconds)},
+            detail=(f"The computation did not finish within the request time limit of {error.seconds:g} s "
+                    "(ROLLOFF_REQUEST_DEADLINE_S). Retry later, or ask for less work (fewer trials, points "
+                    "or stages)."),
+            extra={"limit": "request_deadline_s", "limit_value": error.seconds,
+                   "setting": "ROLLOFF_REQUEST_DEADLINE_S"})
     errors = {error.field: [error.message]} if error.field else None
     extra: dict[str, Any] = {}
     if isinstance(error, LimitExceeded):

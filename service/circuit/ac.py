@@ -31,6 +31,8 @@ import copy
 
 import numpy as np
 
+from service.deadline import check as check_deadline
+
 from .blocks import decompose
 from .errors import CircuitError
 from .mna import MnaSystem, build_mna
@@ -90,6 +92,7 @@ def _full(system: MnaSystem, col: int, omega: np.ndarray, limit: int, trials: sl
         sl = slice(t0, min(t_stop, t0 + tchunk))
         g, c = system.stamp(sl)
         for f0 in range(0, nf, fchunk):
+            check_deadline("circuit.ac.full")
             fs = slice(f0, min(nf, f0 + fchunk))
             m = g[:, None, :, :] + s[fs][None, :, None, None] * c[:, None, :, :]
             rhs = np.broadcast_to(b, m.shape[:-1])[..., None]
@@ -194,6 +197,7 @@ class PreparedAc:
             return _full(self._system, self._col, self._omega, self._limit, slice(t0, t1), out)
         step = self._tchunk if self._chunked else max(1, t1 - t0)
         for a in range(t0, t1, step):
+            check_deadline("circuit.ac.staged")
             b = min(t1, a + step)
             evaluate_chunk(self._reps, self._col, self._ev, slice(a, b), out[a - t0: b - t0])
         return out

@@ -26,6 +26,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from service.deadline import check as check_deadline
+
 from .blocks import RHS, Block, degree_bounds
 from .errors import CircuitError
 from .mna import MnaSystem, _nonzero
@@ -147,6 +149,7 @@ def block_coefficients(system: MnaSystem, plan: _BlockPlan, w_ref: float, sl: sl
         Numerator of the transfer function from input ``c`` to unknown ``k``,
         with the same per-trial scale.
     """
+    check_deadline("circuit.staged.coefficients")
     b = plan.block
     g_bb, c_bb = system.stamp(sl, rows=b.rows, cols=b.cols, trials_last=True)   # (nb, nb, Tc)
     nb, _, tc = g_bb.shape

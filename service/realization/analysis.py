@@ -20,6 +20,7 @@ import numpy as np
 from service.approximation.types import Section
 from service.circuit import Circuit, OpAmpModel, to_spice, transfer_function_zpk
 from service.realization.cascade import analysis_grid, grid_peak
+from service.realization.conditioning import check_stage_poles
 from service.realization.fit import dominant_poles, fit_section, standard_shape, zpk_eval
 from service.realization.gbw import required_gbw_sweep
 from service.realization.opamp import DEFAULT_A0_DB, RULE_OF_THUMB, SLEW_RULE, gbw_rule_of_thumb, slew_required
@@ -161,6 +162,7 @@ def analyze(plans: list[StagePlan], *, response: str | None, family: str | None,
     error = float(options.gbw_error)
 
     ideal_zpk = [_zpk(p, None) for p in plans]
+    check_stage_poles(plans, ideal_zpk)
     achieved = [fit_section(p.section, *zk) for p, zk in zip(plans, ideal_zpk)]
     models = [p.model() for p in plans]
     macro_zpk = [(_zpk(p, m) if m is not None else None) for p, m in zip(plans, models)]

@@ -26,6 +26,7 @@ import numpy as np
 
 from service.circuit import OpAmpModel
 from service.circuit.mna import build_mna
+from service.deadline import check as check_deadline
 
 #: Coarse sweep: points, and span below/above the rule-of-thumb figure.
 COARSE_POINTS = 16
@@ -95,6 +96,7 @@ def dominant_figures(poles: np.ndarray, ref_poles: np.ndarray) -> tuple[np.ndarr
 def sweep_errors(build, gbw_hz: np.ndarray, ref: dict, ref_poles: np.ndarray, a0: float, rout_ohm: float
                  ) -> np.ndarray:
     """Worst of |f0/f0_ref - 1| and |Q/Q_ref - 1| for each GBW (Hz), shape (T,)."""
+    check_deadline("realization.gbw")
     model = OpAmpModel(gbw_hz=np.asarray(gbw_hz, dtype=float), a0=a0, rout_ohm=rout_ohm)
     circuit = build(model)
     w_ref = 2 * np.pi * ref["f0_hz"]

@@ -25,6 +25,7 @@ import numpy as np
 
 from service.approximation.types import Section
 from service.components import snap_to_series
+from service.deadline import check as check_deadline
 from service.realization.errors import InfeasibleStage, RealizationError
 from service.realization.parts import Allowed
 
@@ -192,6 +193,7 @@ def select_values(topology, section: Section, strategy: str, allowed: dict[str, 
     InfeasibleStage
         When the design equations give no usable candidate at all.
     """
+    check_deadline("realization.selection")
     r_pref = float(impedance_ohm) if impedance_ohm else DEFAULT_R_REF_OHM
     weight = IMPEDANCE_WEIGHT_ASKED if impedance_ohm else IMPEDANCE_WEIGHT_TIEBREAK
     specs = topology.parts(section, strategy)

@@ -30,7 +30,7 @@ from __future__ import annotations
 import numpy as np
 
 
-def _distances(roots: np.ndarray, a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def distances_to_interval(roots: np.ndarray, a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Smallest and largest distance (rad/s) from each root to the segment ``j[a, b]``.
 
     ``roots`` (K, R) complex (NaN: no root), ``a``, ``b`` (K,); returns two (K, R) arrays (NaN where no root).
@@ -106,8 +106,8 @@ def log_gain_bounds(zeros: np.ndarray, poles: np.ndarray, log_gain: np.ndarray, 
     the signed range of the second derivative keeps the bound tight on the
     concave side of a maximum and the convex side of a minimum.
     """
-    dz_min, dz_max = _distances(zeros, a, b)
-    dp_min, dp_max = _distances(poles, a, b)
+    dz_min, dz_max = distances_to_interval(zeros, a, b)
+    dp_min, dp_max = distances_to_interval(poles, a, b)
     with np.errstate(divide="ignore", invalid="ignore"):
         low_d = log_gain + _nansum(np.log(dz_min)) - _nansum(np.log(dp_max))
         high_d = log_gain + _nansum(np.log(dz_max)) - _nansum(np.log(dp_min))
@@ -155,7 +155,7 @@ def delay_bounds(zeros: np.ndarray, poles: np.ndarray, a: np.ndarray, b: np.ndar
         if roots.shape[1] == 0:
             continue
         c = sign * roots.real
-        dmin, dmax = _distances(roots, a, b)
+        dmin, dmax = distances_to_interval(roots, a, b)
         with np.errstate(divide="ignore", invalid="ignore"):
             near = np.where(c == 0.0, 0.0, c / dmin ** 2)
             far = np.where(c == 0.0, 0.0, c / dmax ** 2)
@@ -169,4 +169,4 @@ def delay_bounds(zeros: np.ndarray, poles: np.ndarray, a: np.ndarray, b: np.ndar
     return np.fmax(low, low_c), np.fmin(high, high_c)
 
 
-__all__ = ["log_gain_bounds", "delay_bounds", "group_delay"]
+__all__ = ["log_gain_bounds", "delay_bounds", "group_delay", "distances_to_interval"]

@@ -30,6 +30,8 @@ from typing import Callable
 import numpy as np
 from scipy.optimize import brentq
 
+from service.deadline import check as check_deadline
+
 #: Samples a bracket per pass of the nested search.
 ZOOM_POINTS = 17
 #: Passes of the extremum search: a bracket of two grid steps (~0.03 in ln f)
@@ -136,6 +138,7 @@ def _zoom_rows(func_rows: Callable[[np.ndarray], np.ndarray], lo: np.ndarray, hi
     best_x = a.copy()
     best_f = np.full(m, np.inf)
     for _ in range(iterations):
+        check_deadline("response.refine")
         x = a[:, None] + (b - a)[:, None] * u[None, :]
         fx = np.asarray(func_rows(x), dtype=float).reshape(m, points)
         j = np.argmin(fx, axis=1)

@@ -37,116 +37,13 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from enum import Enum
 
 import numpy as np
 
 from service.circuit.roots import RootSet
-from service.response.bounds import delay_bounds, group_delay, log_gain_bounds
-from service.response.errors import InvalidMask
-
-TWO_PI = 2.0 * math.pi
-NEPER_DB = 20.0 / math.log(10.0)
-
-#: Margins within this of 0 dB are 0 (and met); also the precision of a proof near 0.
-TOLERANCE_DB = 1e-9
-#: Precision (dB) to which a clearly positive or negative worst margin is located.
-PRECISION_DB = 1e-6
-#: Delay margins within this of 0 percent are 0.
-DELAY_TOLERANCE_PCT = 1e-9
-#: Precision (percent) to which the largest delay deviation is located.
-DELAY_PRECISION_PCT = 1e-6
-#: Initial sub-intervals per decade of a segment, before refinement.
-POINTS_PER_DECADE = 16
-#: A segment that starts at 0 Hz gets its first log point this far below the lowest root frequency.
-DC_DECADES = 2.0
-#: Rounds of halving before the search gives up (each round halves every undecided interval).
-MAX_ROUNDS = 90
-#: A stopband open to infinity is searched in frequency up to this multiple of the largest root magnitude,
-#: and beyond it in the reciprocal frequency down to 0 (infinity itself): see :meth:`RootSet.reciprocal`.
-TAIL_START_FACTOR = 10.0
-#: Pieces an undecided interval is cut into per round.
-SPLIT = 4
-#: Intervals narrower than this (relative) are not halved further.
-MIN_RELATIVE_WIDTH = 1e-13
-
-
-class Band(str, Enum):
-    """What a segment bounds: the largest loss (passband) or the smallest loss (stopband)."""
-
-    PASSBAND = "passband"
-    STOPBAND = "stopband"
-
-
-@dataclass(frozen=True)
-class LossLimit:
-    """One segment of a requirement.
-
-    Attributes
-    ----------
-    band : Band
-    start_hz, stop_hz : float
-        The segment, Hz, ``0 <= start < stop``; only a stopband may have ``stop = inf``.
-    limit_db : float
-        Largest allowed loss (passband) or smallest required loss (stopband), dB.
-    open_end : bool
-        ``stop_hz`` stands for the upper end of a band that is open in the
-        requirement (a highpass passband, a bandstop's upper passband,
-        a lowpass or bandpass upper stopband).
-    ends_with_rolloff : bool
-        A loss above the limit everywhere from some frequency up to
-        ``stop_hz`` ends the segment there instead of failing it.
-    """
-
-    band: Band
-    start_hz: float
-    stop_hz: float
-    limit_db: float
-    open_end: bool = False
-    ends_with_rolloff: bool = False
-
-    def __post_init__(self):
-        start, stop, limit = float(self.start_hz), float(self.stop_hz), float(self.limit_db)
-        band = Band(self.band)
-        finite_stop = math.isfinite(stop) or (stop == math.inf and band is Band.STOPBAND)
-        if not (math.isfinite(start) and start >= 0 and finite_stop and stop > start):
-            raise InvalidMask(f"a segment needs 0 <= start_hz < stop_hz (a stopband may run to infinity), got "
-                              f"[{start:g}, {stop:g}] Hz", field="mask.stop_hz")
-        if not math.isfinite(limit):
-            raise InvalidMask("a segment's loss limit must be finite", field="mask.limit_db")
-        object.__setattr__(self, "band", band)
-        object.__setattr__(self, "start_hz", start)
-        object.__setattr__(self, "stop_hz", stop)
-        object.__setattr__(self, "limit_db", limit)
-
-
-@dataclass(frozen=True)
-class DelayLimit:
-    """``|tau(f) - tau(0)| <= max_deviation_pct/100 * tau(0)`` for ``0 <= f <= stop_hz``."""
-
-    stop_hz: float
-    max_deviation_pct: float
-
-    def __post_init__(self):
-        if not (math.isfinite(self.stop_hz) and self.stop_hz > 0):
-            raise InvalidMask("the group-delay limit needs a positive frequency", field="group_delay.frequency_hz")
-        if not (math.isfinite(self.max_deviation_pct) and self.max_deviation_pct > 0):
-            raise InvalidMask("the group-delay deviation limit must be positive",
-                              field="group_delay.max_deviation_pct")
-
-
-@dataclass(frozen=True)
-class Criteria:
-    """Everything a verification checks."""
-
-    limits: tuple[LossLimit, ...]
-    delay: DelayLimit | None = None
-    reference_gain_db: float | None = None
-
-    def __post_init__(self):
-        object.__setattr__(self, "limits", tuple(self.limits))
-        if not self.limits and self.delay is None:
-            raise InvalidMask("nothing to verify: no segment and no delay limit", field="mask")
+from service.response.criteria import (DELAY_PRECISION_PCT, DELAY_TOLERANCE_PCT, NEPER_DB, PRECISION_DB, TOLERANCE_DB,
+                                       TWO_PI, Band, Criteria, DelayLimit, LossLimit)
+from service.response.search import MAX_ROUNDS, verify_delay, verify_losses
 
 
 @dataclass(frozen=True)
@@ -302,6 +199,8 @@ class BatchVerdict:
     delay_margin_pct, delay_worst_hz, delay_deviation_pct, dc_delay_s : ndarray (T,) or None
     delay_proved : ndarray bool (T,) or None
     poles : ndarray complex (T, P), pole_group : ndarray int (P,)
+    located : ndarray bool (T, S)
+        The margin was located by the full search (else it is a proved lower bound).
     """
 
     criteria: Criteria
@@ -320,6 +219,7 @@ class BatchVerdict:
     delay_proved: np.ndarray | None
     poles: np.ndarray
     pole_group: np.ndarray
+    located: np.ndarray | None = None
 
     @property
     def trials(self) -> int:
@@ -363,367 +263,24 @@ class BatchVerdict:
         return Verdict(True, (), float(self.reference_gain_db[t]), segs, delay)
 
 
-# ----------------------------------------------------------------------------- the search
-@dataclass
-class _Items:
-    """Sub-intervals under examination.
-
-    ``t`` trial, ``s`` segment, ``inv`` whether the interval is in the reciprocal variable
-    ``u = 1/omega`` (the tail of a stopband open to infinity), ``a < b`` its ends (rad/s, or s/rad
-    when ``inv``), ``ga``, ``gb`` the exact log gains there (nepers).
-    """
-
-    t: np.ndarray
-    s: np.ndarray
-    inv: np.ndarray
-    a: np.ndarray
-    b: np.ndarray
-    ga: np.ndarray
-    gb: np.ndarray
-
-    FIELDS = ("t", "s", "inv", "a", "b", "ga", "gb")
-
-    def take(self, keep: np.ndarray) -> "_Items":
-        return _Items(*(getattr(self, f)[keep] for f in self.FIELDS))
-
-    @staticmethod
-    def join(parts: list["_Items"]) -> "_Items":
-        return _Items(*(np.concatenate([getattr(p, f) for p in parts]) for f in _Items.FIELDS))
-
-    def __len__(self) -> int:
-        return int(self.t.size)
+#: Fewest trials for which the perturbation bound is tried before the full search.
+BATCH_MIN_TRIALS = 16
 
 
-class _Response:
-    """A batch's log gain and its bounds, in omega or in the reciprocal variable per interval."""
-
-    def __init__(self, roots: RootSet, tails: bool):
-        self.roots = roots
-        self.inverse = roots.reciprocal() if tails else None
-
-    def _pick(self, inv: bool) -> RootSet:
-        return self.inverse if inv else self.roots
-
-    def log_gain(self, t: np.ndarray, inv: np.ndarray, x: np.ndarray) -> np.ndarray:
-        """``ln |H|`` at ``x`` (K, m) for rows ``t`` (K,), each in its own variable."""
-        out = np.empty(x.shape)
-        for flag in (False, True):
-            rows = inv == flag
-            if rows.any():
-                out[rows] = self._pick(flag).log_magnitude(x[rows], trials=t[rows])
-        return out
-
-    def bounds(self, items: _Items) -> tuple[np.ndarray, np.ndarray]:
-        lo = np.empty(len(items))
-        hi = np.empty(len(items))
-        for flag in (False, True):
-            rows = items.inv == flag
-            if rows.any():
-                r, t = self._pick(flag), items.t[rows]
-                lo[rows], hi[rows] = log_gain_bounds(r.zeros[t], r.poles[t], r.log_gain[t], items.a[rows],
-                                                     items.b[rows], items.ga[rows], items.gb[rows])
-        return lo, hi
-
-
-def _segment_points(lo: float, hi: float, critical: np.ndarray) -> np.ndarray:
-    """Initial break points of ``[lo, hi]``: log spaced, plus the root frequencies inside it."""
-    crit = critical[(critical > lo) & (critical < hi)]
-    floor = lo
-    if lo == 0.0:
-        low_roots = critical[critical > 0]
-        floor = min(hi, (low_roots.min() if low_roots.size else hi) * 10.0 ** -DC_DECADES)
-    n = max(2, int(math.ceil(POINTS_PER_DECADE * math.log10(hi / floor))) + 1) if floor > 0 else 2
-    pts = np.geomspace(floor, hi, n) if floor > 0 else np.array([lo, hi])
-    return np.unique(np.concatenate([[lo, hi], pts, crit]))
-
-
-def _critical(roots: RootSet) -> np.ndarray:
-    """Magnitudes and imaginary parts of a trial's roots (rad/s): where the response changes shape."""
-    r = np.concatenate([roots.zeros.ravel(), roots.poles.ravel()])
-    r = r[np.isfinite(r)]
-    vals = np.concatenate([np.abs(r), np.abs(r.imag)])
-    return np.unique(vals[vals > 0])
-
-
-def _extreme_at(size: int, key: np.ndarray, value: np.ndarray, where: np.ndarray, lowest: bool
-                ) -> tuple[np.ndarray, np.ndarray]:
-    """Per key in ``range(size)``: the smallest (or largest) ``value`` and a ``where`` attaining it."""
-    best = np.full(size, np.inf if lowest else -np.inf)
-    (np.minimum if lowest else np.maximum).at(best, key, value)
-    loc = np.full(size, np.nan)
-    hit = value == best[key]
-    loc[key[hit]] = where[hit]
-    return best, loc
-
-
-def _omega(x: np.ndarray, inv: np.ndarray) -> np.ndarray:
-    """Angular frequency of points ``x`` given in their own variable (``u = 0`` is infinity)."""
-    with np.errstate(divide="ignore"):
-        return np.where(inv, 1.0 / x, x)
-
-
-class _Search:
-    """Branch-and-bound state of the loss segments of ``T`` trials (gains in nepers).
-
-    Intervals that no longer need cutting are retired into per (trial,
-    segment) aggregates: the smallest and largest exact gain on their ends
-    (with where, rad/s) and the smallest lower / largest upper bound.  Within
-    one search the criteria only get looser, so a retired interval never
-    needs cutting again.
-    """
-
-    def __init__(self, response: _Response, criteria: Criteria, trials: int):
-        self.response = response
-        self.criteria = criteria
-        self.passbands = np.array([lim.band is Band.PASSBAND for lim in criteria.limits])
-        self.S = len(criteria.limits)
-        shape = (trials, self.S)
-        self.gmin = np.full(shape, np.inf)
-        self.wmin = np.full(shape, np.nan)
-        self.gmax = np.full(shape, -np.inf)
-        self.wmax = np.full(shape, np.nan)
-        self.lo_min = np.full(shape, np.inf)
-        self.hi_max = np.full(shape, -np.inf)
-
-    def _retire(self, items: _Items, lo: np.ndarray, hi: np.ndarray) -> None:
-        if not len(items):
-            return
-        size = self.gmin.size
-        key = items.t * self.S + items.s
-        k2 = np.concatenate([key, key])
-        g2 = np.concatenate([items.ga, items.gb])
-        w2 = _omega(np.concatenate([items.a, items.b]), np.concatenate([items.inv, items.inv]))
-        for lowest, gval, wval in ((True, self.gmin, self.wmin), (False, self.gmax, self.wmax)):
-            best, loc = _extreme_at(size, k2, g2, w2, lowest)
-            flat, flat_w = gval.ravel(), wval.ravel()
-            upd = best < flat if lowest else best > flat
-            flat[upd] = best[upd]
-            flat_w[upd] = loc[upd]
-        np.minimum.at(self.lo_min.ravel(), key, lo)
-        np.maximum.at(self.hi_max.ravel(), key, hi)
-
-    def stats(self, items: _Items, lo: np.ndarray, hi: np.ndarray):
-        """Combined (retired and active) gmin, gmax, lo_min, hi_max, each (T, S)."""
-        gmin, gmax, lo_min, hi_max = self.gmin.copy(), self.gmax.copy(), self.lo_min.copy(), self.hi_max.copy()
-        if len(items):
-            key = items.t * self.S + items.s
-            np.minimum.at(gmin.ravel(), key, np.minimum(items.ga, items.gb))
-            np.maximum.at(gmax.ravel(), key, np.maximum(items.ga, items.gb))
-            np.minimum.at(lo_min.ravel(), key, lo)
-            np.maximum.at(hi_max.ravel(), key, hi)
-        return gmin, gmax, lo_min, hi_max
-
-    def reference(self, gmax: np.ndarray, hi_max: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """(lower, upper) bound of each trial's reference gain (nepers)."""
-        if self.criteria.reference_gain_db is not None:
-            r = np.full(gmax.shape[0], self.criteria.reference_gain_db / NEPER_DB)
-            return r, r
-        cols = self.passbands if self.passbands.any() else np.ones(self.S, dtype=bool)
-        return gmax[:, cols].max(axis=1), hi_max[:, cols].max(axis=1)
-
-    def run(self, items: _Items, select, max_rounds: int, *, keep: bool = False) -> _Items | None:
-        """Cut the intervals ``select(items, lo, hi, stats, reference)`` asks for, up to ``max_rounds`` times;
-        every interval ends retired.  With ``keep``, return the final partition (every retired interval)."""
-        kept: list[_Items] = []
-        for _ in range(max_rounds):
-            if not len(items):
-                break
-            lo, hi = self.response.bounds(items)
-            stats = self.stats(items, lo, hi)
-            split = select(items, lo, hi, stats, self.reference(stats[1], stats[3]))
-            split &= (items.b - items.a) > MIN_RELATIVE_WIDTH * items.b
-            done = items.take(~split)
-            self._retire(done, lo[~split], hi[~split])
-            if keep:
-                kept.append(done)
-            items = _divide(self.response, items.take(split), SPLIT)
-        if len(items):
-            lo, hi = self.response.bounds(items)
-            self._retire(items, lo, hi)
-            kept.append(items)
-        return _Items.join(kept) if keep and kept else (items if keep else None)
-
-
-def _divide(response: _Response, items: _Items, pieces: int) -> _Items:
-    """Each interval cut into ``pieces`` (geometrically where it does not touch 0), the gain evaluated at the cuts."""
-    if not len(items):
-        return items
-    a, b = items.a[:, None], items.b[:, None]
-    frac = np.arange(1, pieces)[None, :] / pieces
-    with np.errstate(divide="ignore", invalid="ignore"):
-        cuts = np.where((items.a > 0)[:, None], a * (b / a) ** frac, a + (b - a) * frac)
-    cuts = np.where((cuts <= a) | (cuts >= b), a + (b - a) * frac, cuts)              # (K, pieces-1)
-    g = response.log_gain(items.t, items.inv, cuts)
-    ends = np.concatenate([a, cuts, b], axis=1)
-    vals = np.concatenate([items.ga[:, None], g, items.gb[:, None]], axis=1)
-    return _Items(np.repeat(items.t, pieces), np.repeat(items.s, pieces), np.repeat(items.inv, pieces),
-                  ends[:, :-1].ravel(), ends[:, 1:].ravel(), vals[:, :-1].ravel(), vals[:, 1:].ravel())
-
-
-def _spans(limits: tuple[LossLimit, ...], critical: np.ndarray) -> tuple[list, float]:
-    """Per segment, the (start, stop, inv) spans searched; and where open stopbands pass to the tail (rad/s).
-
-    A stopband open to infinity is searched in omega up to TAIL_START_FACTOR x the largest root
-    magnitude, and beyond in ``u = 1/omega`` from 0 (infinity) to the reciprocal of that.
-    """
-    top = float(critical.max()) if critical.size else 1.0
-    spans = []
-    split_at = None
-    for lim in limits:
-        start = TWO_PI * lim.start_hz
-        if math.isfinite(lim.stop_hz):
-            spans.append([(start, TWO_PI * lim.stop_hz, False)])
-            continue
-        split_at = max(TAIL_START_FACTOR * top, 10.0 * start, 1e-300)
-        spans.append([(start, split_at, False), (0.0, 1.0 / split_at, True)])
-    return spans, split_at
-
-
-def _initial_items(response: _Response, spans: list, critical: np.ndarray) -> _Items:
-    """The initial partition of every segment for every trial."""
-    T = response.roots.trials
-    inv_critical = np.unique(1.0 / critical) if critical.size else critical
-    parts = []
-    for s, pieces in enumerate(spans):
-        for lo, hi, inv in pieces:
-            w = _segment_points(lo, hi, inv_critical if inv else critical)
-            g = (response.inverse if inv else response.roots).log_magnitude(w)          # (T, n)
-            k = w.size - 1
-            parts.append(_Items(np.repeat(np.arange(T), k), np.full(T * k, s), np.full(T * k, inv),
-                                np.tile(w[:-1], T), np.tile(w[1:], T), g[:, :-1].ravel(), g[:, 1:].ravel()))
-    return _Items.join(parts)
-
-
-def _verify_losses(roots: RootSet, criteria: Criteria, live: np.ndarray, out: BatchVerdict, precision: float,
-                   tol: float, max_rounds: int) -> None:
-    """The branch-and-bound of the loss segments for the stable trials ``live`` (nepers inside)."""
-    limits = criteria.limits
-    S = len(limits)
-    T = live.size
-    sub = RootSet(roots.zeros[live], roots.poles[live], roots.log_gain[live], roots.pole_group)
-    critical = _critical(sub.trial(0))
-    spans, _ = _spans(limits, critical)
-    response = _Response(sub, tails=any(len(p) > 1 for p in spans))
-    passbands = np.array([lim.band is Band.PASSBAND for lim in limits])
-    limit_np = np.array([lim.limit_db for lim in limits]) / NEPER_DB
-    stops = np.tile(np.array([TWO_PI * lim.stop_hz for lim in limits]), (T, 1))
-    ended = np.zeros((T, S), dtype=bool)
-    items = _initial_items(response, spans, critical)
-
-    # 1. the reference (the largest passband gain), pinned down first: the margins depend on it
-    if criteria.reference_gain_db is None:
-        first = _Search(response, criteria, T)
-
-        def for_reference(items, lo, hi, stats, ref):
-            return passbands[items.s] & (hi > ref[0][items.t] + tol)
-        pb_items = passbands[items.s] if passbands.any() else np.ones(len(items), dtype=bool)
-        refined = first.run(items.take(pb_items), for_reference, max_rounds, keep=True)
-        items = _Items.join([refined, items.take(~pb_items)])
-        r_ref = first.reference(first.gmax, first.hi_max)[0]
-    else:
-        r_ref = np.full(T, criteria.reference_gain_db / NEPER_DB)
-
-    # 2. where each open passband that may end with the op-amps' roll-off ends
-    for s, lim in enumerate(limits):
-        if not (lim.ends_with_rolloff and lim.band is Band.PASSBAND):
-            continue
-        end = _rolloff_end(response, items, s, r_ref - limit_np[s], tol)
-        has_end = end < stops[:, s]
-        if has_end.any():
-            stops[has_end, s] = end[has_end]
-            ended[has_end, s] = True
-            items = _truncate(response, items, s, stops[:, s])
-
-    # 3. every segment's worst margin
-    search = _Search(response, criteria, T)
-
-    def for_margins(items, lo, hi, stats, ref):
-        gmin, gmax = stats[0], stats[1]
-        r_lo, r_hi = ref
-        t, s = items.t, items.s
-        pb = passbands[s]
-        est = np.where(pb, limit_np[s] - r_lo[t] + gmin[t, s], r_lo[t] - gmax[t, s] - limit_np[s])
-        bound = np.where(pb, limit_np[s] - r_hi[t] + lo, r_lo[t] - hi - limit_np[s])
-        need = (bound < est - precision) | ((bound < -tol) & (est >= -tol))
-        if criteria.reference_gain_db is None:
-            need |= pb & (hi > r_lo[t] + tol)
-        return need
-
-    search.run(items, for_margins, max_rounds)
-
-    r_lo, r_hi = search.reference(search.gmax, search.hi_max)
-    pb = passbands[None, :]
-    est = np.where(pb, limit_np - r_lo[:, None] + search.gmin, r_lo[:, None] - search.gmax - limit_np)
-    bound = np.where(pb, limit_np - r_hi[:, None] + search.lo_min, r_lo[:, None] - search.hi_max - limit_np)
-    where = np.where(pb, search.wmin, search.wmax)
-    g_worst = np.where(pb, search.gmin, search.gmax)
-    gap = np.maximum(est - bound, 0.0)
-    resolved = (gap <= precision * (1 + 1e-6)) & ((est < -tol) | (bound >= -tol))
-    margin = np.where(resolved, est, bound)
-    margin = np.where(np.abs(margin) <= tol, 0.0, margin)
-    out.reference_gain_db[live] = r_lo * NEPER_DB
-    out.margin_db[live] = margin * NEPER_DB
-    out.worst_hz[live] = where / TWO_PI
-    out.loss_db[live] = (r_lo[:, None] - g_worst) * NEPER_DB
-    out.unresolved_db[live] = np.where(resolved, 0.0, gap * NEPER_DB)
-    out.checked_to_hz[live] = stops / TWO_PI
-    out.ended[live] = ended
-
-
-def _rolloff_end(response: _Response, items: _Items, s: int, level: np.ndarray, tol: float) -> np.ndarray:
-    """Per trial, where segment ``s`` (a passband) starts to stay below the gain ``level`` (nepers) at every
-    sample up to its stop -- a roll-off -- (rad/s); ``inf`` when its top passes or it fails from its start.
-
-    The crossing inside the highest interval whose lower end still passes is found by bisection,
-    keeping the end where the gain is still >= ``level + tol`` (a margin of at least ``tol`` there).
-    """
-    T = level.size
-    sel = items.s == s
-    t, a, b, ga, gb = items.t[sel], items.a[sel], items.b[sel], items.ga[sel], items.gb[sel]
-    passes_a = ga >= level[t] - tol
-    top_a = np.full(T, -np.inf)
-    np.maximum.at(top_a, t, a)
-    is_top = a == top_a[t]
-    top_fails = np.zeros(T, dtype=bool)
-    top_fails[t[is_top]] = gb[is_top] < level[t[is_top]] - tol
-    last_pass = np.full(T, -np.inf)
-    np.maximum.at(last_pass, t, np.where(passes_a, a, -np.inf))
-    pick = passes_a & (a == last_pass[t]) & top_fails[t]
-    lo = np.full(T, np.nan)
-    hi = np.full(T, np.nan)
-    lo[t[pick]] = a[pick]
-    hi[t[pick]] = b[pick]
-    todo = np.flatnonzero(np.isfinite(lo))
-    lo, hi = lo[todo], hi[todo]
-    for _ in range(64):
-        if not todo.size or np.all(hi - lo <= MIN_RELATIVE_WIDTH * hi):
-            break
-        mid = 0.5 * (lo + hi)
-        gm = response.roots.log_magnitude(mid[:, None], trials=todo)[:, 0]
-        ok = gm >= level[todo] + tol        # keep a margin of +tol at the end, so that it proves
-        lo = np.where(ok, mid, lo)
-        hi = np.where(ok, hi, mid)
-    end = np.full(T, np.inf)
-    end[todo] = lo
-    return end
-
-
-def _truncate(response: _Response, items: _Items, s: int, stops: np.ndarray) -> _Items:
-    """Cut segment ``s``'s intervals (in omega) at the per-trial ``stops`` (rad/s)."""
-    sel = items.s == s
-    items = items.take(~(sel & (items.a >= stops[items.t])))
-    cut = (items.s == s) & (items.b > stops[items.t])
-    if cut.any():
-        b = items.b.copy()
-        gb = items.gb.copy()
-        b[cut] = stops[items.t[cut]]
-        gb[cut] = response.roots.log_magnitude(b[cut][:, None], trials=items.t[cut])[:, 0]
-        items = _Items(items.t, items.s, items.inv, items.a, b, items.ga, gb)
-    return items
+def _empty_batch(roots: RootSet, criteria: Criteria) -> "BatchVerdict":
+    T, S = roots.trials, len(criteria.limits)
+    return BatchVerdict(
+        criteria=criteria, stable=~roots.unstable(), reference_gain_db=np.full(T, np.nan),
+        margin_db=np.full((T, S), np.nan), worst_hz=np.full((T, S), np.nan), loss_db=np.full((T, S), np.nan),
+        unresolved_db=np.full((T, S), np.nan), checked_to_hz=np.full((T, S), np.nan),
+        ended=np.zeros((T, S), dtype=bool), delay_margin_pct=None, delay_worst_hz=None,
+        delay_deviation_pct=None, dc_delay_s=None, delay_proved=None, poles=roots.poles,
+        pole_group=roots.pole_group, located=np.zeros((T, S), dtype=bool))
 
 
 def verify(roots: RootSet, criteria: Criteria, *, precision_db: float = PRECISION_DB,
-           tolerance_db: float = TOLERANCE_DB, max_rounds: int = MAX_ROUNDS) -> BatchVerdict:
+           tolerance_db: float = TOLERANCE_DB, max_rounds: int = MAX_ROUNDS, nominal: RootSet | None = None,
+           located_trials: int = 0) -> BatchVerdict:
     """Verify every trial of ``roots`` against ``criteria`` (see the module notes).
 
     Parameters
@@ -736,92 +293,48 @@ def verify(roots: RootSet, criteria: Criteria, *, precision_db: float = PRECISIO
     tolerance_db : float
         Margins within this of 0 are 0; the precision of a proof near 0 (dB).
     max_rounds : int
-        Budget of the search (rounds of halving).
+        Budget of the search (rounds of cutting).
+    nominal : RootSet, optional
+        One trial the others scatter around (a Monte Carlo run's nominal design).  With it and at least
+        :data:`BATCH_MIN_TRIALS` trials, a trial whose perturbation bound from the nominal
+        (:mod:`service.response.batch`) proves every segment passes without the full search; its
+        ``margin_db`` is then that proved lower bound and ``located`` is False.
+    located_trials : int
+        The first trials whose margins are located by the full search regardless.
 
     Returns
     -------
     BatchVerdict
     """
-    T, S = roots.trials, len(criteria.limits)
-    stable = ~roots.unstable()
-    live = np.flatnonzero(stable)
-    out = BatchVerdict(
-        criteria=criteria, stable=stable, reference_gain_db=np.full(T, np.nan),
-        margin_db=np.full((T, S), np.nan), worst_hz=np.full((T, S), np.nan), loss_db=np.full((T, S), np.nan),
-        unresolved_db=np.full((T, S), np.nan), checked_to_hz=np.full((T, S), np.nan),
-        ended=np.zeros((T, S), dtype=bool), delay_margin_pct=None, delay_worst_hz=None,
-        delay_deviation_pct=None, dc_delay_s=None, delay_proved=None, poles=roots.poles,
-        pole_group=roots.pole_group)
-    if live.size and S:
-        _verify_losses(roots, criteria, live, out, precision_db / NEPER_DB, tolerance_db / NEPER_DB, max_rounds)
+    out = _empty_batch(roots, criteria)
+    stable = out.stable
+    tol, precision = tolerance_db / NEPER_DB, precision_db / NEPER_DB
+    full = stable.copy()
+    if (nominal is not None and roots.trials >= BATCH_MIN_TRIALS and criteria.limits and criteria.delay is None
+            and not any(lim.ends_with_rolloff for lim in criteria.limits)):
+        from service.response.batch import bound_trials, nominal_partition
+
+        part = nominal_partition(nominal, criteria, tol, max_rounds)
+        found = None if part is None else bound_trials(roots, nominal, criteria, part, tol, precision)
+        if found is not None:
+            estimate, bound, proven = found
+            proven &= stable
+            proven[:located_trials] = False
+            full = stable & ~proven
+            located = (estimate - bound) <= precision * (1 + 1e-6)
+            margin = np.where(located, estimate, bound)
+            margin = np.where(np.abs(margin) <= tol, 0.0, margin)
+            out.margin_db[proven] = margin[proven] * NEPER_DB
+            out.located[proven] = located[proven]
+            out.unresolved_db[proven] = np.where(located, 0.0, (estimate - bound) * NEPER_DB)[proven]
+            out.checked_to_hz[proven] = np.array([lim.stop_hz for lim in criteria.limits])
+    live = np.flatnonzero(full)
+    if live.size and criteria.limits:
+        verify_losses(roots, criteria, live, out, precision, tol, max_rounds)
+        out.located[live] = out.unresolved_db[live] == 0.0
     if criteria.delay is not None:
-        _verify_delay(roots, criteria.delay, live, out, max_rounds)
+        verify_delay(roots, criteria.delay, np.flatnonzero(stable), out, max_rounds)
     return out
-
-
-def _verify_delay(roots: RootSet, limit: DelayLimit, live: np.ndarray, out: BatchVerdict, max_rounds: int) -> None:
-    """Branch-and-bound of the deviation ``100 |tau - tau0| / tau0`` (percent) over ``[0, stop]``, trials ``live``.
-
-    An interval is halved while its bound could exceed both the largest sampled deviation (plus
-    :data:`DELAY_PRECISION_PCT`) and the limit (plus the tolerance).
-    """
-    T = roots.trials
-    out.delay_margin_pct = np.full(T, np.nan)
-    out.delay_worst_hz = np.full(T, np.nan)
-    out.delay_deviation_pct = np.full(T, np.nan)
-    out.dc_delay_s = np.full(T, np.nan)
-    out.delay_proved = np.zeros(T, dtype=bool)
-    if not live.size:
-        return
-    z, p = roots.zeros[live], roots.poles[live]
-    n = live.size
-    tau0 = group_delay(z, p, np.zeros((n, 1)))[:, 0]
-    scale = 100.0 / np.where(tau0 > 0, tau0, np.nan)
-    w = _segment_points(0.0, TWO_PI * limit.stop_hz, _critical(roots.trial(int(live[0]))))
-    tau = group_delay(z, p, np.broadcast_to(w, (n, w.size)))
-    dev = np.abs(tau - tau0[:, None]) * scale[:, None]
-    worst = dev.max(axis=1)
-    worst_w = w[np.argmax(dev, axis=1)]
-    k = w.size - 1
-    t = np.repeat(np.arange(n), k)
-    a, b = np.tile(w[:-1], n), np.tile(w[1:], n)
-    ta, tb = tau[:, :-1].ravel(), tau[:, 1:].ravel()
-    bound = worst.copy()
-    pct = limit.max_deviation_pct
-    for _ in range(max_rounds):
-        if not t.size:
-            break
-        lo, hi = delay_bounds(z[t], p[t], a, b, ta, tb)
-        dev_bound = np.maximum(np.abs(hi - tau0[t]), np.abs(lo - tau0[t])) * scale[t]
-        need = dev_bound > np.maximum(worst[t] + DELAY_PRECISION_PCT, pct + DELAY_TOLERANCE_PCT)
-        need &= (b - a) > MIN_RELATIVE_WIDTH * b
-        np.maximum.at(bound, t[~need], dev_bound[~need])
-        t, a, b, ta, tb = t[need], a[need], b[need], ta[need], tb[need]
-        if not t.size:
-            break
-        mid = 0.5 * (a + b)
-        tm = group_delay(z[t], p[t], mid[:, None])[:, 0]
-        dm = np.abs(tm - tau0[t]) * scale[t]
-        order = np.argsort(-dm, kind="stable")
-        first = order[np.unique(t[order], return_index=True)[1]]
-        upd = dm[first] > worst[t[first]]
-        worst[t[first][upd]] = dm[first][upd]
-        worst_w[t[first][upd]] = mid[first][upd]
-        t = np.concatenate([t, t])
-        a, b = np.concatenate([a, mid]), np.concatenate([mid, b])
-        ta, tb = np.concatenate([ta, tm]), np.concatenate([tm, tb])
-    if t.size:
-        lo, hi = delay_bounds(z[t], p[t], a, b, ta, tb)
-        np.maximum.at(bound, t, np.maximum(np.abs(hi - tau0[t]), np.abs(lo - tau0[t])) * scale[t])
-    bound = np.maximum(bound, worst)
-    resolved = (bound - worst) <= DELAY_PRECISION_PCT * (1 + 1e-9)
-    margin = np.where(resolved, pct - worst, pct - bound)
-    margin = np.where(np.abs(margin) <= DELAY_TOLERANCE_PCT, 0.0, margin)
-    out.delay_margin_pct[live] = margin
-    out.delay_worst_hz[live] = worst_w / TWO_PI
-    out.delay_deviation_pct[live] = worst
-    out.dc_delay_s[live] = tau0
-    out.delay_proved[live] = resolved | (pct - bound >= -DELAY_TOLERANCE_PCT)
 
 
 __all__ = ["Band", "LossLimit", "DelayLimit", "Criteria", "SegmentVerdict", "DelayVerdict", "UnstablePole",

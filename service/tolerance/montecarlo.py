@@ -36,6 +36,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from service.circuit import Circuit, prepare_ac
+from service.deadline import check as check_deadline
 from service.tolerance import figures as fig
 from service.tolerance.grids import Grids
 from service.tolerance.sampling import Samples
@@ -192,6 +193,7 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
     if not single:
         engine = _Engine(circuit, samples, grids.evaluation_hz(shifted=False), engine_limit)
         for t0 in range(0, trials, chunk):
+            check_deadline("tolerance.montecarlo")
             t1 = min(trials, t0 + chunk)
             h = engine(t0, t1)
             figs.add(slice(t0, t1), fig.gain_db(h)[:, grids.order])
@@ -207,6 +209,7 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
         engine = _Engine(circuit, samples, cols, engine_limit)
         stores = [np.empty((w, trials), dtype=np.float32) for _ in range(3)]
         for t0 in range(0, trials, chunk):
+            check_deadline("tolerance.montecarlo")
             t1 = min(trials, t0 + chunk)
             sl = slice(t0, t1)
             h = engine(t0, t1)

@@ -16,6 +16,7 @@ from service.approximation.types import ResponseType
 from service.circuit import ac_response
 from service.errors import LimitExceeded
 from service.realization.analysis import StagePlan, cascade_circuit, design_roots
+from service.realization.conditioning import check_plans
 from service.response import resolve_frequencies
 from service.response.verification import Band, Criteria, verify
 from service.response.metrics import infer_response_type
@@ -144,6 +145,7 @@ def run_tolerance(plans: list[StagePlan], *, draw_order: Sequence[str] = (), res
     dist = resolve_distribution(distribution)
     temp = resolve_temperature(temperature)
 
+    check_plans(plans)
     circuit = cascade_circuit(plans)
     parts = varied_parts(plans, draw_order, dist, tempco_ppm_per_c, gbw_spread)
     samples = draw(parts, trials, seed, temp)
@@ -206,7 +208,8 @@ def run_tolerance(plans: list[StagePlan], *, draw_order: Sequence[str] = (), res
     verdicts = None
     if criteria is not None:
         roots = design_roots(plans, samples.values)
-        verdicts = verify(roots, criteria, precision_db=precision_db)
+        verdicts = verify(roots, criteria, precision_db=precision_db, nominal=design_roots(plans),
+                          located_trials=include_trials)
         ok = verdicts.segment_met()                                         # (T, S)
         passed = verdicts.meets()
         n_pass = int(passed.sum())

@@ -33,6 +33,7 @@ from __future__ import annotations
 import numpy as np
 
 from service.circuit import Circuit, ac_response, transfer_function_zpk
+from service.deadline import check as check_deadline
 from service.realization.analysis import stage_circuit
 from service.realization.fit import fit_section
 from service.tolerance import figures as fig
@@ -74,6 +75,7 @@ def stage_sensitivity(plans, parts: list[VariedPart]) -> dict[str, tuple[float, 
         for part in parts:
             if part.stage != k or part.kind == "opamp":
                 continue
+            check_deadline("tolerance.sensitivity")
             ys = []
             for sgn in (1.0, -1.0):
                 c = base.with_values({part.key: part.nominal * (1.0 + sgn * REL_STEP)})

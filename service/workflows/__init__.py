@@ -14,12 +14,12 @@ Types: :class:`Requirement`, :class:`DesignDocument`, :class:`DesignSettings`, :
 :class:`DesignOutcome`, :class:`ResponseRequest`, :class:`Zpk`, :class:`ToleranceRequest`,
 :class:`MaskSegment`, :class:`DesignVerdict`.
 Functions: :func:`approximate`, :func:`compare`, :func:`design`, :func:`evaluate`, :func:`evaluate_json`,
-:func:`respond`, :func:`tolerance`.
+:func:`outcome_of` (the document of a design realized directly), :func:`respond`, :func:`tolerance`.
 Errors: :class:`WorkflowError`, :class:`DocumentError`, :class:`RequirementError`, :class:`UnrepresentableDesign`.
 """
 
 from service.workflows.approximating import approximate, compare
-from service.workflows.designing import DesignOutcome, DesignRequest, design, evaluate, evaluate_json
+from service.workflows.designing import DesignOutcome, DesignRequest, design, evaluate, evaluate_json, outcome_of
 from service.workflows.document import DesignDocument, DesignSettings, PartRange, StageEntry
 from service.workflows.errors import DocumentError, RequirementError, UnrepresentableDesign, WorkflowError
 from service.workflows.masks import MaskSegment
@@ -31,6 +31,6 @@ from service.workflows.verdicts import DesignVerdict
 __all__ = [
     "Requirement", "DesignDocument", "DesignSettings", "PartRange", "StageEntry", "DesignRequest", "DesignOutcome",
     "ResponseRequest", "Zpk", "ToleranceRequest", "MaskSegment", "DesignVerdict",
-    "approximate", "compare", "design", "evaluate", "evaluate_json", "respond", "tolerance",
+    "approximate", "compare", "design", "evaluate", "evaluate_json", "outcome_of", "respond", "tolerance",
     "WorkflowError", "DocumentError", "RequirementError", "UnrepresentableDesign",
 ]

@@ -30,8 +30,11 @@ LOADED_DIVISOR = 8
 UNKNOWNS_PER_STAGE = 9
 #: Fixed cost of analysing one stage (poles, zeros, op-amp requirement search): units.
 STAGE_ANALYSIS_UNITS = 400_000
-#: Cost of one verification round per trial (interval bounds of every segment): units.
-VERIFICATION_UNITS_PER_TRIAL = 20_000
+#: Cost of verifying one Monte Carlo trial, per stage (its roots and the bounds on the nominal's partition):
+#: units, measured (about 25 us of CPU per stage and trial here).
+VERIFICATION_UNITS_PER_STAGE = 400
+#: Cost of one verification of a design (the full search), per stage: units.
+VERIFICATION_UNITS_PER_DESIGN_STAGE = 600_000
 #: Cost of one SVG figure: units.
 FIGURE_UNITS = 3_000_000
 
@@ -43,6 +46,19 @@ def check_limit(name: str, asked: float, settings: Settings, *, field: str, what
         raise LimitExceeded(
             f"{what} {asked:g} exceeds the limit {name} = {value} (set by {setting_env(name)})",
             limit=name, value=value, setting=setting_env(name), field=field)
+
+
+def grid_points(grid, settings: Settings, *, field: str = "frequencies") -> int:
+    """Points of a frequency grid (a FrequencyGrid, a list, or None for the default), checked against
+    ``ROLLOFF_MAX_FREQUENCY_POINTS`` with the request's field name."""
+    if grid is None:
+        return 0
+    points = getattr(grid, "points", None)
+    if points is not None:
+        check_limit("max_frequency_points", points, settings, field=f"{field}.points", what="frequency points")
+        return int(points)
+    check_limit("max_frequency_points", len(grid), settings, field=field, what="frequency points")
+    return len(grid)
 
 
 @dataclass(frozen=True)
@@ -78,7 +94,7 @@ def analysis_units(shape: CircuitShape, verifications: int = 1) -> float:
     units = STAGE_ANALYSIS_UNITS * shape.stages * (1 + (max(shape.opamps_per_stage, default=0) > 1))
     if shape.loaded:
         units += (UNKNOWNS_PER_STAGE * shape.stages) ** 3 * 40
-    return units + verifications * VERIFICATION_UNITS_PER_TRIAL * 30 * max(1, shape.stages)
+    return units + verifications * VERIFICATION_UNITS_PER_DESIGN_STAGE * max(1, shape.stages)
 
 
 def check_design(shape: CircuitShape, settings: Settings, *, verifications: int = 3, field: str = "order") -> None:
@@ -103,7 +119,7 @@ def check_tolerance(shape: CircuitShape, trials: int, points: int, sensitivity_p
     points = max(points, METRIC_GRID_POINTS)
     per_trial = points * (shape.point_weight() + PER_TRIAL_POINT_WEIGHT)
     if verified:
-        per_trial += VERIFICATION_UNITS_PER_TRIAL * (4 if shape.loaded else 1)
+        per_trial += VERIFICATION_UNITS_PER_STAGE * sum(max(1, k) for k in shape.opamps_per_stage)
         if shape.loaded:
             per_trial += (UNKNOWNS_PER_STAGE * shape.stages) ** 3 * 20
     fixed = analysis_units(shape, 1) + (FIGURE_UNITS if figure else 0)

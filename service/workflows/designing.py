@@ -16,7 +16,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from service.approximation import ResponseType
+from service.approximation import Family, ResponseType
 from service.config import Settings
 from service.realization import Design, DesignWarning, OpAmpSpec, PartsPolicy, design_filter
 from service.realization.analysis import StagePlan, analyze
@@ -221,6 +221,24 @@ def _finish(design: Design, document: DesignDocument) -> DesignOutcome:
         verdict = verify_design(design.plans, req)
     warnings = list(design.warnings) + stage_warnings(design) + (list(verdict.warnings) if verdict else [])
     return DesignOutcome(design, document, verdict, warnings)
+
+
+def outcome_of(realized: Design, requirement: Requirement | None = None) -> DesignOutcome:
+    """The document, verdict and warnings of a design realized directly (``service.realization.design_filter``).
+
+    ``requirement`` (by specification) is what the verdict checks; None for no verdict.
+    """
+    document = DesignDocument(
+        response=None if realized.response is None else ResponseType(realized.response),
+        family=None if realized.family is None else Family(realized.family), order=realized.order,
+        stages=tuple(StageEntry(p.section, p.topology.name, p.strategy, tuple(p.components), tuple(p.opamps))
+                     for p in realized.plans),
+        requirement=requirement,
+        settings=DesignSettings(
+            gbw_error=realized.options.gbw_error, output_amplitude_v=realized.options.output_amplitude_v,
+            stage_peak_margin_db=realized.options.stage_peak_margin_db,
+            ranges={k: PartRange(*v) for k, v in realized.part_ranges.items()}, series=dict(realized.part_series)))
+    return _finish(realized, document)
 
 
 def design(request: DesignRequest, settings: Settings) -> DesignOutcome:

@@ -105,6 +105,9 @@ def respond(request: ResponseRequest, settings: Settings, *, path: str = "design
     ------
     LimitExceeded, InvalidGrid, InvalidMask, ImproperSystem, DocumentError, RealizationError
     """
+    costs.grid_points(request.frequencies, settings)
+    if request.time is not None and request.time.points is not None:
+        costs.check_limit("max_time_points", request.time.points, settings, field="time.points", what="time points")
     display, roots, response, finite, plans = _system(request.system, settings, path)
     grid = request.frequencies
     if grid is None:

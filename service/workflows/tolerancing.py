@@ -48,6 +48,8 @@ def tolerance(request: ToleranceRequest, settings: Settings, *, path: str = "des
     ------
     LimitExceeded, DocumentError, RealizationError, ToleranceError
     """
+    costs.grid_points(request.frequencies, settings)
+    costs.check_limit("max_trials", request.trials, settings, field="trials", what="trials")
     doc = request.document
     plans = doc.plans(path)
     finite = finite_opamps(plans)

@@ -86,3 +86,29 @@ def test_cascade_multiplies_the_stages():
     w = np.geomspace(100, 1e5, 30)
     np.testing.assert_allclose(both.log_magnitude(w), a.log_magnitude(w) + b.log_magnitude(w), atol=1e-12)
     assert list(both.pole_group) == [0] * a.poles.shape[1] + [1] * b.poles.shape[1]
+
+
+def test_sallen_key_poles_with_a_single_pole_opamp_against_the_closed_form():
+    # source: the nodal equations of the unity-gain Sallen-Key lowpass with a single-pole op-amp
+    # A(s) = wt / (s + wt/a0): with B = R1 C1 + R2 C2 + R1 C2 and T = R1 R2 C1 C2 the poles are the roots of
+    # (s + wt + wt/a0)(1 + s B + s^2 T) - s R1 C1 wt -- the cubic of the finite-GBW analysis of the section in
+    # L. P. Huelsman, Active and Passive Analog Filter Design, McGraw-Hill, 1993, ch. on op-amp effects
+    # (from memory; re-derived here from the nodal equations)
+    r1, r2, c1, c2 = 10e3, 22e3, 10e-9, 3.3e-9
+    gbw, a0 = 1e6, 1e5
+    wt = 2 * math.pi * gbw
+    c = Circuit()
+    c.add_voltage_source("VIN", "in", "0")
+    c.add_resistor("R1", "in", "a", r1)
+    c.add_resistor("R2", "a", "p", r2)
+    c.add_capacitor("C1", "a", "out", c1)
+    c.add_capacitor("C2", "p", "0", c2)
+    c.add_opamp("U1", "p", "out", "out", OpAmpModel(gbw_hz=gbw, a0=a0))
+    b, t = r1 * c1 + r2 * c2 + r1 * c2, r1 * r2 * c1 * c2
+    w = wt + wt / a0
+    cubic = [t, b + w * t, 1 + w * b - r1 * c1 * wt, w]
+    want = np.roots(cubic)
+    got = transfer_roots(c).poles[0]
+    assert got.size == want.size == 3
+    for w in want:
+        assert np.min(np.abs(got - w)) <= 1e-9 * abs(w)

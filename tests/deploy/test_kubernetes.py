@@ -137,8 +137,9 @@ def _quantity(text: str) -> float:
 def test_resources_follow_the_worker_count():
     res = CONTAINERS["rolloff"]["resources"]
     workers = int(SETTINGS_MAP["ROLLOFF_WORKERS"])
-    # one core per worker: every request is CPU-bound numpy work (README "Capacity")
-    assert _quantity(res["requests"]["cpu"]) == workers
+    slots = int(SETTINGS_MAP.get("ROLLOFF_COMPUTE_SLOTS", "1"))
+    # one core per computation at once: every request is CPU-bound numpy work (README "Capacity")
+    assert _quantity(res["requests"]["cpu"]) == workers * slots
     for kind in ("cpu", "memory"):
         assert _quantity(res["limits"][kind]) >= _quantity(res["requests"][kind])
     # measured (README "Capacity"): master ~100 MiB, a worker up to ~800 MiB in a Monte Carlo run,
@@ -187,6 +188,10 @@ def test_proxy_limits_agree_with_the_service():
     assert m and int(m.group(1)) * 2**20 == body
     read = int(re.search(r"proxy_read_timeout (\d+)s;", PROXY_CONF).group(1))
     assert read > int(SETTINGS_MAP["ROLLOFF_TIMEOUT_S"])
+    assert read > int(SETTINGS_MAP["ROLLOFF_REQUEST_DEADLINE_S"])
+    for timeout in ("client_header_timeout", "client_body_timeout"):
+        value = int(re.search(rf"{timeout} (\d+)s;", PROXY_CONF).group(1))
+        assert value == int(SETTINGS_MAP["ROLLOFF_BODY_TIMEOUT_S"]), timeout
     for directive in ("proxy_request_buffering on;", "proxy_buffering on;", "client_body_timeout",
                       "client_header_timeout"):
         assert directive in PROXY_CONF

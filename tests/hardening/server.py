@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import http.client
 import os
+import random
 import signal
 import socket
 import subprocess
@@ -22,7 +23,11 @@ ROOT = Path(__file__).resolve().parents[2]
 
 
 def free_port() -> int:
-    """A TCP port free on 127.0.0.1 at the time of the call (``TEST_PORT_RANGE`` honoured)."""
+    """A TCP port free on 127.0.0.1 at the time of the call.
+
+    ``ROLLOFF_TEST_PORTS=first-last`` confines it to a range (a shared machine's allotment);
+    otherwise the system picks one (tests/ports.py).
+    """
     return _free_port()
 
 

@@ -1,7 +1,10 @@
 """The bad-input corpus (tests/hardening/corpus.py) through the Flask test client.
 
 Every hostile request gets a 4xx application/problem+json naming the field,
-and the service answers a good request normally after each batch.
+with no traceback or server path in the body, and the service answers a good
+request normally after each batch. Cases in ``corpus.PENDING`` (fixes owned
+elsewhere) are run and their outcome reported in the skip reason until
+``corpus.ENFORCE_PENDING`` is switched on.
 """
 
 from __future__ import annotations
@@ -40,8 +43,9 @@ def _param(case: corpus.Case):
 
 
 def test_corpus_is_large_enough():
-    assert len(_CASES) >= 60
+    assert len(_CASES) >= 300
     assert len({c.name for c in _CASES}) == len(_CASES)
+    assert set(corpus.PENDING) <= {c.name for c in _CASES}
 
 
 @pytest.fixture(scope="module")
@@ -57,6 +61,9 @@ def _send(client, case: corpus.Case):
 def test_hostile_request_gets_a_problem_naming_the_field(client, case):
     r = _send(client, case)
     verdict = corpus.judge(case, r.status_code, r.content_type or "", r.get_data())
+    if case.name in corpus.PENDING and not corpus.ENFORCE_PENDING:
+        pytest.skip(f"fix owned elsewhere ({corpus.PENDING[case.name]}); today: "
+                    + ("PASSES" if verdict is None else verdict[:200]))
     assert verdict is None, verdict
 
 

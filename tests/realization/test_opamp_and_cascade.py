@@ -9,7 +9,7 @@ import pytest
 
 from service.approximation import Section, SectionKind, design_by_order, sections_response
 from service.circuit import ac_response
-from service.realization import OpAmpSpec, design_filter, design_to_circuit
+from service.realization import OpAmpSpec, cascade_circuit, design_filter
 from service.realization.fit import fit_section, target_poles
 from service.realization.opamp import gbw_rule_of_thumb, slew_required
 from service.circuit import OpAmpModel, transfer_function_zpk
@@ -82,13 +82,13 @@ def test_sections_in_ascending_q_by_default():
     d = design_filter(approx)
     qs = [0.5 if s.section.q is None else s.section.q for s in d.stages]
     assert qs == sorted(qs)
-    d2 = design_filter(approx, section_order="given")
+    d2 = design_filter(approx, section_order="as_computed")
     assert [s.section.f0_hz for s in d2.stages] == pytest.approx([s.f0_hz for s in approx.sections])
 
 
 def _dense_stage_peaks(design):
     f = np.logspace(0, 6, 20001)
-    circuit = design_to_circuit(design)
+    circuit = cascade_circuit(design.plans)
     nodes = [s.output_node for s in design.stages]
     return [float(np.max(np.abs(ac_response(circuit, f, output=n)[0]))) for n in nodes]
 
@@ -107,7 +107,7 @@ def test_gain_distribution_keeps_intermediate_outputs_below_the_margin():
     # High-Q last: the second section alone peaks about 20 dB; with ascending Q it comes last.
     secs = [Section(SectionKind.BANDPASS, 2, 1000.0, 10.0, None, 4.0),
             Section(SectionKind.LOWPASS, 2, 1200.0, 0.6, None, 3.0)]
-    d = design_filter(sections_record(secs), stage_peak_margin_db=0.5, section_order="given",
+    d = design_filter(sections_record(secs), stage_peak_margin_db=0.5, section_order="as_computed",
                       topology=["state_variable", "state_variable"])
     out = d.stages[-1].peak_gain_db
     assert d.stages[0].peak_gain_db <= out + 0.5 + 1e-6
@@ -117,16 +117,16 @@ def test_gain_distribution_keeps_intermediate_outputs_below_the_margin():
     # The filter response is the product of the sections (gain kept).
     f = np.array([300.0, 1000.0, 3000.0])
     want = sections_response(secs, 2 * np.pi * f)
-    got = ac_response(design_to_circuit(d), f)[0]
+    got = ac_response(cascade_circuit(d.plans), f)[0]
     np.testing.assert_allclose(np.abs(got), np.abs(want), rtol=0.05)
 
 
 def test_fixed_gain_stage_peaking_is_reported():
     secs = [Section(SectionKind.LOWPASS, 2, 1000.0, 8.0, None, 1.0),
             Section(SectionKind.LOWPASS, 2, 300.0, 0.55, None, 1.0)]
-    d = design_filter(sections_record(secs), section_order="given", topology="sallen_key",
+    d = design_filter(sections_record(secs), section_order="as_computed", topology="sallen_key",
                       strategy="unity_gain")
-    assert any(w.code == "stage_peaking" and w.stage == 0 for w in d.warnings)
+    assert any(w.code == "stage_peaking" and w.stage == 1 for w in d.warnings)  # stage numbers count from 1
     assert not any(w.code == "high_q_single_opamp" for w in d.warnings)
 
 

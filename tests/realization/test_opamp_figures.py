@@ -6,7 +6,8 @@ import pytest
 
 from service.approximation import design_by_order
 from service.circuit import OpAmpSources
-from service.realization import OpAmpSpec, design_filter, document_from_design
+from service.realization import OpAmpSpec, design_filter
+from service.workflows import outcome_of
 from service.realization.errors import RealizationError
 from service.realization.opamp import sources_of
 
@@ -36,7 +37,7 @@ def test_figures_in_si_units():
 def test_figures_reach_every_op_amp_of_the_document():
     op = {"gbw_hz": 3e6, "en_nv_rthz": 6.0, "in_pa_rthz": 0.9, "vos_v": 1e-3, "ib_a": 2e-9, "rail_headroom_v": 0.05}
     d = design_filter(design_by_order("bandpass", "butterworth", 4, [900.0, 1100.0]), opamp=op)
-    doc = document_from_design(d)
+    doc = outcome_of(d).as_dict()
     for stage in doc["stages"]:
         for u in stage["opamps"]:
             for key, value in op.items():

@@ -201,26 +201,27 @@ def test_bad_options(kwargs, field):
 
 
 def test_with_supply_and_documents_carry_the_figures():
-    from service.realization import document_from_design, with_supply
+    from service.errors import RolloffError
+    from service.realization import with_supply
+    from service.workflows import DesignDocument, outcome_of
     d = CASCADES["lowpass-butterworth6"]()
     same, none = with_supply(d, supply=None)
     assert same is d and none is None
     d2, rep = with_supply(d, supply=RAIL)
     assert d2.netlist == rep.netlist and "VPOS vpos 0 DC 5" in d2.netlist
     assert len(d2.bom) == len(d.bom) + 4 and d.netlist != d2.netlist
-    assert d2.settings["supply"] == {"v_pos": 5.0, "v_neg": 0.0, "mid_rail": "buffered", "input_coupling": "auto"}
     # an edited document keeps its op-amp figures: the same operating point from the document
-    doc = document_from_design(d)
-    same_doc = supply_report(doc, supply=RAIL)
+    doc = outcome_of(d).as_dict()
+    same_doc = supply_report(DesignDocument.from_json(doc, "design").plans("design"), supply=RAIL)
     assert [x.offset_v for x in same_doc.opamp_bias] == pytest.approx([x.offset_v for x in rep.opamp_bias], abs=1e-12)
     doc["stages"][0]["opamps"][0]["vos_v"] = -3e-3
-    rep_doc = supply_report(doc, supply=RAIL)
+    rep_doc = supply_report(DesignDocument.from_json(doc, "design").plans("design"), supply=RAIL)
     u1 = doc["stages"][0]["opamps"][0]["ref"]
     b = {x.ref: x for x in rep_doc.opamp_bias}[u1]
     b0 = {x.ref: x for x in rep.opamp_bias}[u1]
     # the offset moves by the change of vos times the stage's DC noise gain (1 + Rf/Rg >= 1)
     assert b.offset_v - b0.offset_v <= -4.2e-3 * (1 - 1e-6)
     doc["stages"][0]["opamps"][0]["en_nv_rthz"] = -1.0
-    with pytest.raises(RealizationError) as err:
-        supply_report(doc, supply=RAIL)
+    with pytest.raises(RolloffError) as err:
+        supply_report(DesignDocument.from_json(doc, "design").plans("design"), supply=RAIL)
     assert err.value.field == "design.stages[0].opamps[0].en_nv_rthz"

@@ -5,7 +5,8 @@ from __future__ import annotations
 import pytest
 
 from service.approximation import Section, SectionKind, design_by_order
-from service.realization import design_filter, document_from_design
+from service.realization import design_filter
+from service.workflows import outcome_of
 from tests.realization.spice_checks import one_section
 
 
@@ -54,7 +55,7 @@ def test_mains_notch_caution(fz, expect):
 
 def test_warnings_are_code_and_message_in_the_document():
     sec = Section(SectionKind.NOTCH, 2, 50.0, 5.0, 50.0, 1.0)
-    doc = document_from_design(design_filter(one_section(sec, "bandstop")))
+    doc = outcome_of(design_filter(one_section(sec, "bandstop"))).as_dict()
     assert doc["warnings"] and all({"code", "message"} <= set(w) for w in doc["warnings"])
 
 

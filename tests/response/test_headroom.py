@@ -25,7 +25,7 @@ SWING = 1.0
 OPAMP = {"gbw_hz": 10e6, "output_swing_v": SWING}
 
 
-def _cascade(order="given"):
+def _cascade(order="as_computed"):
     """Two lowpass stages, a Q = 5 section (about 14 dB of peaking) ahead of a Q = 0.6 one."""
     secs = [Section(SectionKind.LOWPASS, 2, 1000.0, 5.0, None, 1.0),
             Section(SectionKind.LOWPASS, 2, 1300.0, 0.6, None, 1.0)]

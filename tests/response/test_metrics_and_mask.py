@@ -1,4 +1,4 @@
-"""Frequency metrics, requirement masks and the guarantee between grid points."""
+"""Frequency metrics, requirement verdicts in a response, and the guarantee between grid points."""
 
 from __future__ import annotations
 
@@ -8,9 +8,22 @@ import numpy as np
 import pytest
 import scipy.signal as ss
 
-from service.errors import LimitExceeded
-from service.response import (FrequencyGrid, ImproperSystem, InvalidGrid, InvalidMask, Mask, MaskSegment,
-                              ZpkSystem, analyze)
+from service.circuit.roots import RootSet
+from service.errors import LimitExceeded, RolloffError
+from service.response import FrequencyGrid, ImproperSystem, InvalidGrid, InvalidMask, ZpkSystem, analyze
+from service.response.verification import Band, Criteria, LossLimit, verify
+from service.workflows import Requirement
+
+
+def _requirement(response, pb, sb, rip, att):
+    return Requirement(response=response, passband_hz=pb, stopband_hz=sb, passband_ripple_db=rip,
+                       stopband_attenuation_db=att).criteria(finite_opamps=False)
+
+
+def _analyze(sysm, grid, criteria):
+    """A response with its verdict, as the response workflow gives it."""
+    verdict = verify(RootSet.from_zpk(sysm.zeros, sysm.poles, sysm.gain), criteria).verdict()
+    return analyze(sysm, grid, verdict=verdict)
 
 W0 = 2 * math.pi * 1000.0
 
@@ -83,53 +96,59 @@ def _cheb_case():
 def test_mask_failure_between_coarse_grid_points_is_found():
     sysm = _cheb_case()
     coarse = np.array([10.0, 3000.0, 10000.0])  # no sample near any ripple valley
-    tight = Mask((MaskSegment(0.0, 1000.0, max_loss_db=0.95), MaskSegment(3000.0, math.inf, min_loss_db=40.0)))
-    r = analyze(sysm, coarse, mask=tight)
+    tight = Criteria((LossLimit(Band.PASSBAND, 0.0, 1000.0, 0.95),
+                      LossLimit(Band.STOPBAND, 3000.0, math.inf, 40.0, open_end=True)))
+    r = _analyze(sysm, coarse, tight)
     # the display grid alone would pass the mask ...
     assert -r.magnitude_db[0] < 0.95 and -r.magnitude_db[1] > 40.0
     # ... but a 1 dB equiripple (scipy.signal cheb1ap, reference library) misses 0.95 dB by 0.05 dB
-    assert r.mask_result.passed is False
-    assert r.mask_result.worst_margin_db == pytest.approx(-0.05, abs=1e-9)
-    assert 0.0 < r.mask_result.worst_frequency_hz < 1000.0
-    assert r.mask_result.segments[0].passed is False and r.mask_result.segments[1].passed is True
+    assert r.verdict.meets is False
+    assert r.verdict.worst_margin_db == pytest.approx(-0.05, abs=1e-9)
+    assert 0.0 <= r.verdict.worst.worst_hz < 1000.0
+    assert r.verdict.segments[0].met is False and r.verdict.segments[1].met is True
 
 
 def test_mask_at_the_ripple_passes_and_worst_point_is_a_ripple_valley():
     sysm = _cheb_case()
-    ok = Mask.from_requirement("lowpass", 1000.0, 3000.0, 1.0, 40.0)
-    r = analyze(sysm, [10.0, 3000.0], mask=ok)
-    assert r.mask_result.passed
-    assert abs(r.mask_result.worst_margin_db) < 1e-9
+    ok = _requirement("lowpass", 1000.0, 3000.0, 1.0, 40.0)
+    r = _analyze(sysm, [10.0, 3000.0], ok)
+    assert r.verdict.meets
+    assert abs(r.verdict.worst_margin_db) < 1e-9
     # a valley of T_7: |H| = 1/sqrt(1+eps^2) where cos(7 acos w) = +-1, w = cos(k pi/7)
     valleys = 1000.0 * np.cos(np.arange(0, 4) * math.pi / 7)
-    assert np.min(np.abs(valleys - r.mask_result.worst_frequency_hz)) < 1e-3
+    assert np.min(np.abs(valleys - r.verdict.worst.worst_hz)) < 1e-3
 
 
 def test_stopband_lobe_between_grid_points_is_found():
     z, p, k = ss.lp2lp_zpk(*ss.ellipap(6, 0.5, 60.0), W0)
     sysm = ZpkSystem(z, p, k)
-    m = Mask((MaskSegment(0.0, 1000.0, max_loss_db=0.5), MaskSegment(1500.0, math.inf, min_loss_db=60.05)))
-    r = analyze(sysm, [10.0, 1e5], mask=m)
+    m = Criteria((LossLimit(Band.PASSBAND, 0.0, 1000.0, 0.5),
+                  LossLimit(Band.STOPBAND, 1500.0, math.inf, 60.05, open_end=True)))
+    r = _analyze(sysm, [10.0, 1e5], m)
     # source: scipy.signal (reference library) -- ellipap stopband equiripple at rs = 60 dB
-    assert not r.mask_result.passed
-    assert r.mask_result.segments[1].worst_margin_db == pytest.approx(-0.05, abs=1e-7)
+    assert not r.verdict.meets
+    assert r.verdict.segments[1].margin_db == pytest.approx(-0.05, abs=1e-7)
 
 
-def test_mask_from_requirement_shapes_and_errors():
-    m = Mask.from_requirement("bandpass", [35e3, 45e3], [25e3, 60e3], 1.0, 30.0)
-    assert [(s.start_hz, s.stop_hz) for s in m.segments] == [(0.0, 25e3), (35e3, 45e3), (60e3, math.inf)]
-    m = Mask.from_requirement("bandstop", [40.0, 70.0], [49.0, 61.0], 1.0, 40.0)
-    assert [s.is_passband for s in m.segments] == [True, False, True]
-    with pytest.raises(InvalidMask) as e:
-        Mask.from_requirement("lowpass", 2000.0, 1000.0, 1.0, 40.0)
+def test_requirement_segments_shapes_and_errors():
+    m = _requirement("bandpass", [35e3, 45e3], [25e3, 60e3], 1.0, 30.0)
+    assert [(s.start_hz, s.stop_hz) for s in m.limits] == [(0.0, 25e3), (35e3, 45e3), (60e3, math.inf)]
+    m = _requirement("bandstop", [40.0, 70.0], [49.0, 61.0], 1.0, 40.0)
+    assert [s.band is Band.PASSBAND for s in m.limits] == [True, False, True]
+    assert m.limits[2].stop_hz == 700.0 and m.limits[2].open_end      # an open passband: 10 x its edge
+    with pytest.raises(RolloffError) as e:
+        _requirement("lowpass", 2000.0, 1000.0, 1.0, 40.0)
     assert e.value.field == "stopband_hz"
-    with pytest.raises(InvalidMask) as e:
-        Mask.from_requirement("bandpass", 1000.0, [500.0, 2000.0], 1.0, 40.0)
+    with pytest.raises(RolloffError) as e:
+        _requirement("bandpass", 1000.0, [500.0, 2000.0], 1.0, 40.0)
     assert e.value.field == "passband_hz"
+    with pytest.raises(RolloffError) as e:
+        _requirement("lowpass", 1000.0, 2000.0, 1.0, 0.5)
+    assert e.value.field == "stopband_attenuation_db"
     with pytest.raises(InvalidMask):
-        Mask.from_requirement("lowpass", 1000.0, 2000.0, 1.0, 0.5)
+        LossLimit(Band.PASSBAND, 100.0, 50.0, 1.0)
     with pytest.raises(InvalidMask):
-        MaskSegment(100.0, 50.0, max_loss_db=1.0)
+        LossLimit(Band.PASSBAND, 100.0, math.inf, 1.0)     # only a stopband may run to infinity
 
 
 def test_grid_and_system_validation():
@@ -158,7 +177,7 @@ def test_grid_and_system_validation():
 
 def test_result_forms_table_json_svg():
     sysm = _cheb_case()
-    r = analyze(sysm, FrequencyGrid(10, 1e5, 200), mask=Mask.from_requirement("lowpass", 1000, 3000, 1.0, 40.0))
+    r = _analyze(sysm, FrequencyGrid(10, 1e5, 200), _requirement("lowpass", 1000, 3000, 1.0, 40.0))
     t = r.table()
     assert list(t) == ["frequency_hz", "magnitude_db", "phase_deg", "group_delay_s"]
     assert all(v.shape == (200,) for v in t.values())

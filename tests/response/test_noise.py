@@ -84,7 +84,7 @@ def _noisy_design():
     secs = [Section(SectionKind.LOWPASS, 2, 1000.0, 1.3, None, 1.0),
             Section(SectionKind.LOWPASS, 2, 1000.0, 0.54, None, 1.0)]
     from tests.realization.spice_checks import sections_record
-    return design_filter(sections_record(secs), opamp=op, section_order="given")
+    return design_filter(sections_record(secs), opamp=op, section_order="as_computed")
 
 
 def test_integrated_noise_matches_ngspice_total():

@@ -8,8 +8,8 @@ import math
 import numpy as np
 import pytest
 
-from service.response import Mask
-from service.tolerance import run_tolerance, wilson_interval
+from tests.tolerance.conftest import requirement_criteria, run_tolerance
+from service.tolerance import wilson_interval
 from service.tolerance.montecarlo import tile_trials
 
 from .conftest import GRID, with_tolerances
@@ -86,7 +86,7 @@ def test_single_rc_group_delay_and_phase_match_the_closed_form(rc1):
 def test_ample_margin_gives_full_yield_and_the_wilson_bound(butter8_sk):
     # source: E. B. Wilson, "Probable inference, the law of succession, and statistical inference",
     # JASA 22 (1927) 209-212: for n successes of n the lower bound is n/(n + z^2)
-    mask = Mask.from_requirement("lowpass", 300.0, 4000.0, 3.0, 20.0)
+    mask = requirement_criteria("lowpass", 300.0, 4000.0, 3.0, 20.0)
     n = 2000
     r = run_tolerance(butter8_sk, trials=n, frequencies_hz=GRID, mask=mask)
     y = r.yield_
@@ -110,9 +110,9 @@ def test_wilson_interval_against_the_closed_form():
 def test_failures_by_criterion_counts_the_failing_segment(butter8_sk):
     # a stopband bound the design meets only about half the time at the edge: failures all there
     nominal = run_tolerance(butter8_sk, trials=1, frequencies_hz=GRID,
-                            mask=Mask.from_requirement("lowpass", 300.0, 2000.0, 3.0, 20.0))
+                            mask=requirement_criteria("lowpass", 300.0, 2000.0, 3.0, 20.0))
     edge_loss = [w for w in nominal.worst_case if w["band"] == "stopband"][0]["nominal_loss_db"]
-    mask = Mask.from_requirement("lowpass", 300.0, 2000.0, 3.0, edge_loss)
+    mask = requirement_criteria("lowpass", 300.0, 2000.0, 3.0, edge_loss)
     r = run_tolerance(butter8_sk, trials=2000, frequencies_hz=GRID, mask=mask)
     fails = r.yield_["failures_by_criterion"]
     assert fails[0]["band"] == "stopband" and fails[0]["start_hz"] == 2000.0
@@ -160,9 +160,10 @@ def test_reply_fields_table_and_svg(butter8_sk, lowpass_mask):
 
 def test_band_responses_report_both_3db_frequencies():
     from service.approximation import design_by_order
-    from service.realization import design_filter, document_from_design
-    doc = document_from_design(design_filter(design_by_order("bandpass", "butterworth", 2, [800.0, 1250.0])))
-    mask = Mask.from_requirement("bandpass", [850.0, 1150.0], [300.0, 3000.0], 3.0, 15.0)
+    from service.realization import design_filter
+    from service.workflows import outcome_of
+    doc = outcome_of(design_filter(design_by_order("bandpass", "butterworth", 2, [800.0, 1250.0]))).as_dict()
+    mask = requirement_criteria("bandpass", [850.0, 1150.0], [300.0, 3000.0], 3.0, 15.0)
     r = run_tolerance(doc, trials=300, frequencies_hz=np.geomspace(100, 1e4, 301), mask=mask)
     m = r.metrics
     assert "f3db_hz" not in m

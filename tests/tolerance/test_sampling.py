@@ -8,7 +8,8 @@ import numpy as np
 import pytest
 
 from service.errors import LimitExceeded
-from service.tolerance import InvalidDistribution, InvalidTolerance, run_tolerance
+from service.tolerance import InvalidDistribution, InvalidTolerance
+from tests.tolerance.conftest import run_tolerance
 
 from .conftest import GRID, with_tolerances
 

@@ -5,12 +5,12 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from service.realization.document import plans_from_document
-from service.tolerance import run_tolerance
+from tests.tolerance.conftest import plans_of
+from tests.tolerance.conftest import requirement_criteria, run_tolerance
 from service.tolerance.sampling import resolve_distribution, varied_parts
 from service.tolerance.sensitivity import stage_sensitivity
 
-from .conftest import GRID
+from .conftest import GRID, PASSBAND_EDGE_HZ
 
 TOPOLOGY_CASES = ["sallen_key_lowpass", "sallen_key_highpass", "multiple_feedback", "state_variable", "tow_thomas"]
 
@@ -21,8 +21,8 @@ def test_sum_identities_of_active_rc_stages(designs, name):
     # with ideal op-amps f0 scales as 1/R and 1/C, Q is dimensionless, so
     # sum_R S^f0_R = -1, sum_C S^f0_C = -1, sum_R S^Q_R = 0, sum_C S^Q_C = 0 (from memory)
     doc = designs[name]
-    plans, _ = plans_from_document(doc)
-    parts = varied_parts(plans, doc, resolve_distribution("gaussian"))
+    plans = plans_of(doc)
+    parts = varied_parts(plans, (), resolve_distribution("gaussian"))
     s = stage_sensitivity(plans, parts)
     for k, plan in enumerate(plans):
         for kind in ("resistor", "capacitor"):
@@ -37,8 +37,8 @@ def test_engine_sensitivities_match_the_closed_form(designs, name):
     # the circuit engine's central differences against the topology's complex-step derivative
     # of its own design equations (two independent routes to the same numbers)
     doc = designs[name]
-    plans, _ = plans_from_document(doc)
-    parts = varied_parts(plans, doc, resolve_distribution("gaussian"))
+    plans = plans_of(doc)
+    parts = varied_parts(plans, (), resolve_distribution("gaussian"))
     s = stage_sensitivity(plans, parts)
     for plan in plans:
         analytic = plan.topology.sensitivities(plan.section, plan.strategy, plan.values)
@@ -55,7 +55,7 @@ def test_sallen_key_unity_gain_published_values(designs):
     doc = designs["sallen_key_lowpass"]
     r = run_tolerance(doc, trials=10, frequencies_hz=GRID)
     rows = {x["ref"]: x for x in r.sensitivity}
-    plans, _ = plans_from_document(doc)
+    plans = plans_of(doc)
     for c in plans[0].components:
         assert rows[c.ref]["f0"] == pytest.approx(-0.5, abs=1e-6)
     by_role = {c.role: c.ref for c in plans[0].components}
@@ -67,7 +67,7 @@ def test_magnitude_sensitivity_ranking_and_units(butter8_sk, lowpass_mask):
     r = run_tolerance(butter8_sk, trials=10, frequencies_hz=GRID, mask=lowpass_mask)
     rows = r.sensitivity
     assert len(rows) == 16
-    keys = [repr(1000.0), repr(10 ** 3.4)]
+    keys = [repr(PASSBAND_EDGE_HZ), repr(10 ** 3.4)]
     assert all(list(x["magnitude_db_per_pct"]) == keys for x in rows)
     contrib = [x["contribution_db"] for x in rows]
     assert contrib == sorted(contrib, reverse=True)
@@ -80,11 +80,13 @@ def test_magnitude_sensitivity_ranking_and_units(butter8_sk, lowpass_mask):
         assert abs(sr) > 1e-3
 
 
-def test_worst_case_bounds_the_uniform_monte_carlo(butter8_sk, lowpass_mask):
+def test_worst_case_bounds_the_uniform_monte_carlo(butter8_sk):
     # extreme-value analysis: for small tolerances the response is nearly linear in the parts, so the
     # sign corners bound every trial drawn uniformly inside the tolerance box
-    # (Schaumann & Van Valkenburg, sec. 3.5, worst-case analysis) (from memory)
-    r = run_tolerance(butter8_sk, trials=3000, seed=9, distribution="uniform", frequencies_hz=GRID, mask=lowpass_mask)
+    # (Schaumann & Van Valkenburg, sec. 3.5, worst-case analysis) (from memory); the corners are taken at the
+    # requirement's edges, here the 3 dB point of the 1 kHz Butterworth and 10^3.4 Hz
+    mask = requirement_criteria("lowpass", 1000.0, 10 ** 3.4, 3.0, 40.0)
+    r = run_tolerance(butter8_sk, trials=3000, seed=9, distribution="uniform", frequencies_hz=GRID, mask=mask)
     wc = r.worst_case
     assert [(w["frequency_hz"], w["direction"]) for w in wc] == [
         (1000.0, "max_loss"), (1000.0, "min_loss"), (10 ** 3.4, "max_loss"), (10 ** 3.4, "min_loss")]

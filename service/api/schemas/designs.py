@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import marshmallow as ma
 
-from service.api.fields import Quantity, StrictInteger
+from service.api.fields import PART_REF, Quantity, StrictInteger
 from service.api.schemas.common import ReplySchema, StrictSchema, one_of
 from service.api.schemas.filters import (FREQ_RANGE, FilterSchema, FrequencyOrPair, GroupDelayLimitSchema,
                                          SectionSchema, requirement_from)
@@ -75,6 +75,8 @@ class RangeField(ma.fields.List):
                          validate=ma.validate.Length(equal=2), **kwargs)
 
     def _deserialize(self, value, attr, data, **kwargs):
+        if isinstance(value, (list, tuple)) and len(value) != 2:
+            raise ma.ValidationError(f"expected [low, high]: 2 values, got {len(value)}")
         low, high = super()._deserialize(value, attr, data, **kwargs)
         if not low <= high:
             raise ma.ValidationError("expected [low, high] with low <= high")
@@ -227,7 +229,7 @@ def _parts_policy(parts: dict) -> dict:
 
 
 class ComponentSchema(StrictSchema):
-    ref = ma.fields.String(required=True, validate=_REF,
+    ref = ma.fields.String(required=True, validate=[_REF, PART_REF],
                            metadata={"description": "Reference unique across the design (R7, C3)."})
     role = ma.fields.String(allow_none=True, validate=ma.validate.Length(min=1, max=L.MAX_REF_LENGTH), metadata={
         "description": "Position in the topology (R1, Rf ...); optional when editing."})
@@ -243,7 +245,7 @@ class ComponentSchema(StrictSchema):
 
 
 OpAmpUseSchema = StrictSchema.from_dict({
-    "ref": ma.fields.String(required=True, validate=_REF),
+    "ref": ma.fields.String(required=True, validate=[_REF, PART_REF]),
     "role": ma.fields.String(allow_none=True, validate=ma.validate.Length(min=1, max=L.MAX_REF_LENGTH)),
     "gbw_hz": Quantity(unit="Hz", allow_none=True, validate=ma.validate.Range(min=L.GBW_RANGE_HZ[0],
                                                                                max=L.GBW_RANGE_HZ[1]),

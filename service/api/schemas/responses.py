@@ -222,7 +222,7 @@ class ResponseQuerySchema(StrictSchema):
     cutoff_at = one_of(CutoffAt, load_default="family", description="`family` or `-3db`.")
     start_hz = Quantity(unit="Hz", validate=FREQ_RANGE)
     stop_hz = Quantity(unit="Hz", validate=FREQ_RANGE)
-    points = StrictInteger(load_default=501, validate=ma.validate.Range(min=2), metadata={
+    points = ma.fields.Integer(load_default=501, validate=ma.validate.Range(min=2), metadata={
         "description": "Number of points, at most ROLLOFF_MAX_FREQUENCY_POINTS."})
     format = one_of(["json", "csv", "svg"], load_default="json", description="`csv` or `svg` as for POST.")
     table = one_of(["frequency", "time"], load_default="frequency", description="Rows of the CSV table.")

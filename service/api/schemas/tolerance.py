@@ -73,7 +73,7 @@ class ToleranceRequestSchema(StrictSchema):
         values=ma.fields.Float(validate=ma.validate.Range(min=-1e5, max=1e5)),
         validate=ma.validate.Length(max=256), metadata={
             "description": "Temperature-coefficient bounds (ppm/°C) by ref (\"C3\"), dielectric (\"C0G\") or kind."})
-    gbw_spread = ma.fields.Float(validate=ma.validate.Range(min=0, max=0.9), metadata={
+    gbw_spread = ma.fields.Float(validate=ma.validate.Range(min=0, max=0.5), metadata={
         "description": "Relative op-amp gain-bandwidth tolerance (0.3 = ±30 %)."})
     frequencies = FrequenciesField(metadata={
         "description": "Grid of the percentiles: {start_hz, stop_hz, points, spacing} or a list (Hz); default 501 "

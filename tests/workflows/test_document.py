@@ -1,4 +1,4 @@
-"""The design document: round trip, edits, and strict reading."""
+"""The design document: round trip, edits, and strict reading (service.workflows.document)."""
 
 from __future__ import annotations
 
@@ -9,31 +9,46 @@ import numpy as np
 import pytest
 
 from service.approximation import design_by_order, design_by_requirement
-from service.realization import (
-    RealizationError, design_filter, design_to_circuit, document_from_design, evaluate_document,
-)
-from service.realization.errors import InvalidDocument, UnknownPartKind, UnknownTopology
 from service.circuit import ac_response
+from service.config import Settings
+from service.errors import RolloffError
+from service.realization import RealizationError, cascade_circuit, design_filter
+from service.realization.errors import UnknownTopology
+from service.workflows import DesignDocument, DocumentError, Requirement, evaluate_json, outcome_of
+
+REQUIREMENT = Requirement(response="lowpass", family="elliptic", passband_hz=1000.0, stopband_hz=1600.0,
+                          passband_ripple_db=0.5, stopband_attenuation_db=40.0)
+
+
+def evaluate_document(doc):
+    """The realized design of a document, as /v1/tolerance and /v1/responses read one (fields under design.)."""
+    return evaluate_json(doc, Settings(), path="design").design
 
 
 @pytest.fixture(scope="module")
-def design():
+def outcome():
     approx = design_by_requirement("lowpass", "elliptic", 1000.0, 1600.0, 0.5, 40.0)
-    return design_filter(approx, requirement={"passband_hz": 1000.0, "stopband_hz": 1600.0})
+    return outcome_of(design_filter(approx), REQUIREMENT)
+
+
+@pytest.fixture(scope="module")
+def design(outcome):
+    return outcome.design
 
 
 @pytest.fixture()
-def doc(design):
-    return copy.deepcopy(document_from_design(design))
+def doc(outcome):
+    return copy.deepcopy(outcome.as_dict())
 
 
 def test_document_is_plain_json_with_public_fields(doc):
     text = json.dumps(doc, allow_nan=False)
     back = json.loads(text)
-    for key in ("response", "family", "order", "stages", "requirement", "bom", "netlist", "summary", "warnings"):
+    for key in ("response", "family", "order", "stages", "requirement", "bom", "netlist", "summary", "verdict",
+                "warnings"):
         assert key in back
     st = back["stages"][0]
-    for key in ("section", "topology", "strategy", "components", "opamps", "achieved", "peak_gain_db",
+    for key in ("number", "section", "topology", "strategy", "components", "opamps", "achieved", "peak_gain_db",
                 "peak_frequency_hz", "opamp_requirement"):
         assert key in st
     for c in st["components"]:
@@ -43,7 +58,8 @@ def test_document_is_plain_json_with_public_fields(doc):
     for row in back["bom"]:
         assert set(row) == {"ref", "kind", "value", "tolerance", "dielectric", "part_id"}
     assert "VIN in 0 AC 1" in back["netlist"]
-    assert set(back["summary"]) == {"edges", "meets"}
+    assert set(back["summary"]) == {"edges", "meets", "status", "worst_margin_db"}
+    assert [st["number"] for st in back["stages"]] == list(range(1, len(back["stages"]) + 1))
 
 
 def test_refs_unique_and_numbered_in_stage_order(doc):
@@ -63,8 +79,9 @@ def test_netlist_elements_are_the_refs(doc):
     assert all(f"XU{i}" in doc["netlist"] for i in range(1, 3))
 
 
-def test_evaluate_reproduces_achieved(design, doc):
-    again = evaluate_document(doc)
+def test_evaluate_reproduces_achieved(outcome, design, doc):
+    again_outcome = evaluate_json(doc, Settings())
+    again = again_outcome.design
     for a, b in zip(design.stages, again.stages):
         for key in ("f0_hz", "q", "gain", "fz_hz"):
             if a.achieved[key] is None:
@@ -72,9 +89,10 @@ def test_evaluate_reproduces_achieved(design, doc):
             else:
                 assert b.achieved[key] == pytest.approx(a.achieved[key], rel=1e-12)
         assert b.peak_gain_db == pytest.approx(a.peak_gain_db, abs=1e-9)
-    assert again.summary["meets"] == design.summary["meets"]
-    for ra, rb in zip(design.summary["edges"], again.summary["edges"]):
+    assert again_outcome.summary()["meets"] == outcome.summary()["meets"]
+    for ra, rb in zip(outcome.summary()["edges"], again_outcome.summary()["edges"]):
         assert rb["loss_db"] == pytest.approx(ra["loss_db"], abs=1e-9)
+    assert again_outcome.as_dict()["verdict"] == outcome.as_dict()["verdict"]
     assert again.netlist == design.netlist
     assert again.bom == design.bom
 
@@ -92,7 +110,7 @@ def test_edited_value_changes_figures(design, doc):
 
 def test_removed_part_is_named(doc):
     removed = doc["stages"][1]["components"].pop(2)
-    with pytest.raises(InvalidDocument) as e:
+    with pytest.raises(DocumentError) as e:
         evaluate_document(doc)
     assert e.value.field == "design.stages[1].components"
     assert removed["role"] in e.value.message
@@ -100,7 +118,7 @@ def test_removed_part_is_named(doc):
 
 def test_repeated_ref_is_an_error(doc):
     doc["stages"][1]["components"][0]["ref"] = doc["stages"][0]["components"][0]["ref"]
-    with pytest.raises(InvalidDocument) as e:
+    with pytest.raises(DocumentError) as e:
         evaluate_document(doc)
     assert e.value.field == "design.stages[1].components[0].ref"
     assert "repeats" in e.value.message
@@ -109,7 +127,8 @@ def test_repeated_ref_is_an_error(doc):
 def test_wrong_kind_is_an_error(doc):
     comp = next(c for c in doc["stages"][1]["components"] if c["kind"] == "resistor")
     comp["kind"] = "capacitor"
-    with pytest.raises(InvalidDocument) as e:
+    comp["value"] = 1e-9
+    with pytest.raises(DocumentError) as e:
         evaluate_document(doc)
     assert e.value.field.endswith(".kind")
     assert "needs a resistor" in e.value.message
@@ -118,8 +137,9 @@ def test_wrong_kind_is_an_error(doc):
 def test_unknown_kind_and_topology(doc):
     d1 = copy.deepcopy(doc)
     d1["stages"][0]["components"][0]["kind"] = "inductor"
-    with pytest.raises(UnknownPartKind):
+    with pytest.raises(DocumentError) as e:
         evaluate_document(d1)
+    assert e.value.field == "design.stages[0].components[0].kind"
     d2 = copy.deepcopy(doc)
     d2["stages"][0]["topology"] = "ladder"
     with pytest.raises(UnknownTopology) as e:
@@ -137,14 +157,40 @@ def test_roles_optional_assigned_in_topology_order(design, doc):
     assert again.stages[1].achieved["f0_hz"] == pytest.approx(design.stages[1].achieved["f0_hz"], rel=1e-12)
 
 
-def test_design_to_circuit_matches_netlist_model(design, doc):
+def test_cascade_circuit_of_a_read_document_matches_the_design(design, doc):
     f = np.array([100.0, 1000.0, 1500.0])
-    a = ac_response(design_to_circuit(design), f)
-    b = ac_response(design_to_circuit(doc, opamp_model="ideal"), f)
+    a = ac_response(cascade_circuit(design.plans), f)
+    b = ac_response(cascade_circuit(DesignDocument.from_json(doc).plans(), ideal=True), f)
     np.testing.assert_allclose(a, b, rtol=1e-9)
-    with pytest.raises(RealizationError) as e:
-        design_to_circuit(doc, opamp_model="spice")
-    assert e.value.field == "opamp_model"
+
+
+def test_unknown_keys_anywhere_are_named(doc):
+    for path, where in ((("stopband_hzz",), "requirement"), (("gbw_errror",), "settings"),
+                        (("stages", 0, "colour"), None), (("stages", 1, "components", 0, "value_ohm"), None)):
+        d = copy.deepcopy(doc)
+        node = d
+        for key in path[:-1]:
+            node = node[key]
+        (node if where is None else node[where])[path[-1]] = 1
+        with pytest.raises(RolloffError) as e:
+            DesignDocument.from_json(d, "design")
+        assert e.value.field.endswith(path[-1]), e.value.field
+        assert e.value.field.startswith("design.")
+
+
+def test_an_edited_requirement_is_verified_as_edited(doc):
+    strict = copy.deepcopy(doc)
+    strict["requirement"]["passband_ripple_db"] = 0.01
+    assert evaluate_json(strict, Settings()).verdict.verdict.status == "misses"
+    lenient = copy.deepcopy(doc)
+    lenient["requirement"]["stopband_attenuation_db"] = 10.0
+    lenient["requirement"]["passband_ripple_db"] = 1.0
+    assert evaluate_json(lenient, Settings()).verdict.meets
+    reversed_ = copy.deepcopy(doc)
+    reversed_["requirement"]["stopband_hz"] = 500.0
+    with pytest.raises(Exception) as e:
+        DesignDocument.from_json(reversed_, "design")
+    assert e.value.field == "design.requirement.stopband_hz"
 
 
 def test_bad_inputs_raise_with_field():
@@ -179,7 +225,7 @@ def test_sallen_key_cannot_do_a_notch():
 def test_roundtrip_with_a_given_opamp_keeps_macromodel_figures():
     approx = design_by_order("highpass", "chebyshev1", 5, 2000.0, passband_ripple_db=0.5)
     d = design_filter(approx, opamp={"gbw_hz": 1e6, "slew_v_per_us": 0.5, "a0_db": 100.0, "part_id": "OA-7"})
-    doc = json.loads(json.dumps(document_from_design(d), allow_nan=False))
+    doc = json.loads(json.dumps(outcome_of(d).as_dict(), allow_nan=False))
     again = evaluate_document(doc)
     for a, b in zip(d.stages, again.stages):
         if a.achieved_macromodel is None:
