@@ -22,7 +22,7 @@ from service.circuit import Circuit, OpAmpModel, to_spice, transfer_function_zpk
 from service.realization.cascade import analysis_grid, grid_peak
 from service.realization.conditioning import check_stage_poles
 from service.realization.fit import dominant_poles, fit_section, standard_shape, zpk_eval
-from service.realization.gbw import required_gbw_sweep
+from service.realization.gbw import GBW_SPREAD, required_gbw_sweep
 from service.realization.opamp import DEFAULT_A0_DB, RULE_OF_THUMB, SLEW_RULE, gbw_rule_of_thumb, slew_required
 from service.realization.results import AnalysisOptions, Component, Design, OpAmpRequirement, OpAmpUse, Stage
 from service.realization.warnings import collect_warnings
@@ -42,6 +42,7 @@ class StagePlan:
     components: list[Component]
     opamps: list[OpAmpUse]
     notes: list = field(default_factory=list)
+    predistortion: object = None
 
     @property
     def refs(self) -> dict[str, str]:
@@ -193,19 +194,30 @@ def analyze(plans: list[StagePlan], *, response: str | None, family: str | None,
         v_peak = v_in * float(peaks[k])
         rule = gbw_rule_of_thumb(sec.gain, sec.q, sec.f0_hz, error)
         ref = achieved[k]
+        gbw_pre = None
         if plan.opamps:
             u = plan.opamps[0]
             a0 = 10 ** ((DEFAULT_A0_DB if u.a0_db is None else u.a0_db) / 20)
+            sweep = dict(a0=a0, rout_ohm=0.0 if u.rout_ohm is None else u.rout_ohm)
             gbw_req = required_gbw_sweep(
                 lambda model, plan=plan: stage_circuit(plan, model), ref,
-                dominant_poles(sec, ideal_zpk[k][1]), error, rule, a0=a0,
-                rout_ohm=0.0 if u.rout_ohm is None else u.rout_ohm)
+                dominant_poles(sec, ideal_zpk[k][1]), error, rule, **sweep)
+            if u.gbw_hz is not None:
+                # with an op-amp given the stage is predistorted for it: what it needs then
+                gbw_pre = required_gbw_sweep(
+                    lambda model, plan=plan: stage_circuit(plan, model), ref,
+                    dominant_poles(sec, ideal_zpk[k][1]), error, rule * GBW_SPREAD, spread=GBW_SPREAD, **sweep)
         else:
             gbw_req = None
+        pre = plan.predistortion
         req = OpAmpRequirement(
             error=error, gbw_rule_hz=rule, gbw_required_hz=gbw_req,
             slew_required_v_per_us=slew_required(f_sig, v_peak) if plan.opamps else 0.0,
             signal_frequency_hz=f_sig, output_peak_v=v_peak, gbw_rule=RULE_OF_THUMB, slew_rule=SLEW_RULE,
+            gbw_required_predistorted_hz=gbw_pre, gbw_spread=GBW_SPREAD if gbw_pre is not None else None,
+            predistorted=pre is not None,
+            design_section=None if pre is None else {"f0_hz": pre.section.f0_hz, "q": pre.section.q,
+                                                     "fz_hz": pre.section.fz_hz, "gain": pre.section.gain},
         )
         stages.append(Stage(
             index=k, section=sec, topology=plan.topology.name, strategy=plan.strategy,

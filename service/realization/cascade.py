@@ -49,6 +49,8 @@ EXHAUSTIVE_SECTIONS = 6
 #: Points per decade of the coarse peak-search grid, and decades beyond the section frequencies.
 GRID_POINTS_PER_DECADE = 60
 GRID_DECADES_BEYOND = 2.0
+#: Coarse local maxima of each curve refined by zooming.
+PEAK_CANDIDATES = 3
 
 
 def order_sections(sections: list[Section], section_order: str, *,
@@ -111,23 +113,35 @@ def grid_peak(magnitude: Callable[[np.ndarray], np.ndarray], grid_hz: np.ndarray
         Frequency (Hz) of the peak.
     """
     mag = magnitude(grid_hz) if coarse is None else coarse
-    k = np.argmax(mag, axis=1)
-    peak = mag[np.arange(mag.shape[0]), k]
+    n_curves = mag.shape[0]
+    # Refine around each curve's highest few coarse local maxima (ripple peaks of nearly equal height
+    # can swap order between the coarse grid and the true response).
+    interior = np.ones_like(mag, dtype=bool)
+    if mag.shape[1] > 2:
+        interior[:, 1:-1] = (mag[:, 1:-1] >= mag[:, :-2]) & (mag[:, 1:-1] >= mag[:, 2:])
+        interior[:, 0] = mag[:, 0] >= mag[:, 1]
+        interior[:, -1] = mag[:, -1] >= mag[:, -2]
+    ranked = np.argsort(np.where(interior, -mag, np.inf), axis=1, kind="stable")[:, :PEAK_CANDIDATES]
+    curve = np.repeat(np.arange(n_curves), ranked.shape[1])
+    k = ranked.ravel()
+    peak = mag[curve, k]
     fpk = grid_hz[k]
     step = np.log(grid_hz[1] / grid_hz[0]) if grid_hz.size > 1 else 0.01
     for _ in range(zooms):
-        # One fine grid per curve, evaluated for every curve (K is small).
+        # One fine grid per (curve, candidate), evaluated for every curve (K is small).
         offs = np.linspace(-step, step, points)
-        fine = (fpk[:, None] * np.exp(offs)[None, :])            # (K, P)
-        m = magnitude(fine.ravel()).reshape(mag.shape[0], fpk.size, points)
-        own = m[np.arange(fpk.size), np.arange(fpk.size), :]       # (K, P)
+        fine = (fpk[:, None] * np.exp(offs)[None, :])            # (K*C, P)
+        m = magnitude(fine.ravel()).reshape(n_curves, fpk.size, points)
+        own = m[curve, np.arange(fpk.size), :]                    # (K*C, P)
         j = np.argmax(own, axis=1)
         cand = own[np.arange(fpk.size), j]
         better = cand > peak
         peak = np.where(better, cand, peak)
         fpk = np.where(better, fine[np.arange(fpk.size), j], fpk)
         step = step * 2 / (points - 1)
-    return peak, fpk
+    peak = peak.reshape(n_curves, -1)
+    best = np.argmax(peak, axis=1)
+    return peak[np.arange(n_curves), best], fpk.reshape(n_curves, -1)[np.arange(n_curves), best]
 
 
 def gain_freedom(topology, section: Section, strategy: str) -> tuple[str, float]:

@@ -60,7 +60,7 @@ def check_stage_poles(plans, zpks, *, root: str = "design") -> None:
         raise InvalidDocument(
             f"stage {k + 1}: with these part values ({values}) {where}, not within a factor {POLE_SPAN:g} of its "
             f"section's f0_hz = {section.f0_hz:.6g}; a value is probably in the wrong unit (ohm, F)",
-            field=f"{root}.stages[{k}].components")
+            field=f"{root}.stages[{k}].components" if root else f"stages[{k}].components")
 
 
 def check_plans(plans, *, root: str = "design") -> None:

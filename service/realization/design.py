@@ -15,6 +15,7 @@ from dataclasses import replace
 import numpy as np
 
 from service.approximation.types import Section
+from service.circuit import OpAmpModel
 from service.realization.analysis import StagePlan, analyze
 from service.realization.cascade import distribute_gains, gain_freedom, order_sections
 from service.realization.errors import (
@@ -57,7 +58,7 @@ def get_topology(name: str, field: str):
 def check_realizes(topology, section: Section, field: str) -> tuple[str, ...]:
     """The strategies ``topology`` offers for ``section``; :class:`UnsupportedSection` if none."""
     kinds = getattr(topology, "kinds", frozenset())
-    ok = section.kind in kinds
+    ok = section.kind in kinds and section.order == getattr(topology, "order", section.order)
     strategies: tuple[str, ...] = ()
     if ok:
         try:
@@ -193,13 +194,26 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
     topo_in = _per_section(topology, n, "topology")
     strat_in = _per_section(strategy, n, "strategy")
 
+    model = None if spec is None else OpAmpModel(gbw_hz=spec.gbw_hz, a0=spec.a0, rout_ohm=spec.rout_ohm)
+    spans = tuple(float(a.values[-1] / a.values[0]) for a in (resolve_kind(policy, k) for k in ("resistor", "capacitor")))
     chosen = []
     for i, sec in enumerate(sections):
         name = topo_in[i]
-        tfield = f"topology[{i}]" if isinstance(topology, (list, tuple)) else "topology"
+        listed = isinstance(topology, (list, tuple))
+        tfield = f"topology[{i}]" if listed else "topology"
         sfield = f"strategy[{i}]" if isinstance(strategy, (list, tuple)) else "strategy"
+        given = TOPOLOGIES.get(name) if isinstance(name, str) else None
+        if given is not None and given.order != sec.order:
+            if listed:
+                raise UnsupportedSection(
+                    f"section {i + 1} is of order {sec.order}; the {name} topology named for it realizes "
+                    f"order-{given.order} sections", field=tfield)
+            # One name for every section: a section of the other order takes the automatic choice.
+            name = "auto"
+            if not isinstance(strategy, (list, tuple)):
+                strat_in[i] = None
         if name == "auto" or name is None:
-            t, auto_s = auto_topology(sec, opamp_gbw_hz=spec.gbw_hz if spec else None)
+            t, auto_s = auto_topology(sec, opamp_model=model, gbw_error=gbw_error, spans=spans)
             strategies = check_realizes(t, sec, tfield)
             s = check_strategy(t, sec, strat_in[i], strategies, sfield) if strat_in[i] is not None else auto_s
         else:
@@ -240,7 +254,7 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
     prefix = {"resistor": "R", "capacitor": "C", "opamp": "U"}
     for k, (stage_sec, (t, s)) in enumerate(zip(stage_secs, picks)):
         sel = select_values(t, stage_sec, s, allowed, exact=exact, impedance_ohm=impedance_ohm,
-                            field=f"stages[{k}]")
+                            field=f"stages[{k}]", opamp_model=model)
         comps = []
         for p in t.parts(stage_sec, s):
             counters[p.kind] += 1
@@ -263,7 +277,8 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
                                     a0_db=spec.a0_db, output_swing_v=spec.output_swing_v, supply_v=spec.supply_v,
                                     rout_ohm=spec.rout_ohm, part_id=spec.part_id,
                                     **{k: getattr(spec, k) for k in FIGURES}))
-        plans.append(StagePlan(section=stage_sec, topology=t, strategy=s, components=comps, opamps=ops))
+        plans.append(StagePlan(section=stage_sec, topology=t, strategy=s, components=comps, opamps=ops,
+                               predistortion=sel.predistortion))
 
     return analyze(plans, response=_enum_value(getattr(approximation, "response", None)),
                    family=_enum_value(getattr(approximation, "family", None)),

@@ -112,8 +112,11 @@ def fit_section(section: Section, zeros, poles, gain) -> dict:
         ``f0_hz``, ``q`` (None for first order), ``gain`` (of the standard
         form: ``H(s0) / shape(s0)``, real part, with s0 = 0 for the
         lowpass, notch and allpass kinds and ``j*w0`` otherwise), ``fz_hz`` (notch kinds,
-        else None), and the relative errors ``f0_error``, ``q_error``,
-        ``gain_error``, ``fz_error`` (achieved / target - 1).
+        else None), the relative errors ``f0_error``, ``q_error``,
+        ``gain_error``, ``fz_error`` (achieved / target - 1), and
+        ``zero_damping`` (notch kinds, else None): the damping ratio of the
+        zero pair, ``-Re(z1 + z2) / (2 |z|)``, 0 when the zeros lie on the
+        j-axis as the standard form asks (a finite notch depth otherwise).
     """
     poles = np.asarray(poles, dtype=complex)
     zeros = np.asarray(zeros, dtype=complex)
@@ -127,9 +130,12 @@ def fit_section(section: Section, zeros, poles, gain) -> dict:
         q = float(w0 / -(p[0] + p[1]).real)
     f0 = float(w0 / (2 * np.pi))
     fz = None
+    zeta = None
     if section.kind in _NOTCHES:
         z = _match(target_zeros(section), zeros)
-        fz = float(np.sqrt(abs((z[0] * z[1]).real)) / (2 * np.pi))
+        wz = float(np.sqrt(abs((z[0] * z[1]).real)))
+        fz = wz / (2 * np.pi)
+        zeta = float(-(z[0] + z[1]).real / (2 * wz)) if wz > 0 else None
     # Where the standard form's g is defined and the shape is not zero: DC for the
     # lowpass, notch and allpass kinds, f0 for bandpass and highpass.
     dc = section.kind in (SectionKind.LOWPASS, SectionKind.ALLPASS) or section.kind in _NOTCHES
@@ -146,5 +152,6 @@ def fit_section(section: Section, zeros, poles, gain) -> dict:
         "q_error": (q / section.q - 1) if q is not None and section.q else None,
         "gain_error": (g / section.gain - 1) if section.gain else None,
         "fz_error": (fz / section.fz_hz - 1) if fz is not None and section.fz_hz else None,
+        "zero_damping": zeta,
     }
     return out

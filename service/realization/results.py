@@ -126,6 +126,19 @@ class OpAmpRequirement:
     output_peak_v : float
         Peak voltage (V) of the stage output when the filter output has
         the stated amplitude at its peak-gain frequency.
+    gbw_required_predistorted_hz : float or None
+        Smallest GBW (Hz) for which a stage predistorted for that GBW keeps
+        f0 and Q within ``error`` when the part's GBW is off by ``gbw_spread``
+        (:func:`service.realization.gbw.spread_errors`); computed when an op-amp
+        is given (the stage is then predistorted for it), None otherwise or when no GBW does.
+    gbw_spread : float or None
+        The relative GBW spread that figure allows for.
+    predistorted : bool
+        Whether the stage's parts were designed for the given op-amp
+        (:mod:`service.realization.predistortion`).
+    design_section : dict or None
+        What the design equations were asked for when predistorted:
+        ``f0_hz``, ``q``, ``fz_hz``, ``gain``.
     """
 
     error: float
@@ -136,6 +149,10 @@ class OpAmpRequirement:
     output_peak_v: float
     gbw_rule: str = ""
     slew_rule: str = ""
+    gbw_required_predistorted_hz: float | None = None
+    gbw_spread: float | None = None
+    predistorted: bool = False
+    design_section: dict | None = None
 
     def as_dict(self) -> dict:
         return {
@@ -143,6 +160,8 @@ class OpAmpRequirement:
             "gbw_required_hz": self.gbw_required_hz, "slew_required_v_per_us": self.slew_required_v_per_us,
             "slew_rule": self.slew_rule, "signal_frequency_hz": self.signal_frequency_hz,
             "output_peak_v": self.output_peak_v,
+            "gbw_required_predistorted_hz": self.gbw_required_predistorted_hz, "gbw_spread": self.gbw_spread,
+            "predistorted": self.predistorted, "design_section": self.design_section,
         }
 
 

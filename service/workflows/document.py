@@ -22,6 +22,7 @@ from service.approximation import Family, ResponseType, Section, SectionKind, Se
 from service.errors import RolloffError
 from service.realization import Component, OpAmpUse, RealizationError
 from service.realization.analysis import StagePlan
+from service.realization.conditioning import check_plans
 from service.realization.design import check_realizes, check_strategy, get_topology
 from service.workflows import limits as L
 from service.workflows.errors import DocumentError
@@ -217,7 +218,8 @@ class DesignDocument:
         ------
         DocumentError, RealizationError
             A section the topology cannot realize, an unknown strategy, a part the topology has no
-            position for, a missing part or op-amp (``field`` under ``path``).
+            position for, a missing part or op-amp, or part values whose poles lie decades from the
+            stage's section (a value in the wrong unit; :func:`check_plans`) (``field`` under ``path``).
         """
         plans = []
         for i, st in enumerate(self.stages):
@@ -228,6 +230,7 @@ class DesignDocument:
                 if exc.field and not exc.field.startswith(sf):
                     exc.field = join(sf, exc.field)
                 raise
+        check_plans(plans, root=path)
         return plans
 
     def draw_order(self) -> list[str]:

@@ -45,3 +45,12 @@ def test_configured_limits_are_listed():
 
 def test_unknown_query_parameter(client):
     assert "verbose" in problem(client.get("/v1/catalog?verbose=1"), 422)["errors"]
+
+
+def test_catalog_states_the_automatic_topology_rule(client):
+    from service.realization.topologies import describe_auto
+
+    auto = client.get("/v1/catalog").get_json()["auto_topology"]
+    assert auto == describe_auto()
+    assert "fewest op-amps" in auto["rule"]
+    assert all(name in TOPOLOGIES for names in auto["candidates"].values() for name in names)

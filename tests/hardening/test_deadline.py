@@ -89,9 +89,10 @@ DOC = _design_document()
 
 
 def test_circuit_engine_stops_past_the_deadline_and_runs_without_one():
-    from service.realization import design_to_circuit
+    from service.realization import cascade_circuit
+    from service.workflows import DesignDocument
 
-    circuit = design_to_circuit(DOC)
+    circuit = cascade_circuit(DesignDocument.from_json(DOC).plans())
     f = np.geomspace(10, 1e5, 2001)
     from service.circuit import ac_response
 
@@ -106,7 +107,7 @@ def test_circuit_engine_stops_past_the_deadline_and_runs_without_one():
 
 
 def test_tolerance_run_stops_past_the_deadline():
-    from service.tolerance import run_tolerance
+    from tests.tolerance.conftest import run_tolerance
 
     with deadline.deadline(1e-9):
         time.sleep(0.001)

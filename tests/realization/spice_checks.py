@@ -51,6 +51,18 @@ def section_response(section: Section, f_hz) -> np.ndarray:
     return np.polyval(b, s) / np.polyval(a, s)
 
 
+def achieved_response(section: Section, achieved: dict, f_hz) -> np.ndarray:
+    """The section's form with the achieved f0, Q, gain, zero frequency and zero damping (complex)."""
+    sec = achieved_section(section, achieved)
+    b, a = section_polynomials(sec)
+    zeta = achieved.get("zero_damping")
+    if zeta and section.kind in (SectionKind.NOTCH, SectionKind.LOWPASS_NOTCH, SectionKind.HIGHPASS_NOTCH):
+        b = np.array(b, dtype=float)
+        b[-2] = 2.0 * zeta * np.sqrt(b[-1] * b[0])       # s^2 + 2 zeta wz s + wz^2, same scale
+    s = 2j * np.pi * np.asarray(f_hz, dtype=float)
+    return np.polyval(b, s) / np.polyval(a, s)
+
+
 def achieved_section(section: Section, achieved: dict) -> Section:
     """``section`` with the achieved f0, Q, gain and zero frequency."""
     return Section(kind=section.kind, order=section.order, f0_hz=achieved["f0_hz"],

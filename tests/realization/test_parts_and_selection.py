@@ -121,3 +121,29 @@ def test_part_outside_range_is_reported():
     d = design_filter(one_section(sec), parts={"capacitors": {"max_value": 10e-9}})
     assert any(w.code == "part_out_of_range" for w in d.warnings)
     assert any(not c.in_range for c in d.stages[0].components)
+
+
+def test_one_second_order_name_for_an_odd_order_design_realizes_the_first_order_section():
+    # an odd order has a first-order section: a single second-order name does not apply to it, the
+    # automatic first-order choice does
+    approx = design_by_order("lowpass", "butterworth", 5, 1000.0)
+    d = design_filter(approx, topology="sallen_key")
+    orders = sorted((s.section.order, s.topology) for s in d.stages)
+    assert orders[0][0] == 1 and orders[0][1] in ("rc_first_order", "noninverting_first_order",
+                                                  "inverting_first_order")
+    assert all(t == "sallen_key" for o, t in orders if o == 2)
+    d = design_filter(approx, topology="sallen_key", strategy="unity_gain")
+    assert all(s.strategy == "unity_gain" for s in d.stages if s.section.order == 2)
+
+
+def test_a_listed_second_order_topology_for_a_first_order_section_names_the_entry():
+    from service.realization import RealizationError
+
+    approx = design_by_order("lowpass", "butterworth", 3, 1000.0)
+    names = ["sallen_key" if s.order == 2 else "tow_thomas" for s in approx.sections]
+    i = next(k for k, s in enumerate(approx.sections) if s.order == 1)
+    with pytest.raises(RealizationError) as info:
+        design_filter(approx, topology=names)
+    # field paths count array entries from 0; messages number sections from 1
+    assert info.value.field == f"topology[{i}]"
+    assert f"section {i + 1} is of order 1" in str(info.value)

@@ -48,6 +48,8 @@ def _cases():
                     sec = Section(kind, top.order, f0, q, fz, _gain_for(top, kind, strategy, q, g))
                     if top.strategy_applicable(sec, strategy) is not None:
                         continue
+                    if strategy == "maximum_gain":          # the gain this strategy imposes
+                        sec = Section(kind, top.order, f0, q, fz, top.forced_gain(sec, strategy))
                     out.append(pytest.param(top, sec, strategy, id=f"{name}-{kind.value}-{strategy}-{f0:g}-{q}-{sec.gain:.3g}"))
     return out
 
@@ -93,6 +95,8 @@ def test_achieved_reproduces_the_section(top, sec, strategy):
         assert np.all(np.isnan(got["q"]))
     if sec.kind in NOTCH_KINDS:
         np.testing.assert_allclose(got["fz_hz"], sec.fz_hz, rtol=1e-9)
+        # source: the standard form (service/approximation/types.py): the zeros lie on the j-axis
+        np.testing.assert_allclose(got["zero_damping"], 0.0, atol=1e-9)
 
 
 @pytest.mark.parametrize("top, sec, strategy", CASES)
@@ -228,7 +232,8 @@ def test_bad_sections_raise_naming_the_field():
 
 def test_registry_and_describe():
     assert set(TOPOLOGIES) == {"rc_first_order", "inverting_first_order", "noninverting_first_order", "sallen_key",
-                               "multiple_feedback", "state_variable", "tow_thomas", "twin_t_notch"}
+                               "multiple_feedback", "state_variable", "tow_thomas", "twin_t_notch",
+                               "delyiannis_friend_notch"}
     entries = {d["name"]: d for d in describe_all()}
     for name, top in TOPOLOGIES.items():
         d = top.describe()
@@ -247,18 +252,29 @@ def test_registry_and_describe():
 
 
 @pytest.mark.parametrize("sec, name, strategy", [
-    # common practice (no source): the thresholds of auto_topology's documented rule
+    # common practice (no source): the limits of auto_topology's documented rule (MAX_Q, spreads, sum |S^Q|)
     (Section(K.LOWPASS, 1, 1e3, None, None, 1.0), "rc_first_order", "unity_gain"),
     (Section(K.HIGHPASS, 1, 1e3, None, None, 3.0), "noninverting_first_order", "given_gain"),
     (Section(K.LOWPASS, 1, 1e3, None, None, 0.5), "inverting_first_order", "given_gain"),
     (Section(K.LOWPASS, 2, 1e3, 0.707, None, 1.0), "sallen_key", "unity_gain"),
-    (Section(K.HIGHPASS, 2, 1e3, 2.5, None, 2.0), "sallen_key", "given_gain"),
-    (Section(K.LOWPASS, 2, 1e3, 6.0, None, 1.0), "state_variable", "given_gain"),
+    (Section(K.LOWPASS, 2, 1e3, 0.707, None, 2.0), "sallen_key", "given_gain"),
+    # a given-gain Sallen-Key of Q 2.5 has sum |S^Q| above the limit; of the one-op-amp stages within it
+    # (follower, inverting MFB) neither keeps gain and sign, and the follower's Q sensitivity is smaller
+    (Section(K.HIGHPASS, 2, 1e3, 2.5, None, 2.0), "sallen_key", "unity_gain"),
+    # Q 4-6: the Sallen-Key and MFB lowpass capacitor spreads (4 Q^2 and more) exceed the limit
+    (Section(K.LOWPASS, 2, 1e3, 6.0, None, 1.0), "tow_thomas", "given_gain"),
     (Section(K.BANDPASS, 2, 1e3, 5.0, None, 1.0), "multiple_feedback", "given_gain"),
-    (Section(K.BANDPASS, 2, 1e3, 25.0, None, 1.0), "tow_thomas", "given_gain"),
-    (Section(K.NOTCH, 2, 50.0, 5.0, 50.0, 1.0), "state_variable", "given_gain"),
-    (Section(K.LOWPASS_NOTCH, 2, 1e3, 0.9, 3e3, 1.0), "state_variable", "given_gain"),
-    (Section(K.HIGHPASS_NOTCH, 2, 1e3, 0.9, 4e2, 1.0), "state_variable", "given_gain"),
+    (Section(K.BANDPASS, 2, 1e3, 12.0, None, 1.0), "multiple_feedback", "given_gain"),
+    # Q 25: the MFB bandpass resistor spread (about 4 Q^2) is beyond the limit; of the three-op-amp stages the
+    # state-variable bandpass output keeps the sign, the Tow-Thomas one inverts
+    (Section(K.BANDPASS, 2, 1e3, 25.0, None, 1.0), "state_variable", "given_gain"),
+    # a mains notch of gain 1: the bootstrapped twin-T realizes it exactly with one op-amp
+    (Section(K.NOTCH, 2, 50.0, 5.0, 50.0, 1.0), "twin_t_notch", "unity_gain"),
+    # at Q 9 the twin-T's Q sensitivity (4 Q - 1 for its divider alone) is beyond the limit
+    (Section(K.NOTCH, 2, 50.0, 9.0, 50.0, 1.0), "delyiannis_friend_notch", "maximum_gain"),
+    (Section(K.LOWPASS_NOTCH, 2, 1e3, 0.9, 3e3, 1.0), "delyiannis_friend_notch", "given_gain"),
+    (Section(K.HIGHPASS_NOTCH, 2, 1e3, 0.9, 4e2, 0.1), "delyiannis_friend_notch", "given_gain"),
+    (Section(K.LOWPASS_NOTCH, 2, 20260.0, 24.8, 23627.0, 1.0), "tow_thomas", "given_gain"),
 ])
 def test_auto_topology_rule(sec, name, strategy):
     top, strat = auto_topology(sec)
@@ -266,11 +282,69 @@ def test_auto_topology_rule(sec, name, strategy):
     assert strat in top.strategies(sec)
 
 
+def _assessed(sec, opamp_model=None):
+    from service.realization.topologies.auto import CANDIDATES, _strategies, assess
+
+    out = []
+    for top in CANDIDATES[sec.kind]:
+        for strat in _strategies(top, sec, False):
+            a = assess(top, strat, sec, opamp_model)
+            if a is not None:
+                out.append(a)
+    return out
+
+
+@pytest.mark.parametrize("kind, fz", [(K.LOWPASS, None), (K.HIGHPASS, None), (K.BANDPASS, None), (K.NOTCH, 1.0),
+                                      (K.LOWPASS_NOTCH, 1.3), (K.HIGHPASS_NOTCH, 0.7)])
+@pytest.mark.parametrize("q", [0.55, 0.9, 2.0, 4.0, 8.0, 30.0])
+def test_auto_choice_is_the_fewest_opamps_within_the_limits(kind, fz, q):
+    from service.realization.topologies.auto import MAX_Q_SENSITIVITY, MAX_RESISTOR_SPREAD
+
+    sec = Section(kind, 2, 1000.0, q, None if fz is None else 1000.0 * fz, 1.0)
+    top, strat = auto_topology(sec)
+    found = _assessed(sec)
+    chosen = next(a for a in found if a.topology is top and a.strategy == strat)
+    accepted = [a for a in found if a.accepted]
+    if accepted:
+        assert chosen.accepted
+        assert chosen.opamps == min(a.opamps for a in accepted)
+        assert chosen.q_sensitivity <= MAX_Q_SENSITIVITY and chosen.resistor_spread <= MAX_RESISTOR_SPREAD
+    else:
+        assert chosen.excess == min(a.excess for a in found)
+
+
 def test_auto_topology_prefers_a_follower_for_a_slow_opamp():
-    sec = Section(K.LOWPASS, 2, 20e3, 2.0, None, 2.0)
-    assert auto_topology(sec)[1] == "given_gain"
-    assert auto_topology(sec, opamp_gbw_hz=1e6)[1] == "unity_gain"      # 1 MHz < 100 * 2 * 20 kHz
-    assert auto_topology(sec, opamp_gbw_hz=1e8)[1] == "given_gain"
+    from service.circuit import OpAmpModel
+
+    # Q 1.2, gain 2: the given-gain Sallen-Key is within the limits; a slow op-amp (GBW < 100 Q f0) takes the follower
+    sec = Section(K.LOWPASS, 2, 20e3, 1.2, None, 2.0)
+    assert auto_topology(sec) == (TOPOLOGIES["sallen_key"], "given_gain")
+    assert auto_topology(sec, opamp_gbw_hz=1e6)[1] == "unity_gain"      # 1 MHz < 100 * 1.2 * 20 kHz
+    assert auto_topology(sec, opamp_model=OpAmpModel(gbw_hz=1e8, a0=1e5))[1] == "given_gain"
+
+
+def test_auto_topology_weighs_the_opamp():
+    from service.circuit import OpAmpModel
+
+    # a Q 24.8 lowpass notch at 20 kHz: without an op-amp the three-op-amp Tow-Thomas is within the limits; a
+    # 10 MHz op-amp shifts its f0/Q by tens of percent (beyond what predistortion is relied on for), so the
+    # single-op-amp section, least beyond its limits, is taken
+    sec = Section(K.LOWPASS_NOTCH, 2, 20260.0, 24.8, 23627.0, 1.0)
+    assert auto_topology(sec)[0].name == "tow_thomas"
+    found = {a.topology.name: a for a in _assessed(sec, OpAmpModel(gbw_hz=10e6, a0=1e5))}
+    assert found["tow_thomas"].gbw_shift > 0.1
+    assert auto_topology(sec, opamp_model=OpAmpModel(gbw_hz=10e6, a0=1e5))[0].name == "delyiannis_friend_notch"
+
+
+def test_describe_auto_states_the_rule_and_limits():
+    from service.realization.topologies import describe_auto
+
+    d = describe_auto()
+    assert "fewest op-amps" in d["rule"]
+    assert d["limits"]["max_q_sensitivity"] > 0 and d["limits"]["max_resistor_spread"] > 1
+    assert set(d["candidates"]) == {"lowpass", "highpass", "bandpass", "notch", "lowpass_notch", "highpass_notch"}
+    for names in d["candidates"].values():
+        assert all(n in TOPOLOGIES for n in names)
 
 
 def test_auto_topology_allpass_unsupported():
@@ -289,3 +363,4 @@ def test_forced_gain_polarity():
     assert TOPOLOGIES["tow_thomas"].forced_gain(Section(K.BANDPASS, 2, 1e3, 0.8, None, 2.0), "given_gain") == -2.0
     assert TOPOLOGIES["state_variable"].forced_gain(Section(K.LOWPASS, 2, 1e3, 0.8, None, 2.0), "given_gain") == -2.0
     assert math.isclose(TOPOLOGIES["twin_t_notch"].forced_gain(Section(K.NOTCH, 2, 50.0, 2.0, 50.0, 1.0), "unity_gain"), 1.0)
+

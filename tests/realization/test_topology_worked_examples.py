@@ -113,3 +113,37 @@ def test_state_variable_equal_element_design():
     assert sig3(float(v["R6"][0])) == 15.9e3
     k = float(v["R5"][0]) / (float(v["R4"][0]) + float(v["R5"][0]))
     assert k == pytest.approx(1 / 30, rel=1e-12)
+
+
+def test_delyiannis_friend_core_is_the_equal_capacitor_mfb_bandpass():
+    # source: R. Mancini (ed.), Op Amps for Everyone, TI SLOD006B (2002), ch. 16, sec. 16.5.2: the equal-capacitor
+    # MFB bandpass has its feedback resistor R2 = Q/(pi fm C) and, without the grounded resistor, its input
+    # resistor R1 = R2/(4 Q^2) (from memory).  Below Q0_MAX, with no positive feedback and the full input
+    # (maximum_gain), the notch section's core is that circuit: 1 kHz, Q = 2, C = 100 nF ->
+    # R2 = 6.37 kOhm, R1 = 398 Ohm.
+    df = TOPOLOGIES["delyiannis_friend_notch"]
+    sec = Section(K.NOTCH, 2, 1000.0, 2.0, 1000.0, 1.0)
+    v = df.design(sec, "maximum_gain", {"C1": np.array([100e-9])})
+    assert sig3(float(v["R2"][0])) == 6.37e3
+    assert sig3(float(v["R1"][0])) == 398.0
+    assert "R5" not in v and "R3" not in v and "R4" not in v
+
+
+def test_delyiannis_friend_positive_feedback_and_zero_placement():
+    # Derived for rolloff from the section's node equations (module docstring of
+    # service/realization/topologies/delyiannis_friend.py), checked by hand arithmetic here:
+    # lowpass notch 1 kHz, Q = 6, fz = 1.3 kHz, C = 10 nF, Q0 = 3: kappa = (1 - 3/6)/(2*9) = 0.0278,
+    # k = kappa/(1 + kappa) = 0.0270; X = w0 C/(2 Q0) = 1.047e-5 S; rho = 1.69;
+    # G4 = X (rho - 1)/(1 + kappa) = 7.03e-6 S (R4 = 142 kOhm); G2 = X + kappa G4 = 1.067e-5 S (R2 = 93.7 kOhm);
+    # Gt = 2 Q0 w0 C = 3.77e-4 S (R1 = 2.65 kOhm at the maximum gain).
+    df = TOPOLOGIES["delyiannis_friend_notch"]
+    sec = Section(K.LOWPASS_NOTCH, 2, 1000.0, 6.0, 1300.0, 1.0)
+    v = df.design(sec, "maximum_gain", {"C1": np.array([10e-9])}, r_ref_ohm=10e3)
+    assert sig3(float(v["R4"][0])) == 142e3
+    assert sig3(float(v["R2"][0])) == 93.7e3
+    assert sig3(float(v["R1"][0])) == 2.65e3
+    g5, g6, g7 = (1 / float(v[r][0]) for r in ("R5", "R6", "R7"))
+    assert sig3(g5 / (g5 + g6 + g7)) == 0.0270
+    a = df.achieved(sec, "maximum_gain", v)
+    assert float(a["q"][0]) == pytest.approx(6.0, rel=1e-12)
+    assert float(a["zero_damping"][0]) == pytest.approx(0.0, abs=1e-12)

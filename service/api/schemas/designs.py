@@ -268,6 +268,18 @@ class OpAmpRequirementSchema(ma.Schema):
     slew_rule = ma.fields.String(allow_none=True)
     signal_frequency_hz = ma.fields.Float(allow_none=True)
     output_peak_v = ma.fields.Float(allow_none=True)
+    gbw_required_predistorted_hz = ma.fields.Float(allow_none=True, metadata={
+        "description": "With an op-amp given: smallest GBW (Hz) for which the stage, its parts designed for that "
+                       "GBW (predistorted), keeps f0 and Q within the error when the part's GBW is off by "
+                       "`gbw_spread`; null when no op-amp was given or no GBW does."})
+    gbw_spread = ma.fields.Float(allow_none=True, metadata={
+        "description": "Relative GBW spread (part to part) the predistorted figure allows for."})
+    predistorted = ma.fields.Boolean(allow_none=True, metadata={
+        "description": "Whether this reply's design chose the stage's parts for its op-amp (its section's f0 and Q "
+                       "moved so that with the op-amp they land on target). An evaluated document takes its parts as "
+                       "given and reports false."})
+    design_section = ma.fields.Dict(allow_none=True, metadata={
+        "description": "When predistorted: what the design equations were asked for (f0_hz, q, fz_hz, gain)."})
 
 
 class StageSchema(StrictSchema):

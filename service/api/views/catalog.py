@@ -12,16 +12,9 @@ from service.api.extension import Blueprint
 from service.api.schemas.common import ReplySchema, StrictSchema
 from service.approximation import ResponseType, SectionKind, all_family_info
 from service.components import SERIES, SERIES_TOLERANCE, series_mantissas
-from service.realization.topologies import describe_all
+from service.realization.topologies import describe_all, describe_auto
 from service.response.verification import TOLERANCE_DB
 from service.workflows.requirement import OPEN_BAND_RULE, REFERENCE_GAIN_RULE
-from service.realization.topologies import auto_topology
-
-
-def _auto_rule() -> str:
-    """How ``topology: auto`` chooses: the rule's own statement (its docstring's first paragraph)."""
-    doc = (auto_topology.__doc__ or "").strip().split("\n\n")[0]
-    return " ".join(doc.split())
 from service.version import API_VERSION, SERVICE_VERSION
 
 blp = Blueprint("catalog", __name__, url_prefix="/v1", description="What the service offers.")
@@ -52,6 +45,14 @@ class FamilySchema(ma.Schema):
     reference = ma.fields.String()
 
 
+class AutoTopologySchema(ma.Schema):
+    rule = ma.fields.String(metadata={"description": "The rule, in words."})
+    limits = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.Raw(), metadata={
+        "description": "The limits it applies (max_q per topology, spreads, sum of |S^Q|, the op-amp's shift)."})
+    candidates = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.List(ma.fields.String()), metadata={
+        "description": "Topologies considered per section kind, in order of preference."})
+
+
 class TopologySchema(ma.Schema):
     name = ma.fields.String()
     kinds = ma.fields.List(ma.fields.String(), metadata={"description": "Section kinds it realizes."})
@@ -71,7 +72,6 @@ class VerificationRulesSchema(ma.Schema):
     numerical_tolerance_db = ma.fields.Float(metadata={"description": "Margins within this of 0 dB are 0 (met)."})
     method = ma.fields.String()
     stage_numbering = ma.fields.String()
-    auto_topology = ma.fields.String(allow_none=True, metadata={"description": "How `topology: auto` chooses."})
 
 
 class CatalogSchema(ReplySchema):
@@ -80,6 +80,8 @@ class CatalogSchema(ReplySchema):
     families = ma.fields.List(ma.fields.Nested(FamilySchema))
     section_kinds = ma.fields.List(ma.fields.String())
     topologies = ma.fields.List(ma.fields.Nested(TopologySchema))
+    auto_topology = ma.fields.Nested(AutoTopologySchema, metadata={
+        "description": "How `topology: \"auto\"` chooses a stage's topology: the rule and its limits."})
     series = ma.fields.List(ma.fields.Nested(SeriesSchema))
     limits = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.Nested(LimitSchema))
     endpoints = ma.fields.List(ma.fields.String(), metadata={"description": "Operations this service answers."})
@@ -105,6 +107,7 @@ def build_catalog(settings) -> dict:
         "families": families,
         "section_kinds": [k.value for k in SectionKind],
         "topologies": describe_all(),
+        "auto_topology": describe_auto(),
         "series": [{"name": s, "values_per_decade": len(series_mantissas(s)), "tolerance": SERIES_TOLERANCE[s],
                     "values": list(series_mantissas(s))} for s in SERIES],
         "limits": settings.limits(),
@@ -116,7 +119,6 @@ def build_catalog(settings) -> dict:
                       "makes the circuit unstable, meeting nothing",
             "stage_numbering": "stage numbers count from 1 (fields named stage or number, and messages); field "
                                "paths in problems count array entries from 0 (stages[0] is stage 1)",
-            "auto_topology": _auto_rule(),
         },
     }
 

@@ -6,8 +6,10 @@ Public surface
     Registry ``{name: Topology}`` that the catalog lists and the dispatcher uses.
 ``get_topology(name)``
     Registry lookup raising :class:`~service.realization.errors.UnknownTopology`.
-``auto_topology(section, *, opamp_gbw_hz=None)``
+``auto_topology(section, *, opamp_gbw_hz=None, opamp_model=None, gbw_error=0.01)``
     The documented default choice ``(topology, strategy)`` for a section.
+``describe_auto()``
+    The rule and limits of that choice, for the catalog.
 ``Topology``, ``PartSpec``
     The interface (see :mod:`service.realization.topologies.base`).
 """
@@ -16,7 +18,8 @@ from __future__ import annotations
 
 from service.realization.errors import UnknownTopology
 from service.realization.topologies.base import PartSpec, Topology
-from service.realization.topologies.auto import auto_topology
+from service.realization.topologies.auto import auto_topology, describe_auto
+from service.realization.topologies.delyiannis_friend import DELYIANNIS_FRIEND_NOTCH
 from service.realization.topologies.first_order import INVERTING_FIRST_ORDER, NONINVERTING_FIRST_ORDER, RC_FIRST_ORDER
 from service.realization.topologies.multiple_feedback import MULTIPLE_FEEDBACK
 from service.realization.topologies.sallen_key import SALLEN_KEY
@@ -35,6 +38,7 @@ TOPOLOGIES: dict[str, Topology] = {
         STATE_VARIABLE,
         TOW_THOMAS,
         TWIN_T_NOTCH,
+        DELYIANNIS_FRIEND_NOTCH,
     )
 }
 
@@ -60,4 +64,4 @@ def describe_all() -> list[dict]:
     return [t.describe() for t in TOPOLOGIES.values()]
 
 
-__all__ = ["TOPOLOGIES", "Topology", "PartSpec", "get_topology", "auto_topology", "describe_all"]
+__all__ = ["TOPOLOGIES", "Topology", "PartSpec", "get_topology", "auto_topology", "describe_all", "describe_auto"]

@@ -121,8 +121,10 @@ def figures(kind: SectionKind, order: int, num: Sequence[np.ndarray], den: Seque
     dict
         ``f0_hz``, ``q`` (NaN for first order), ``gain`` in the section's
         standard form (see :class:`~service.approximation.SectionKind`), and
-        ``fz_hz`` for the notch kinds.  Pure arithmetic, so complex inputs
-        give complex-step derivatives.
+        for the notch kinds ``fz_hz`` and ``zero_damping`` (the damping
+        ratio ``b1 / (2 sqrt(b0 b2))`` of the numerator: 0 when the zeros
+        lie on the j-axis, as the standard form asks).  Pure arithmetic, so
+        complex inputs give complex-step derivatives.
     """
     if order == 1:
         a1, a0 = den
@@ -145,6 +147,7 @@ def figures(kind: SectionKind, order: int, num: Sequence[np.ndarray], den: Seque
     elif kind in NOTCH_KINDS:
         out["gain"] = b0 / a0
         out["fz_hz"] = np.sqrt(b0 / b2) / TWO_PI
+        out["zero_damping"] = b1 / (2.0 * np.sqrt(b0 * b2))
     else:  # pragma: no cover - guarded by Topology.check
         raise UnsupportedSection(f"no standard figures for section kind {kind.value!r}", field="section.kind")
     return out

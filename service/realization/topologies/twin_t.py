@@ -180,9 +180,10 @@ class TwinTNotch(Topology):
         self.check(section, strategy)
         num, den = self.polynomials(section, strategy, values)
         num, den = num[::-1], den[::-1]
-        (_, bz), (a, b) = _biquad_factors(num, den)
+        (az, bz), (a, b) = _biquad_factors(num, den)
         w0 = np.sqrt(b)
-        return {"f0_hz": w0 / TWO_PI, "q": w0 / a, "gain": num[0] / den[0], "fz_hz": np.sqrt(bz) / TWO_PI}
+        return {"f0_hz": w0 / TWO_PI, "q": w0 / a, "gain": num[0] / den[0], "fz_hz": np.sqrt(bz) / TWO_PI,
+                "zero_damping": az / (2.0 * np.sqrt(bz))}
 
     def sensitivities(self, section, strategy, values):
         """Normalized sensitivities by a fourth-order central difference of :meth:`achieved`.
