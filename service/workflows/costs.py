@@ -102,11 +102,11 @@ def check_design(shape: CircuitShape, settings: Settings, *, verifications: int 
     _refuse(analysis_units(shape, verifications), settings, field=field, what="analysing this design")
 
 
-#: Cost of one design of the design loop (transfer function, part search, analysis, verification with its
-#: causes) and of its reselect step, per stage: units (measured at most about 60 ms per stage each here,
-#: on the requirement set of ``tests/realization/requirement_cases.py``).
-DESIGN_ATTEMPT_UNITS_PER_STAGE = 1_000_000
-RESELECT_UNITS_PER_STAGE = 1_000_000
+#: Cost of one design of the design loop (transfer function, part search, analysis, verification) and of
+#: its reselect step, per stage: units (measured at most about 55 ms per stage each here, on every third
+#: requirement of ``tests/realization/requirement_cases.py``).
+DESIGN_ATTEMPT_UNITS_PER_STAGE = 900_000
+RESELECT_UNITS_PER_STAGE = 900_000
 
 
 def design_attempts(stages: int, settings: Settings, most: int) -> int:
