@@ -23,6 +23,8 @@ from service.deadline import check as check_deadline
 from service.errors import RolloffError
 from service.realization import Design, DesignWarning, OpAmpSpec, PartsPolicy, design_filter
 from service.realization.analysis import StagePlan, analyze
+from service.realization.conditioning import UNIT_HINT
+from service.realization.errors import InvalidDocument
 from service.realization.results import AnalysisOptions
 from service.workflows import costs, limits
 from service.workflows.approximating import approximate
@@ -403,12 +405,18 @@ def _attempt(request: DesignRequest, settings: Settings, pb: float | None, sb: f
     n_sections = len(approximation.sections)
     costs.check_design(costs.CircuitShape((4,) * n_sections, loaded=bool(request.opamp and request.opamp.rout_ohm)),
                        settings)
-    realized = design_filter(
-        approximation, topology=list(request.topology) if isinstance(request.topology, tuple) else request.topology,
-        strategy=list(request.strategy) if isinstance(request.strategy, tuple) else request.strategy,
-        parts=request.parts, opamp=request.opamp, exact=request.exact, impedance_ohm=request.impedance_ohm,
-        section_order=req.section_order.value, stage_peak_margin_db=request.stage_peak_margin_db,
-        output_amplitude_v=request.output_amplitude_v, gbw_error=request.gbw_error, stopbands_hz=_stopbands(req))
+    try:
+        realized = design_filter(
+            approximation,
+            topology=list(request.topology) if isinstance(request.topology, tuple) else request.topology,
+            strategy=list(request.strategy) if isinstance(request.strategy, tuple) else request.strategy,
+            parts=request.parts, opamp=request.opamp, exact=request.exact, impedance_ohm=request.impedance_ohm,
+            section_order=req.section_order.value, stage_peak_margin_db=request.stage_peak_margin_db,
+            output_amplitude_v=request.output_amplitude_v, gbw_error=request.gbw_error, stopbands_hz=_stopbands(req))
+    except InvalidDocument as exc:   # the parts allowed put a stage decades from its section
+        raise UnrepresentableDesign(
+            str(exc).replace(UNIT_HINT, "the allowed parts (series, range or stock) cannot give the values this "
+                                        "stage needs"), field="parts") from exc
     check_representable(realized)
     document = DesignDocument(
         response=req.response, family=req.family, order=approximation.order,
