@@ -24,6 +24,7 @@ from service.realization.results import AnalysisOptions
 from service.workflows import costs, limits
 from service.workflows.approximating import approximate
 from service.workflows.document import DesignDocument, DesignSettings, PartRange, StageEntry
+from service.workflows.electrical import BoardReport, SupplySettings, board_fields, on_board
 from service.workflows.errors import UnrepresentableDesign
 from service.workflows.policy import passband_margin, stopband_margin, with_gain
 from service.workflows.requirement import Requirement
@@ -57,6 +58,8 @@ class DesignRequest:
     stopband_margin_db : float or None
     stock_entries : int
         How many stock entries the parts name (for the limit).
+    supply : SupplySettings or None
+        The board's rails (kept in the document's settings).
     """
 
     requirement: Requirement
@@ -73,6 +76,7 @@ class DesignRequest:
     passband_margin_db: float | None = None
     stopband_margin_db: float | None = None
     stock_entries: int = 0
+    supply: SupplySettings | None = None
 
 
 @dataclass
@@ -83,6 +87,7 @@ class DesignOutcome:
     document: DesignDocument
     verdict: DesignVerdict | None
     warnings: list[DesignWarning] = field(default_factory=list)
+    board: BoardReport | None = None
 
     @property
     def plans(self) -> list[StagePlan]:
@@ -124,6 +129,7 @@ class DesignOutcome:
             "warnings": [w.as_dict() for w in self.warnings],
             "overall_gain": d.overall_gain,
             "output_peak_gain_db": _clean(d.output_peak_gain_db),
+            **_clean(board_fields(self.board)),
         }
 
 
@@ -214,13 +220,14 @@ def stage_warnings(design: Design) -> list[DesignWarning]:
     return out
 
 
-def _finish(design: Design, document: DesignDocument) -> DesignOutcome:
+def _finish(design: Design, document: DesignDocument, settings: Settings | None = None) -> DesignOutcome:
+    design, board = on_board(design, document.settings, settings)
     verdict = None
     req = document.requirement
     if req is not None and req.by_specification:
         verdict = verify_design(design.plans, req)
     warnings = list(design.warnings) + stage_warnings(design) + (list(verdict.warnings) if verdict else [])
-    return DesignOutcome(design, document, verdict, warnings)
+    return DesignOutcome(design, document, verdict, warnings, board)
 
 
 def outcome_of(realized: Design, requirement: Requirement | None = None) -> DesignOutcome:
@@ -279,8 +286,8 @@ def design(request: DesignRequest, settings: Settings) -> DesignOutcome:
             exact=request.exact, impedance_ohm=request.impedance_ohm,
             ranges={k: PartRange(*v) for k, v in realized.part_ranges.items()},
             series=dict(realized.part_series), passband_margin_db=pb_margin, stopband_margin_db=sb_margin,
-            gain=request.gain))
-    return _finish(realized, document)
+            gain=request.gain, supply=request.supply))
+    return _finish(realized, document, settings)
 
 
 def evaluate(document: DesignDocument, settings: Settings, *, path: str = "") -> DesignOutcome:
@@ -298,7 +305,7 @@ def evaluate(document: DesignDocument, settings: Settings, *, path: str = "") ->
         options=AnalysisOptions(s.gbw_error, s.output_amplitude_v, s.stage_peak_margin_db),
         part_ranges={k: (r.low, r.high) for k, r in s.ranges.items()}, part_series=dict(s.series),
         stopbands_hz=_stopbands(document.requirement))
-    return _finish(realized, document)
+    return _finish(realized, document, settings)
 
 
 def evaluate_json(data, settings: Settings, *, path: str = "") -> DesignOutcome:
