@@ -138,12 +138,15 @@ def check_tolerance(shape: CircuitShape, trials: int, points: int, sensitivity_p
 
 
 #: Noise analysis: units per frequency point per unit of the circuit's point weight (one adjoint solve of the
-#: stages), and per noise source and point (its transfer and density); measured with tests/bench/bench_noise.py.
-NOISE_POINT_FACTOR = 8
-NOISE_SOURCE_UNITS = 3
-#: Headroom: each op-amp output is one AC solve on the grid plus the peak refinement (two zooms of 41 points).
+#: stages), and per noise source and point (its transfer and density); measured through the workflow (about
+#: 25 ms of CPU for four stages on 2,500 points here).
+NOISE_POINT_FACTOR = 10
+NOISE_SOURCE_UNITS = 4
+#: Headroom: each op-amp output (and the filter's) is one AC solve on the grid plus the peak refinement (two
+#: zooms of 41 points), after preparing the circuit's stages for that output (about 5 ms of CPU each).
 HEADROOM_POINT_FACTOR = 8
 HEADROOM_REFINE_POINTS = 82
+HEADROOM_UNITS_PER_OUTPUT = 80_000
 #: A supply: the bias network, the coupling capacitor search, DC solves and the passband check, per stage: units.
 SUPPLY_UNITS_PER_STAGE = 200_000
 
@@ -178,7 +181,9 @@ def levels_units(shape: CircuitShape, work: LevelsWork) -> float:
     weight = shape.point_weight()
     units = work.noise_points * (weight * NOISE_POINT_FACTOR + work.noise_sources * NOISE_SOURCE_UNITS)
     if work.headroom_points:
-        units += work.opamps * (work.headroom_points + HEADROOM_REFINE_POINTS) * weight * HEADROOM_POINT_FACTOR
+        outputs = work.opamps + 1
+        units += outputs * (HEADROOM_UNITS_PER_OUTPUT
+                            + (work.headroom_points + HEADROOM_REFINE_POINTS) * weight * HEADROOM_POINT_FACTOR)
     if work.supply:
         units += SUPPLY_UNITS_PER_STAGE * max(1, shape.stages)
     return units

@@ -718,9 +718,9 @@ def on_board(design: Design, settings, config: Settings | None = None) -> tuple[
     (Design, BoardReport or None)
         Unchanged, None when there is no supply and no op-amp noise or DC figure.  Otherwise a copy whose
         netlist is the circuit on its supply with the op-amps' noise and DC sources (``.noise`` over the
-        netlist's sweep when an op-amp has noise figures, output and input named in a comment; ``.op``
-        with a supply or DC figures), whose BOM adds the supply's parts, and whose warnings add the
-        supply's and those of the levels at ``output_amplitude_v``.
+        netlist's sweep when an op-amp has noise figures, output and input named in a comment; ngspice's
+        ``op`` command gives its operating point), whose BOM adds the supply's parts, and whose warnings
+        add the supply's and those of the levels at ``output_amplitude_v``.
 
     Raises
     ------
@@ -757,15 +757,17 @@ def on_board(design: Design, settings, config: Settings | None = None) -> tuple[
                                           f"{settings.output_amplitude_v:g} V peak {exc.message}"))
             rep = _levels(b, grid, input_peak_v=PROBE_INPUT_V)
         else:
-            warnings += level_warnings(rep)
+            # without a supply the design's own warnings already compare each stage's peak with its swing
+            warnings += [w for w in level_warnings(rep) if supply is not None or w.code != "stage_clips"]
         max_out = rep.max_output_v
     noise_rep = analysis = None
     sweep = ("dec", DESIGN_NOISE_POINTS_PER_DECADE, lo, hi)
     if noisy:
         noise_rep = analyze_noise(b.circuit, [lo], (lo, hi), stage_of=b.stage_of, max_output_v=max_out,
                                   points_per_decade=DESIGN_NOISE_POINTS_PER_DECADE)
-    netlist = to_spice(b.circuit, output="out", ac=("dec", 125, lo, hi), noise=sweep if noisy else None,
-                       op=supply is not None or dc)
+    # no .op line: with .ac in the same netlist ngspice 39 then skips the AC analysis ("no data saved"); its
+    # op command gives the operating point of this netlist as it is
+    netlist = to_spice(b.circuit, output="out", ac=("dec", 125, lo, hi), noise=sweep if noisy else None)
     if noisy:
         analysis = next(line for line in netlist.splitlines() if line.startswith(".noise"))
     out = replace(design, bom=bom, netlist=netlist, warnings=warnings)
