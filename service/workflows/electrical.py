@@ -68,6 +68,9 @@ DESIGN_NOISE_POINTS_PER_DECADE = INTEGRATION_POINTS_PER_DECADE
 BIAS_NETWORK_SOURCES = 6
 #: Relative slack of "within the grid" for a noise band (rounding of SI strings).
 GRID_SLACK = 1e-9
+#: A stage that clips less than this below the output's own clipping input (dB) draws no warning: it costs the
+#: dynamic range less than that (common practice, no source).
+CLIP_TIE_DB = 0.1
 
 NOISE_FIGURES = ("en_nv_rthz", "in_pa_rthz", "en_corner_hz", "in_corner_hz")
 DC_FIGURES = ("vos_v", "ib_a")
@@ -368,7 +371,7 @@ def _stage_name(stage: int | None) -> str:
 
 def level_warnings(rep: HeadroomReport) -> list[DesignWarning]:
     """Every op-amp that clips at the analysed level, and the one that clips first when it is not the
-    output's: each names the stage, the level, the limit and the frequency."""
+    output's (by more than :data:`CLIP_TIE_DB`): each names the stage, the level, the limit and the frequency."""
     out = []
     for o in rep.opamps:
         if o.headroom_db is not None and o.headroom_db < 0:
@@ -378,7 +381,10 @@ def level_warnings(rep: HeadroomReport) -> list[DesignWarning]:
                 f"{o.peak_frequency_hz:.4g} Hz, beyond its limit of {o.limit_v:.4g} V about {o.dc_v:.4g} V "
                 f"(output range {_range(o.low_v, o.high_v)}) at an input of {rep.input_peak_v:.4g} V peak",
                 stage=o.stage))
-    if rep.clips_before_output and rep.first_clip is not None:
+    driver = next((r for r in rep.opamps if r.node == "out"), None)
+    if rep.clips_before_output and rep.first_clip is not None and not (
+            driver is not None and driver.clip_input_v is not None
+            and rep.clip_input_v >= driver.clip_input_v * 10 ** (-CLIP_TIE_DB / 20)):
         o = next(r for r in rep.opamps if r.ref == rep.first_clip)
         out.append(DesignWarning(
             "clips_before_output",
