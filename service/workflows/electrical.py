@@ -771,8 +771,8 @@ def on_board(design: Design, settings, config: Settings | None = None) -> tuple[
     if noisy:
         noise_rep = analyze_noise(b.circuit, [lo], (lo, hi), stage_of=b.stage_of, max_output_v=max_out,
                                   points_per_decade=DESIGN_NOISE_POINTS_PER_DECADE)
-    # no .op line: with .ac in the same netlist ngspice 39 then skips the AC analysis ("no data saved"); its
-    # op command gives the operating point of this netlist as it is
+    # no .op line: run from a .control block, ngspice 39 then skips the .ac and .noise analyses ("no data
+    # saved ... analysis not run"); its op command gives the operating point of this netlist as it is
     netlist = to_spice(b.circuit, output="out", ac=("dec", 125, lo, hi), noise=sweep if noisy else None)
     if noisy:
         analysis = next(line for line in netlist.splitlines() if line.startswith(".noise"))
