@@ -176,14 +176,26 @@ class LevelsWork:
     supply: bool = False
 
 
+#: A loaded circuit (solved whole) costs about this many units per unknown of its MNA system per frequency point
+#: of a noise analysis, and per point and op-amp output of the level analysis (measured here: its solves are
+#: small dense systems, far below the whole-circuit AC weight of :meth:`CircuitShape.point_weight`).
+NOISE_LOADED_UNITS_PER_UNKNOWN = 40
+HEADROOM_LOADED_UNITS_PER_UNKNOWN = 10
+
+
 def levels_units(shape: CircuitShape, work: LevelsWork) -> float:
     """Work units of the noise, headroom and supply analyses of ``shape``."""
-    weight = shape.point_weight()
-    units = work.noise_points * (weight * NOISE_POINT_FACTOR + work.noise_sources * NOISE_SOURCE_UNITS)
+    unknowns = UNKNOWNS_PER_STAGE * shape.stages
+    if shape.loaded:
+        noise_point = NOISE_LOADED_UNITS_PER_UNKNOWN * unknowns
+        level_point = HEADROOM_LOADED_UNITS_PER_UNKNOWN * unknowns
+    else:
+        noise_point = NOISE_POINT_FACTOR * shape.point_weight()
+        level_point = HEADROOM_POINT_FACTOR * shape.point_weight()
+    units = work.noise_points * (noise_point + work.noise_sources * NOISE_SOURCE_UNITS)
     if work.headroom_points:
         outputs = work.opamps + 1
-        units += outputs * (HEADROOM_UNITS_PER_OUTPUT
-                            + (work.headroom_points + HEADROOM_REFINE_POINTS) * weight * HEADROOM_POINT_FACTOR)
+        units += outputs * (HEADROOM_UNITS_PER_OUTPUT + (work.headroom_points + HEADROOM_REFINE_POINTS) * level_point)
     if work.supply:
         units += SUPPLY_UNITS_PER_STAGE * max(1, shape.stages)
     return units

@@ -42,7 +42,7 @@ from typing import Any, Sequence
 
 import numpy as np
 
-from service.circuit import DEFAULT_TEMPERATURE_K, Circuit, dc_operating_point, to_spice
+from service.circuit import DEFAULT_TEMPERATURE_K, Circuit, dc_operating_point, prepare_ac, to_spice
 from service.config import Settings
 from service.realization import Design, DesignWarning
 from service.realization.analysis import StagePlan
@@ -415,9 +415,27 @@ def _levels(b: Board, grid_hz: np.ndarray, *, input_peak_v: float | None = None,
         raise
 
 
+#: The response's frequencies join the peak search up to this factor beyond the sections' analysis grid.
+PEAK_GRID_REACH = 100.0
+
+
 def _peak_grid(plans: Sequence[StagePlan], frequency_hz: np.ndarray) -> np.ndarray:
-    """The response's frequencies with the sections' analysis grid (the peaks are found on both)."""
-    return np.unique(np.concatenate([np.asarray(frequency_hz, dtype=float), analysis_grid([p.section for p in plans])]))
+    """The sections' analysis grid with the response's frequencies near it (Hz): the peaks are searched there.
+
+    The response's frequencies far from every section are left out: the circuit engine scales its polynomial
+    variable to the grid's geometric centre, and a grid spanning twenty decades (a default grid around a
+    bandpass's zeros at the origin) would move it far from the circuit's poles.
+    """
+    g = analysis_grid([p.section for p in plans])
+    f = np.asarray(frequency_hz, dtype=float)
+    near = f[(f >= g[0] / PEAK_GRID_REACH) & (f <= g[-1] * PEAK_GRID_REACH)]
+    return np.unique(np.concatenate([near, g]))
+
+
+def _level_curves(b: Board, rep: HeadroomReport, frequency_hz: np.ndarray) -> dict[str, np.ndarray]:
+    """Op-amp ref -> peak swing (V) on ``frequency_hz`` at the report's input level."""
+    return {o.ref: rep.input_peak_v * np.abs(prepare_ac(b.circuit, frequency_hz, o.node).response()[0])
+            for o in rep.opamps}
 
 
 # ------------------------------------------------------------------------------------------ responses
@@ -480,13 +498,13 @@ class HeadroomSection:
     """The ``headroom`` section of a response: every op-amp output's level on the response grid."""
 
     report: HeadroomReport
-    columns: np.ndarray   # indices of the response grid in the report's grid
+    curves: dict[str, np.ndarray]
     warnings: list[DesignWarning]
     notes: list[str]
 
     def levels(self) -> dict[str, np.ndarray]:
         """Op-amp ref -> peak level (V) over the response grid."""
-        return {o.ref: self.report.levels_v[k, self.columns] for k, o in enumerate(self.report.opamps)}
+        return self.curves
 
     def as_dict(self) -> dict:
         r = self.report
@@ -567,7 +585,8 @@ def check_response_levels(plans: Sequence[StagePlan], supply: SupplySettings | N
         noise_points = f_pos.size + integration_grid(band, noise.points_per_decade).size
     work = costs.LevelsWork(
         noise_points=noise_points, noise_sources=_sources(plans, supply),
-        headroom_points=peak_points if (headroom is not None or noise is not None) else 0,
+        headroom_points=(peak_points + (points if headroom is not None else 0)
+                         if (headroom is not None or noise is not None) else 0),
         opamps=_opamp_count(plans, supply), supply=supply is not None)
     costs.check_levels(shape, work, settings, base_units=base_units,
                        field="noise.points_per_decade" if noise is not None else "headroom")
@@ -609,7 +628,7 @@ def response_levels(plans: Sequence[StagePlan], document_settings, frequency_hz:
             if not b.ranges_known:
                 notes.append("no op-amp output range is known: give the op-amps' output_swing_v, or a supply in the "
                              "design's settings, to compare the levels with it")
-            out.headroom = HeadroomSection(rep, np.searchsorted(grid, f), level_warnings(rep), notes)
+            out.headroom = HeadroomSection(rep, _level_curves(b, rep, f), level_warnings(rep), notes)
         else:
             rep = _levels(b, grid, input_peak_v=PROBE_INPUT_V)
     if noise is not None:

@@ -130,3 +130,19 @@ def test_stages_clipping_with_the_output_draw_no_warning(client):
     assert max(clip.values()) / min(clip.values()) < 10 ** (0.1 / 20)
     assert not [w for w in h["warnings"] if w["code"] == "clips_before_output"]
     assert not [w for w in doc["warnings"] if w["code"] == "clips_before_output"]
+
+
+def test_peaks_do_not_depend_on_the_response_grid(client):
+    # the default grid of a bandpass spans twenty decades around its zeros at the origin; the levels' peaks are
+    # searched on the sections' own grid, so they agree with the design's stage peak gains whatever the grid
+    doc = client.post("/v1/designs", json={"response": "bandpass", "family": "butterworth", "order": 2,
+                                           "cutoff_hz": ["35kHz", "45kHz"],
+                                           "opamp": {"gbw_hz": "50MHz", "output_swing_v": 10}}).get_json()
+    for grid in (None, {"start_hz": 1, "stop_hz": 1e7, "points": 101}):
+        body = {"design": doc, "headroom": {"input_peak_v": 0.5}}
+        if grid:
+            body["frequencies"] = grid
+        h = client.post("/v1/responses", json=body).get_json()["headroom"]
+        assert h["output_peak_gain"] == pytest.approx(10 ** (doc["output_peak_gain_db"] / 20), rel=1e-4)
+        for o, st in zip(h["opamps"], doc["stages"]):
+            assert o["peak_gain"] == pytest.approx(10 ** (st["peak_gain_db"] / 20), rel=1e-4)
