@@ -50,8 +50,8 @@ from service.realization.cascade import analysis_grid
 from service.realization.supply import CAUTION_SPAN_V, SupplyReport, filter_circuit, supply_report
 from service.response.errors import InvalidLevel
 from service.response.headroom import HeadroomReport, analyze_headroom
-from service.response.noise import (INTEGRATION_POINTS_PER_DECADE, MAX_TEMPERATURE_K, NoiseContribution,
-                                    NoiseReport, analyze_noise, integration_grid)
+from service.response.noise import (INTEGRATION_POINTS_PER_DECADE, MAX_TEMPERATURE_K, NoiseReport, analyze_noise,
+                                    integration_grid)
 from service.workflows import costs
 from service.workflows import limits as L
 from service.workflows.errors import WorkflowError
@@ -307,18 +307,29 @@ def _stage_refs(plans: Sequence[StagePlan]) -> dict[str, int | None]:
     return out
 
 
-def _has(plans: Sequence[StagePlan], names: Sequence[str], extra: dict | None = None) -> bool:
-    if extra and any(extra.get(n) for n in names):
-        return True
+def _has(plans: Sequence[StagePlan], names: Sequence[str]) -> bool:
+    """Whether any op-amp of ``plans`` gives a non-zero figure among ``names``."""
     return any(getattr(u, n, None) for p in plans for u in p.opamps for n in names)
 
 
 def board(design: Design, supply: SupplySettings | None, *, opamp: dict | None = None,
           report: bool = False) -> Board:
-    """The filter of ``design`` (its plans, part ranges and series) on ``supply``.
+    """The filter of ``design`` on ``supply``, as the noise and level analyses see it.
 
-    ``opamp``: noise figures for the op-amps that give none.  ``report``: compute the supply's whole
-    report (offsets per stage, the passband check, added parts) rather than the DC levels alone.
+    Parameters
+    ----------
+    design : Design
+        Its plans, part ranges and series (the bias network's parts come from the same series).
+    supply : SupplySettings or None
+    opamp : dict, optional
+        Noise figures for the op-amps that give none.
+    report : bool
+        With a supply, compute its whole report (offsets per stage, the passband check, added parts)
+        rather than the DC levels alone.
+
+    Returns
+    -------
+    Board
     """
     plans = design.plans
     stage_of = _stage_refs(plans)
