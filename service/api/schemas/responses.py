@@ -7,6 +7,8 @@ import marshmallow as ma
 from service.api.fields import Quantity, StrictInteger
 from service.api.schemas.common import ReplySchema, StrictSchema, one_of
 from service.api.schemas.designs import DesignDocumentSchema
+from service.api.schemas.electrical import (HeadroomRequestSchema, NoiseRequestSchema, ResponseHeadroomSchema,
+                                            ResponseNoiseSchema)
 from service.api.schemas.filters import (
     BAND_RESPONSES, FREQ_RANGE, FilterSchema, FrequencyOrPair, GroupDelayLimitSchema, SectionSchema, _ATTEN, _RIPPLE,
     _check_pair,
@@ -16,7 +18,8 @@ from service.api.schemas.verdicts import VerdictSchema
 from service.approximation import (CutoffAt, Excess, Family, GroupDelayLimit, ResponseType, Section, SectionKind,
                                    SectionOrder)
 from service.response import FrequencyGrid, TimeGrid
-from service.workflows import DesignDocument, MaskSegment, Requirement, ResponseRequest, Zpk
+from service.workflows import (DesignDocument, HeadroomRequest, MaskSegment, NoiseRequest, Requirement,
+                               ResponseRequest, Zpk)
 
 MAX_LIST = 10_000
 _FREQ0 = ma.validate.Range(min=0, max=1e10)
@@ -196,6 +199,12 @@ class ResponseRequestSchema(StrictSchema):
         "`csv`: a row per frequency (or per time point with `table: time`); `svg`: magnitude and phase, group "
         "delay and step response, with the mask."))
     table = one_of(["frequency", "time"], load_default="frequency", description="Rows of the CSV table.")
+    noise = ma.fields.Nested(NoiseRequestSchema, metadata={
+        "description": "Design documents: output noise density on the grid, integrated noise over `band_hz`, "
+                       "per-part and per-stage contributions ranked, and SNR and dynamic range."})
+    headroom = ma.fields.Nested(HeadroomRequestSchema, metadata={
+        "description": "Design documents: every op-amp output's peak level over frequency against its range, at "
+                       "`input_peak_v` or `output_peak_v`, with a warning where a stage clips before the output."})
 
     @ma.validates_schema
     def _exactly_one_system(self, data, **kwargs):
@@ -226,7 +235,9 @@ class ResponseRequestSchema(StrictSchema):
             system=system, frequencies=frequencies_from(data.get("frequencies")),
             time=TimeGrid(time.get("stop_s"), time.get("points")) if time else None,
             mask=mask_from(data.get("mask")), passband_hz=data.get("passband_hz"),
-            attenuation_at_hz=tuple(data.get("attenuation_at_hz") or ()), figure=data["format"] == "svg"),
+            attenuation_at_hz=tuple(data.get("attenuation_at_hz") or ()), figure=data["format"] == "svg",
+            noise=None if "noise" not in data else NoiseRequest.from_json(data["noise"], "noise"),
+            headroom=None if "headroom" not in data else HeadroomRequest.from_json(data["headroom"], "headroom")),
             "format": data["format"], "table": data["table"]}
 
 
@@ -304,6 +315,10 @@ class ResponseSchema(ReplySchema):
     mask_result = ma.fields.Nested(VerdictSchema, allow_none=True, metadata={
         "description": "With a mask: the verdict of the one verifier (the same as a design's)."})
     notes = ma.fields.List(ma.fields.String())
+    noise = ma.fields.Nested(ResponseNoiseSchema, allow_none=True, metadata={
+        "description": "With `noise` (design documents): the noise section; null otherwise."})
+    headroom = ma.fields.Nested(ResponseHeadroomSchema, allow_none=True, metadata={
+        "description": "With `headroom` (design documents): the level of every op-amp output; null otherwise."})
 
 
 #: Schemas referenced by name from custom fields (registered as OpenAPI components by the app).
