@@ -109,10 +109,21 @@ class ResponseOutcome:
         return self.result.svg()
 
 
+#: Roots this many times slower than the fastest are taken for roots at the origin (rounding) by the default grid.
+ORIGIN_RATIO = 1e-9
+
+
 def default_grid(roots_rad_s: np.ndarray, points: int) -> FrequencyGrid:
-    """Log-spaced points from 1/100 of the slowest to 100x the fastest root frequency (Hz)."""
+    """Log-spaced points from 1/100 of the slowest to 100x the fastest root frequency (Hz).
+
+    Roots at the origin, and those within :data:`ORIGIN_RATIO` of it relative to the fastest (an exact zero at
+    s = 0 computed with rounding), set no frequency.
+    """
     mags = np.abs(np.asarray(roots_rad_s, dtype=complex))
-    mags = mags[np.isfinite(mags) & (mags > 0)] / (2 * np.pi)
+    mags = mags[np.isfinite(mags) & (mags > 0)]
+    if mags.size:
+        mags = mags[mags >= ORIGIN_RATIO * mags.max()]
+    mags = mags / (2 * np.pi)
     low, high = (float(mags.min()), float(mags.max())) if mags.size else (1.0, 1.0)
     return FrequencyGrid(low / 100.0, high * 100.0, points, "log")
 
@@ -156,7 +167,11 @@ def respond(request: ResponseRequest, settings: Settings, *, path: str = "design
         costs.check_limit("max_time_points", request.time.points, settings, field="time.points", what="time points")
     display, roots, response, finite, plans = _system(request.system, settings, path)
     grid = request.frequencies
-    if grid is None:
+    if grid is None and plans is not None:
+        # a circuit: around what its stages do (their sections), not its op-amps' own poles
+        grid = default_grid(np.array([2 * np.pi * f for p in plans for f in (p.section.f0_hz, p.section.fz_hz)
+                                      if f]), request.default_points)
+    elif grid is None:
         grid = default_grid(np.concatenate([roots.zeros.ravel(), roots.poles.ravel()]), request.default_points)
     points = len(resolve_frequencies(grid, settings.max_frequency_points))
     time_points = (request.time.points or 0) if request.time is not None else 0

@@ -193,3 +193,20 @@ def test_a_stock_of_one_1_ohm_resistor_is_refused_naming_the_parts(client):
     problem = r.get_json()
     assert list(problem["errors"]) == ["parts"]
     assert "allowed parts" in problem["detail"] and "R" in problem["detail"]
+
+
+@pytest.mark.parametrize("opamp", [None, {"gbw_hz": 1e7}], ids=["ideal", "10MHz"])
+def test_the_default_response_grid_of_a_band_design_shows_its_passband(client, opamp):
+    # an exact zero at s = 0 computed with rounding (1e-13 Hz) once stretched the default grid over 20 decades,
+    # and the op-amps' own poles pushed it to 1 GHz: the passband fell between the samples
+    body = {"response": "bandpass", "family": "butterworth", "order": 4, "cutoff_hz": [35e3, 45e3]}
+    if opamp:
+        body["opamp"] = opamp
+    doc = _design(client, body)
+    r = client.post("/v1/responses", json={"design": doc}).get_json()
+    f = np.array(r["frequency_hz"])
+    m = np.array(r["magnitude_db"])
+    assert 100 < f[0] < 35e3 and 45e3 < f[-1] < 1e8
+    # source: ngspice AC analysis (reference simulator): the peak gain of the returned netlist
+    (fs, h), = run_ngspice_sweeps(doc["netlist"], ["lin 2001 30k 50k"])
+    assert m.max() == pytest.approx(20 * np.log10(np.abs(h).max()), abs=0.05)
