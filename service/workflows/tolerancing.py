@@ -20,7 +20,7 @@ from service.workflows import costs
 from service.workflows.document import DesignDocument
 from service.workflows.masks import Mask, mask_criteria
 from service.workflows.responding import DEFAULT_POINTS, default_grid
-from service.workflows.verdicts import finite_opamps
+from service.workflows.verdicts import design_criteria, finite_opamps, slowest_gbw_hz
 
 
 @dataclass(frozen=True)
@@ -55,9 +55,9 @@ def tolerance(request: ToleranceRequest, settings: Settings, *, path: str = "des
     finite = finite_opamps(plans)
     criteria = None
     if request.mask is not None:
-        criteria = mask_criteria(request.mask, finite_opamps=finite)
+        criteria = mask_criteria(request.mask, finite_opamps=finite, opamp_gbw_hz=slowest_gbw_hz(plans))
     elif doc.requirement is not None and doc.requirement.by_specification:
-        criteria = doc.requirement.criteria(finite_opamps=finite)
+        criteria = design_criteria(doc.requirement, plans)
     grid = request.frequencies
     if grid is None:
         roots = [2 * np.pi * p.section.f0_hz for p in plans]
