@@ -24,6 +24,7 @@ from service.response.verification import verify
 from service.workflows import costs
 from service.workflows.approximating import approximate
 from service.workflows.document import DesignDocument
+from service.workflows.figures import with_figure
 from service.workflows.masks import Mask, mask_criteria
 from service.workflows.requirement import Requirement
 from service.workflows.verdicts import circuit_roots, finite_opamps, section_roots, slowest_gbw_hz
@@ -123,9 +124,10 @@ def respond(request: ResponseRequest, settings: Settings, *, path: str = "design
     if request.mask is not None:
         gbw = None if plans is None else slowest_gbw_hz(plans)
         verdict = verify(roots, mask_criteria(request.mask, finite_opamps=finite, opamp_gbw_hz=gbw)).verdict()
-    return analyze(display, grid, time=request.time, verdict=verdict, response_type=response,
-                   passband_hz=request.passband_hz, attenuation_at_hz=request.attenuation_at_hz,
-                   max_points=settings.max_frequency_points, max_time_points=settings.max_time_points)
+    result = analyze(display, grid, time=request.time, verdict=verdict, response_type=response,
+                     passband_hz=request.passband_hz, attenuation_at_hz=request.attenuation_at_hz,
+                     max_points=settings.max_frequency_points, max_time_points=settings.max_time_points)
+    return with_figure(result, request.system, display) if request.figure else result
 
 
 __all__ = ["ResponseRequest", "Zpk", "respond", "default_grid", "section_roots"]
