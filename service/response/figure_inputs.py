@@ -38,10 +38,6 @@ class FigureSubject:
     requirement: str | None = None
     design: str | None = None
 
-    def details(self) -> tuple[str, ...]:
-        """The smaller lines under the filter line, in order (the requirement, then the design)."""
-        return tuple(x for x in (self.requirement, self.design) if x)
-
 
 @dataclass(frozen=True)
 class PassbandDetail:

@@ -131,13 +131,14 @@ def decimate(x: np.ndarray, y: np.ndarray, limit: int = MAX_DRAWN_POINTS) -> tup
 
 
 def render_svg(fig) -> bytes:
-    """The SVG document of a matplotlib Figure (text as text, no date: same figure, same bytes)."""
+    """The SVG document of a matplotlib Figure (text as text, no date, fixed ids: same figure, same bytes)."""
     import matplotlib
     from matplotlib.backends.backend_agg import FigureCanvasAgg
 
     FigureCanvasAgg(fig)
     buf = io.BytesIO()
-    with matplotlib.rc_context({"svg.fonttype": "none"}):  # text as text: small and fast
+    # text as text (small and fast); a fixed salt for the ids matplotlib gives clip paths and markers
+    with matplotlib.rc_context({"svg.fonttype": "none", "svg.hashsalt": "rolloff"}):
         fig.savefig(buf, format="svg", metadata={"Date": None})
     return buf.getvalue()
 
@@ -423,7 +424,7 @@ def marker_line(ax, x: float, label: str, *, side: str = "auto", f_lo: float = 0
     ``side`` is where the label extends from the line (``"left"``, ``"right"``); ``"auto"`` keeps it
     clear of the panel's title (right of a line in the left fifth of [f_lo, f_hi], else left).
     """
-    ax.axvline(x, color=MARKER_LINE, ls=(0, (4, 3)), lw=0.9, zorder=1.8)
+    ax.axvline(x, color=MARKER_LINE, ls=(0, (4, 3)), lw=0.9, zorder=1.8, gid="marker-line")
     if side == "auto":
         side = "right" if f_hi > f_lo and _axis_fraction(x, f_lo, f_hi, log_x) < 0.2 else "left"
     ax.annotate(label, (x, 1.0), xycoords=("data", "axes fraction"), xytext=(2 if side == "right" else -2, 2),
@@ -468,23 +469,25 @@ def detail_gain_range(ref_db: float, low_db: float, high_db: float, limit_db: fl
 # --- title block and legend ---------------------------------------------------------------------------------
 
 
-def title_block(fig, height_in: float, subject, lines: list[tuple[str, str]]) -> float:
+def title_block(fig, height_in: float, subject, lines: list[tuple[str, str, str]]) -> float:
     """Write the title block at the top of ``fig`` and return where it ends (inches from the top).
 
-    ``subject`` (a :class:`~service.response.subject.FigureSubject` or None) gives the bold headline and
-    the requirement and design lines; ``lines`` adds ``(text, colour)`` lines below (the verdict, the yield).
+    ``subject`` (a :class:`~service.response.figure_inputs.FigureSubject` or None) gives the bold filter
+    line and the requirement and design lines (SVG ids ``title``, ``title-requirement``, ``title-design``);
+    ``lines`` adds ``(text, colour, id)`` lines below (the verdict, the yield).
     """
     y = 0.22
     headline = subject.filter if subject is not None else "Filter response"
     fig.text(0.02, 1 - y / height_in, headline, fontsize=12.5, fontweight="bold", color=INK, va="top",
              gid="title")
     y += 0.27
-    for text in (subject.details() if subject is not None else ()):
-        fig.text(0.02, 1 - y / height_in, text, fontsize=8.5, color="#3c3c3c", va="top", gid="title-detail")
-        y += 0.18
-    for text, colour in lines:
-        fig.text(0.02, 1 - y / height_in, text, fontsize=9, fontweight="bold", color=colour, va="top",
-                 gid="title-status")
+    for text, gid in ((getattr(subject, "requirement", None), "title-requirement"),
+                      (getattr(subject, "design", None), "title-design")):
+        if text:
+            fig.text(0.02, 1 - y / height_in, text, fontsize=8.5, color="#3c3c3c", va="top", gid=gid)
+            y += 0.18
+    for text, colour, gid in lines:
+        fig.text(0.02, 1 - y / height_in, text, fontsize=9, fontweight="bold", color=colour, va="top", gid=gid)
         y += 0.2
     return y
 
@@ -541,14 +544,17 @@ def figure_legend(fig, grid, handles: list, top_in: float, height_in: float, col
 # --- the response figure ---------------------------------------------------------------------------------
 
 
-def _status_line(verdict) -> tuple[str, str]:
-    """The verifier's verdict in one line, and its colour."""
+def _status_line(verdict, staged: bool = False) -> tuple[str, str]:
+    """The verifier's verdict in one line, and its colour; ``staged``: the system is a design (an unstable
+    pole is named by its stage, from 1)."""
     if verdict is None:
         return "No mask given: nothing verified", "#5b5b5b"
     if not verdict.stable:
         poles = verdict.unstable_poles
-        where = "" if not poles else (f": pole at {_hz(poles[0].frequency_hz)} in the right half-plane "
-                                      f"(stage {poles[0].group + 1})")
+        where = ""
+        if poles:
+            where = f": pole at {_hz(poles[0].frequency_hz)} in the right half-plane"
+            where += f" (stage {poles[0].group + 1})" if staged else ""
         return "Unstable" + where + " — meets nothing", MISSED
     worst = verdict.worst
     text = {"meets": "Meets the mask", "misses": "Misses the mask",
@@ -719,8 +725,8 @@ def response_figure(result, subject=None):
     H = RESPONSE_HEIGHT_IN
     fig = new_figure(H)
     verdict = result.verdict
-    status = _status_line(verdict)
-    head = title_block(fig, H, subject, [status])
+    status = _status_line(verdict, staged=subject is not None and subject.design is not None)
+    head = title_block(fig, H, subject, [(*status, "title-status")])
     legend_top = head + 0.04
     grid = fig.add_gridspec(3, 2, left=0.085, right=0.975, bottom=0.055, hspace=0.42, wspace=0.24,
                             height_ratios=[1.45, 1.0, 1.0])

@@ -78,7 +78,7 @@ def tolerance_marks(result) -> list[SegmentMark]:
     for j, lim in enumerate(crit.limits):
         row = rows.get(j)
         if row is None:
-            marks.append(SegmentMark(lim, None, None, None, "", lim.stop_hz))
+            marks.append(SegmentMark(lim, None, None, None, "", lim.stop_hz, j + 1))
             continue
         worst = row.get("worst_trial")
         if worst is not None:
@@ -92,7 +92,7 @@ def tolerance_marks(result) -> list[SegmentMark]:
         count = f"all {trials:,} pass" if failures == 0 else f"{failures:,} of {trials:,} fail"
         margin = row.get("worst_margin_db")
         label = count if margin is None else f"{count}, worst {signed_db(margin)} dB"
-        marks.append(SegmentMark(lim, state, where, loss, label, lim.stop_hz))
+        marks.append(SegmentMark(lim, state, where, loss, label, lim.stop_hz, j + 1))
     return marks
 
 
@@ -165,7 +165,7 @@ def tolerance_figure(result, subject=None):
     subject = subject if subject is not None else result.subject
     H = TOLERANCE_HEIGHT_IN
     fig = new_figure(H)
-    head = title_block(fig, H, subject, [(_run_line(result), INK), _yield_line(result)])
+    head = title_block(fig, H, subject, [(_run_line(result), INK, "title-run"), (*_yield_line(result), "title-yield")])
     legend_top = head + 0.04
     grid = fig.add_gridspec(2, 1, left=0.085, right=0.975, bottom=0.09, hspace=0.34,
                             height_ratios=[1.4, 1.0])

@@ -179,10 +179,10 @@ def tolerance_figure_grid(grid, criteria: Criteria | None, requirement: Requirem
     if window is None:
         return f
     have = int(np.count_nonzero((f >= window[0]) & (f <= window[1])))
-    room = min(TOLERANCE_DETAIL_POINTS - have, max_points - f.size)
+    room = min(TOLERANCE_DETAIL_POINTS - have, max_points - f.size - 2)
     if room < TOLERANCE_DETAIL_POINTS // 4:
         return f
-    extra, _ = _window_grid(*window, room, log_x)
+    extra, _ = _window_grid(*window, room + 2, log_x)       # its ends may be points of the grid already
     return np.unique(np.concatenate([f, extra]))
 
 
