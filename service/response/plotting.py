@@ -355,6 +355,8 @@ def draw_worst_points(ax, marks: list[SegmentMark], ref_db: float, f_lo: float, 
         if not y_lo <= y <= y_hi:
             continue
         x, note = mk.worst_hz, ""
+        if f_lo * (1 - 1e-9) <= x < f_lo or f_hi < x <= f_hi * (1 + 1e-9):   # an edge, to rounding
+            x = min(max(x, f_lo), f_hi)
         if x < f_lo or (log_x and x <= 0):
             note = " at DC" if x <= 0 else (" at ≈DC" if x < 1e-3 * f_lo else f" at {_hz(x)}")
             x = f_lo
@@ -529,9 +531,9 @@ PANEL_HEAD_IN = 0.42
 def figure_legend(fig, grid, handles: list, top_in: float, height_in: float, columns: int = 5) -> None:
     """A frameless legend across the figure below the title block (``top_in`` inches from the top), and the
     panels of ``grid`` (a GridSpec) moved to start below it."""
-    legend = fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.015, 1 - top_in / height_in), ncols=columns,
-               fontsize=8, frameon=False, handlelength=2.2, columnspacing=1.4, borderaxespad=0.0,
-               labelspacing=0.35)
+    legend = fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.015, 1 - top_in / height_in),
+                        ncols=columns, fontsize=8, frameon=False, handlelength=2.2, columnspacing=1.4,
+                        borderaxespad=0.0, labelspacing=0.35)
     legend.set_gid("legend")
     rows = max(1, math.ceil(len(handles) / columns))
     grid.update(top=1 - (top_in + rows * LEGEND_ROW_IN + PANEL_HEAD_IN) / height_in)

@@ -63,8 +63,9 @@ def tolerance_marks(result) -> list[SegmentMark]:
 
     The point is the worst one the verifier located among the trials (``failures_by_criterion[..]
     ["worst_trial"]``), else the nominal design's worst point (``result.nominal_verdict``). The state is
-    ``"met"`` when no stable trial fails the segment and ``"missed"`` otherwise; the label says how many
-    of the trials fail and the smallest margin (dB) over all trials.
+    ``"met"`` when no stable trial fails the segment and ``"missed"`` otherwise (an unstable trial meets
+    nothing: the yield line counts those); the label says how many of the trials fail and the smallest
+    margin (dB) over all trials.
     """
     crit, yld = result.criteria, result.yield_
     if crit is None:
@@ -87,9 +88,12 @@ def tolerance_marks(result) -> list[SegmentMark]:
             where, loss = nominal_segments[j].worst_hz, nominal_segments[j].loss_db
         else:
             where = loss = None
-        failures = int(row["failures"])
+        failures, unstable = int(row["failures"]), int(yld.get("unstable") or 0)
         state = "met" if failures == 0 else "missed"
-        count = f"all {trials:,} pass" if failures == 0 else f"{failures:,} of {trials:,} fail"
+        if failures == 0:
+            count = f"all {trials:,} pass" if not unstable else f"all {trials - unstable:,} stable boards pass"
+        else:
+            count = f"{failures:,} of {trials:,} fail"
         margin = row.get("worst_margin_db")
         label = count if margin is None else f"{count}, worst {signed_db(margin)} dB"
         marks.append(SegmentMark(lim, state, where, loss, label, lim.stop_hz, j + 1))
@@ -117,8 +121,8 @@ def _yield_line(result) -> tuple[str, str]:
     y = result.yield_
     if y is None:
         return "No requirement or mask: yield not computed", "#5b5b5b"
-    text = (f"Yield {100 * y['fraction']:.1f} % (95 % interval {100 * y['ci95_low']:.1f}–{100 * y['ci95_high']:.1f} %)"
-            f": {y['passed']:,} of {y['trials']:,} boards meet the requirement")
+    text = (f"Yield {100 * y['fraction']:.1f} % (95 % interval {100 * y['ci95_low']:.1f}–"
+            f"{100 * y['ci95_high']:.1f} %): {y['passed']:,} of {y['trials']:,} boards meet the requirement")
     if y.get("unstable"):
         text += f" · {y['unstable']:,} unstable"
     colour = MET if y["passed"] == y["trials"] else (MISSED if y["passed"] == 0 else INK)

@@ -47,7 +47,8 @@ def test_requirement_by_order_says_what_the_cutoff_is():
 def test_design_text_counts_stages_topologies_and_op_amps():
     doc = DesignDocument.from_json(EVALUATE_EXAMPLE)
     assert design_text(doc) == "1 stage: 1 Sallen-Key · 1 op-amp, GBW 10 MHz"
-    two = dict(EVALUATE_EXAMPLE, order=4, stages=[EVALUATE_EXAMPLE["stages"][0], _renamed(EVALUATE_EXAMPLE["stages"][0])])
+    first = EVALUATE_EXAMPLE["stages"][0]
+    two = dict(EVALUATE_EXAMPLE, order=4, stages=[first, _renamed(first)])
     two["stages"][1]["opamps"] = [{"ref": "U2", "role": "U1"}]          # an ideal op-amp
     subject = document_subject(DesignDocument.from_json(two))
     assert subject.design == "2 stages: 2 Sallen-Key · 2 op-amps, GBW 10 MHz (1 ideal)"
