@@ -158,6 +158,13 @@ class ToleranceMetricsSchema(ma.Schema):
         "description": "Each stage's f0 and Q (closed form, ideal op-amps), stage 1 first."})
 
 
+class WorstTrialSchema(ma.Schema):
+    trial = ma.fields.Integer(metadata={"description": "Trial index (from 0), as in `trials`."})
+    frequency_hz = ma.fields.Float(metadata={"description": "Where that trial's margin is least (Hz)."})
+    loss_db = ma.fields.Float(metadata={"description": "That trial's loss there (dB)."})
+    margin_db = ma.fields.Float(metadata={"description": "That trial's margin on the segment (dB)."})
+
+
 class CriterionFailuresSchema(ma.Schema):
     segment = ma.fields.Integer(allow_none=True, metadata={"description": "Index of the verified segment (from 0); "
                                                                          "null for the group-delay limit."})
@@ -169,6 +176,9 @@ class CriterionFailuresSchema(ma.Schema):
     failures = ma.fields.Integer(metadata={"description": "Stable trials missing this criterion."})
     worst_margin_db = ma.fields.Float(allow_none=True)
     worst_margin_pct = ma.fields.Float(allow_none=True)
+    worst_trial = ma.fields.Nested(WorstTrialSchema, allow_none=True, metadata={
+        "description": "The located trial with the least margin on this segment; null when no trial's worst "
+                       "point was located."})
 
 
 class YieldSchema(ma.Schema):
