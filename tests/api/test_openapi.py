@@ -123,6 +123,32 @@ def test_enumerations_are_components_and_nullable_ones_are_not_copied(document):
     assert family["oneOf"] == [{"$ref": "#/components/schemas/Family"}, {"type": "null"}]
 
 
+def test_one_enumeration_type_per_concept(document):
+    """A generated client gets one enumeration class per concept of the domain (a part kind, a table's rows ...):
+    no two carry the same values; and no anonymous object in a oneOf (openapi-python-client names those
+    ``...Type1``)."""
+    seen: dict[tuple, list[str]] = {}
+
+    def walk(node, where):
+        if isinstance(node, dict):
+            if isinstance(node.get("enum"), list):
+                seen.setdefault(tuple(sorted(map(str, node["enum"]))), []).append(where)
+            for variant in node.get("oneOf", []):
+                assert "$ref" in variant or variant.get("type") != "object", f"{where}: name the object variant"
+            for k, v in node.items():
+                walk(v, f"{where}/{k}")
+        elif isinstance(node, list):
+            for i, v in enumerate(node):
+                walk(v, f"{where}[{i}]")
+
+    walk(document, "")
+    # the representations an operation offers (`format`) are an enumeration of that operation's own
+    per_operation = {p for places in seen.values() for p in places
+                     if p.endswith("Format") or p.endswith("/properties/format")}
+    shared = {values: places for values, places in seen.items() if len(set(places) - per_operation) > 1}
+    assert not shared, shared
+
+
 def test_array_query_parameters_are_repeated_parameters(document):
     for path, method, op in _operations(document):
         for p in op.get("parameters", []):

@@ -217,6 +217,21 @@ def test_csv_booleans_are_lower_case(client):
     assert {r[meets] for r in rows[1:]} <= {"true", "false"}
 
 
+def test_compare_csv_carries_the_json_figures(client):
+    """The comparison's CSV rows hold the same figures as its JSON, rounded to the same 6 significant digits."""
+    query = ("/v1/approximations/compare?response=lowpass&passband_hz=1k&stopband_hz=3k&passband_ripple_db=0.5"
+             "&stopband_attenuation_db=40")
+    families = client.get(query).get_json()["families"]
+    rows = rows_of(client.get(query + "&format=csv"))
+    header = rows[0]
+    assert len(rows) - 1 == len(families)
+    for row, fam in zip(rows[1:], families):
+        for name in ("max_q", "group_delay_variation_s", "overshoot_pct", "settling_time_1pct_s", "margin_db"):
+            got = row[header.index(name)]
+            assert (got == "" and fam[name] is None) or float(got) == fam[name], (fam["family"], name, got)
+            assert len(got.replace("-", "").replace(".", "").split("e")[0].lstrip("0")) <= 6, got
+
+
 # ------------------------------------------------------------------------------------ the catalog of fields
 
 GET_FORMS = {

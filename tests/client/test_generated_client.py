@@ -14,6 +14,7 @@ libraries and ngspice, tables as CSV, values as text, figures as SVG.
 from __future__ import annotations
 
 import csv
+import enum
 import importlib
 import io
 import json
@@ -183,6 +184,11 @@ def test_every_operation_through_the_generated_client(document, package, client,
     assert set(operations) == ops                   # one generated function per operation, named by operationId
     call = Calls(package, client, operations)
     m = call.models
+    # one class per enumeration of the domain, the part kinds of a document and of a stock list alike
+    enums = {name for name, cls in vars(m).items() if isinstance(cls, type) and issubclass(cls, enum.Enum)}
+    assert {"PassiveKind", "ResponseTable", "DistributionName", "Family", "SeriesName"} <= enums
+    assert not {"ComponentKind", "StockPartKind", "ResponseRequestTable"} & enums
+    assert not [name for name in vars(m) if name[-5:-1] == "Type" and name[-1].isdigit()]
 
     # -- operations
     assert typed(call("check_health"), "Health").status == "ok"
@@ -318,6 +324,14 @@ def test_every_operation_through_the_generated_client(document, package, client,
     tolerance_body = m.ToleranceRequest.from_dict({"design": by_req.to_dict(), "trials": 200, "seed": 3,
                                                    "include_trials": 2})
     tol = typed(call("analyze_tolerance", body=tolerance_body), "Tolerance")
+    per_kind = m.ToleranceRequest.from_dict({"design": by_req.to_dict(), "trials": 50, "seed": 3,
+                                             "distribution": {"resistor": "uniform"}})
+    assert isinstance(per_kind.distribution, m.DistributionByKind)
+    assert per_kind.distribution.resistor is m.DistributionName.UNIFORM
+    by_kind = typed(call("analyze_tolerance", body=per_kind), "Tolerance")
+    uniform, gaussian = m.DistributionName.UNIFORM, m.DistributionName.GAUSSIAN
+    assert (by_kind.distribution.resistor, by_kind.distribution.capacitor, by_kind.distribution.opamp) == (
+        uniform, gaussian, gaussian)
     assert tol.trial_count == 200 and 0.0 <= tol.yield_.fraction <= 1.0
     assert tol.yield_.ci95_low <= tol.yield_.fraction <= tol.yield_.ci95_high
     curves = tol.magnitude_db_percentiles

@@ -105,7 +105,7 @@ class CapacitorPolicySchema(StrictSchema):
 
 
 class StockPartSchema(StrictSchema):
-    kind = one_of(["resistor", "capacitor"], required=True, description="Part kind.")
+    kind = one_of(["resistor", "capacitor"], name="PassiveKind", required=True, description="Part kind.")
     value = Quantity(unit=("ohm", "F"), required=True, validate=_VALUE, metadata={
         "description": f"Nominal value (Ω or F): resistors {L.RESISTOR_RANGE_OHM[0]:g} to {L.RESISTOR_RANGE_OHM[1]:g} Ω, "
                        f"capacitors {L.CAPACITOR_RANGE_F[0]:g} to {L.CAPACITOR_RANGE_F[1]:g} F."})
@@ -245,7 +245,7 @@ class ComponentSchema(StrictSchema):
                            metadata={"description": "Reference unique across the design (R7, C3)."})
     role = ma.fields.String(allow_none=True, validate=ma.validate.Length(min=1, max=L.MAX_REF_LENGTH), metadata={
         "description": "Position in the topology (R1, Rf ...); optional when editing."})
-    kind = one_of(["resistor", "capacitor"], required=True, description="Part kind.")
+    kind = one_of(["resistor", "capacitor"], name="PassiveKind", required=True, description="Part kind.")
     value = Quantity(unit=("ohm", "F"), required=True, validate=_VALUE, metadata={
         "description": f"Chosen value (Ω or F): resistors {L.RESISTOR_RANGE_OHM[0]:g} to {L.RESISTOR_RANGE_OHM[1]:g} Ω, "
                        f"capacitors {L.CAPACITOR_RANGE_F[0]:g} to {L.CAPACITOR_RANGE_F[1]:g} F."})

@@ -208,7 +208,8 @@ class ApproximationSchema(ReplySchema):
 
 
 class ApproximationRequestSchema(FilterSchema):
-    format = one_of(["json", "csv"], load_default="json", description="`csv`: the sections as a table.")
+    format = one_of(["json", "csv"], name="ApproximationBodyFormat", load_default="json",
+                    description="`csv`: the sections as a table.")
 
 
 class CompareRequestSchema(StrictSchema):
@@ -225,7 +226,8 @@ class CompareRequestSchema(StrictSchema):
         "description": "Recommend only a family whose step overshoot stays within this (%)."})
     group_delay_variation_limit_s = Quantity(unit="s", validate=ma.validate.Range(min=0, max=1e3), metadata={
         "description": "Recommend only a family whose passband group-delay variation stays within this (s)."})
-    format = one_of(["json", "csv"], load_default="json", description="`csv`: a row per family.")
+    format = one_of(["json", "csv"], name="ApproximationBodyFormat", load_default="json",
+                    description="`csv`: a row per family.")
 
     @ma.validates_schema
     def _pairs(self, data, **kwargs):

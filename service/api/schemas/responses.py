@@ -198,7 +198,8 @@ class ResponseRequestSchema(StrictSchema):
     format = one_of(["json", "csv", "svg"], load_default="json", description=(
         "`csv`: a row per frequency (or per time point with `table: time`); `svg`: magnitude and phase, group "
         "delay and step response, with the mask."))
-    table = one_of(["frequency", "time"], load_default="frequency", description="Rows of the CSV table.")
+    table = one_of(["frequency", "time"], name="ResponseTable", load_default="frequency",
+                   description="Rows of the CSV table.")
     noise = ma.fields.Nested(NoiseRequestSchema, metadata={
         "description": "Design documents: output noise density on the grid, integrated noise over `band_hz`, "
                        "per-part and per-stage contributions ranked, and SNR and dynamic range."})

@@ -6,7 +6,7 @@ from flask import current_app
 from flask.views import MethodView
 
 from service.api.extension import Blueprint, representation
-from service.api.formats import csv_response
+from service.api.formats import FIGURE_DIGITS, csv_response
 from service.api.schemas.common import representation_query
 from service.api.schemas.filters import (
     ApproximationRequestSchema, ApproximationSchema, ComparisonSchema, CompareRequestSchema, requirement_from,
@@ -112,7 +112,7 @@ def _compare(args):
                          overshoot_limit_pct=args.get("overshoot_limit_pct"),
                          group_delay_variation_limit_s=args.get("group_delay_variation_limit_s"))
     if representation().produce == "csv":
-        return csv_response(comparison.table(), filename="compare.csv")
+        return csv_response(comparison.table(), filename="compare.csv", digits=FIGURE_DIGITS)
     return comparison.as_dict()
 
 
