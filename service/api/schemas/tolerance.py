@@ -7,52 +7,9 @@ import marshmallow as ma
 from service.api.fields import Quantity, StrictInteger
 from service.api.schemas.common import ReplySchema, StrictSchema, one_of
 from service.api.schemas.designs import DesignDocumentSchema
+from service.api.schemas.montecarlo import DISTRIBUTIONS, DistributionField, TemperatureSchema  # noqa: F401
 from service.api.schemas.responses import FrequenciesField, MaskField, frequencies_from, mask_from
 from service.workflows import DesignDocument, ToleranceRequest
-
-DISTRIBUTIONS = ["uniform", "gaussian"]
-
-
-class DistributionField(ma.fields.Field):
-    """``"uniform"``, ``"gaussian"``, or one per kind ``{"resistor", "capacitor", "opamp"}``."""
-
-    KINDS = ("resistor", "capacitor", "opamp")
-
-    def _deserialize(self, value, attr, data, **kwargs):
-        if isinstance(value, str):
-            if value not in DISTRIBUTIONS:
-                raise ma.ValidationError(f"expected one of {', '.join(DISTRIBUTIONS)}")
-            return value
-        if isinstance(value, dict):
-            errors = {}
-            for key, v in value.items():
-                if key not in self.KINDS:
-                    errors[key] = [f"unknown part kind: expected {', '.join(self.KINDS)}"]
-                elif v not in DISTRIBUTIONS:
-                    errors[key] = [f"expected one of {', '.join(DISTRIBUTIONS)}"]
-            if errors:
-                raise ma.ValidationError(errors)
-            return dict(value)
-        raise ma.ValidationError("expected \"uniform\", \"gaussian\" or {resistor, capacitor, opamp: ...}")
-
-    def openapi_properties(self) -> dict:
-        one = {"type": "string", "enum": DISTRIBUTIONS}
-        per_kind = {"type": "object", "additionalProperties": False,
-                    "properties": {k: one for k in self.KINDS}}
-        return {"oneOf": [one, per_kind]}
-
-
-class TemperatureSchema(StrictSchema):
-    min_c = ma.fields.Float(required=True, validate=ma.validate.Range(min=-273.15, max=500),
-                            metadata={"description": "Lowest board temperature (°C)."})
-    max_c = ma.fields.Float(required=True, validate=ma.validate.Range(min=-273.15, max=500),
-                            metadata={"description": "Highest board temperature (°C)."})
-
-    @ma.validates_schema
-    def _ordered(self, data, **kwargs):
-        if "min_c" in data and "max_c" in data and data["min_c"] > data["max_c"]:
-            raise ma.ValidationError("min_c must not exceed max_c", "max_c")
-
 
 class ToleranceRequestSchema(StrictSchema):
     design = ma.fields.Nested(DesignDocumentSchema, required=True, metadata={

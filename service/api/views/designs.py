@@ -8,6 +8,7 @@ from marshmallow.fields import Integer
 from marshmallow.validate import Range
 
 from service.workflows import DesignDocument, design, evaluate_json
+from service.workflows.yielding import GradedDesignRequest, design_to_yield
 from service.api.extension import Blueprint
 from service.api.formats import (
     CSV_MEDIA_TYPE, SVG_MEDIA_TYPE, TEXT_MEDIA_TYPE, alternative_content, csv_response, svg_response, text_response,
@@ -143,7 +144,11 @@ class Designs(MethodView):
                       description="Invalid request, infeasible requirement, or parts that cannot realize it.")
     @blp.doc(summary="Design a filter with parts from stock", description=_DESCRIPTION, **_DOC)
     def post(self, args):
-        outcome = design(args["request"], current_app.config["ROLLOFF_SETTINGS"])
+        request, settings = args["request"], current_app.config["ROLLOFF_SETTINGS"]
+        if isinstance(request, GradedDesignRequest):
+            outcome = design_to_yield(request, settings)
+        else:
+            outcome = design(request, settings)
         fmt = _wanted(args["format"])
         if fmt == "svg":
             return _schematic(outcome.document, args.get("stage"))
