@@ -139,6 +139,12 @@ class Assignment:
         return self.passes / self.trials if self.trials else 0.0
 
 
+def _product(sens: np.ndarray, d: np.ndarray) -> np.ndarray:
+    """``sens.T @ d`` ((P, K), (P, T) -> (K, T)) without BLAS: these products are small and many, and a
+    threaded BLAS call on a busy machine waits for its threads far longer than it computes."""
+    return np.einsum("pk,pt->kt", sens, d, optimize=False)
+
+
 class GradeSearch:
     """The linear model on a set of boards, ready to judge assignments of ``parts``' grades.
 
@@ -159,8 +165,9 @@ class GradeSearch:
         self.model = model
         self.parts = parts
         self.offset_db = float(offset_db)
-        self.base = model.base_gains(dev)                                           # (T, K)
-        self.sens = model.sensitivity_db                                            # (P, K)
+        # frequency-major layout: (K, T) gains, reductions over the leading axis
+        self.base = np.ascontiguousarray(model.base_gains(dev).T)                  # (K, T)
+        self.sens = np.ascontiguousarray(model.sensitivity_db)                     # (P, K)
         # log deviation of every part in every grade on every board: list of (J_i, T)
         self.logdev = [np.log1p(np.array([g.tolerance for g in p.grades])[:, None] * dev.unit[None, :, i])
                        + np.log1p(np.array([g.tempco_ppm_per_c for g in p.grades])[:, None] * 1e-6
@@ -171,20 +178,27 @@ class GradeSearch:
 
     # ------------------------------------------------------------------ evaluation
     def gains(self, levels: np.ndarray) -> np.ndarray:
-        """Predicted gains (dB), (T, K)."""
-        ld = np.stack([self.logdev[i][levels[i]] for i in range(len(self.parts))], axis=1) if self.parts else \
-            np.zeros((self.trials, 0))
-        return self.model.gains(ld, self.base)
+        """Predicted gains (dB), (K, T)."""
+        if not self.parts:
+            return self.base.copy()
+        ld = np.stack([self.logdev[i][levels[i]] for i in range(len(self.parts))])          # (P, T)
+        return self.base + _product(self.sens, ld)
 
     def worst(self, gains: np.ndarray) -> np.ndarray:
-        """Worst segment margin (dB) of each board, with the calibration offset, shape (..., T)."""
-        return self.model.margins(gains).min(axis=-1) + self.offset_db
+        """Worst segment margin (dB) of each board, with the calibration offset: gains (K, ..., T) -> (..., T)."""
+        return self.model.margins(gains, axis=0).min(axis=0) + self.offset_db
 
     def cost(self, levels: np.ndarray) -> float:
         return float(sum(self.price[i][levels[i]] for i in range(len(self.parts))))
 
     def passes(self, levels: np.ndarray) -> int:
         return int((self.worst(self.gains(levels)) >= 0).sum())
+
+    def _shift(self, levels: np.ndarray, parts, step: int) -> np.ndarray:
+        """Gain change (K, T) of moving ``parts`` by ``step`` grades together."""
+        parts = np.asarray(parts, dtype=int)
+        d = np.stack([self.logdev[i][levels[i] + step] - self.logdev[i][levels[i]] for i in parts])   # (m, T)
+        return _product(self.sens[parts], d)
 
     def _moves(self, gains: np.ndarray, levels: np.ndarray, parts: np.ndarray, step: int) -> np.ndarray:
         """Worst margins (n, T) after moving each of ``parts`` by ``step`` grades (the others unchanged)."""
@@ -193,7 +207,7 @@ class GradeSearch:
         for b0 in range(0, parts.size, per):
             blk = parts[b0:b0 + per]
             d = np.stack([self.logdev[i][levels[i] + step] - self.logdev[i][levels[i]] for i in blk])   # (n, T)
-            g = gains[None, :, :] + d[:, :, None] * self.sens[blk][:, None, :]
+            g = gains[:, None, :] + self.sens[blk].T[:, :, None] * d[None, :, :]                         # (K, n, T)
             out[b0:b0 + per] = self.worst(g)
         return out
 
@@ -236,13 +250,9 @@ class GradeSearch:
                 i = int(cand[k])
                 levels[i] += 1
                 moves += 1
-            if take == 1:
-                i = int(cand[order[0]])
-                gains = gains + (self.logdev[i][levels[i]] - self.logdev[i][levels[i] - 1])[:, None] * self.sens[i][None, :]
-                worst = after[order[0]]
-            else:
-                gains = self.gains(levels)
-                worst = self.worst(gains)
+            moved = cand[order[:take]]
+            gains = gains + self._shift(levels, moved, -1) * -1.0
+            worst = after[order[0]] if take == 1 else self.worst(gains)
         return levels, moves
 
     def relax(self, levels: np.ndarray, needed: int) -> tuple[np.ndarray, int]:
@@ -273,15 +283,18 @@ class GradeSearch:
             # largest saving first; among equal savings the one that keeps the most boards passing
             feasible = feasible[np.lexsort((-passing[feasible], -saving[feasible]))]
             take = feasible.size
+            shift = None
             while take > 1:
-                trial = levels.copy()
-                trial[cand[feasible[:take]]] -= 1
-                if self.passes(trial) >= needed:
+                shift = self._shift(levels, cand[feasible[:take]], -1)
+                if int((self.worst(gains + shift) >= 0).sum()) >= needed:
                     break
                 take //= 2
+                shift = None
+            if shift is None:
+                shift = self._shift(levels, cand[feasible[:take]], -1)
             levels[cand[feasible[:take]]] -= 1
             moves += take
-            gains = self.gains(levels)
+            gains = gains + shift
         return levels, moves
 
     def uniform(self, k: int) -> np.ndarray:
@@ -317,12 +330,12 @@ class GradeSearch:
         most often, and the parts with the largest share of the predicted gain's variance there
         (``(S_i sigma_i)^2 / sum``, sigma over these boards).
         """
-        gains = self.gains(levels)
-        margins = self.model.margins(gains) + self.offset_db          # (T, S)
+        gains = self.gains(levels)                                     # (K, T)
+        margins = self.model.margins(gains, axis=0) + self.offset_db    # (S, T)
         failing = margins < 0
-        s = int(np.argmax(failing.sum(axis=0))) if failing.any() else int(np.argmin(margins.min(axis=0)))
+        s = int(np.argmax(failing.sum(axis=1))) if failing.any() else int(np.argmin(margins.min(axis=1)))
         where = self.model.worst_frequency_hz(gains, s)
-        rows = failing[:, s] if failing[:, s].any() else np.ones(self.trials, dtype=bool)
+        rows = failing[s] if failing[s].any() else np.ones(self.trials, dtype=bool)
         vals, counts = np.unique(where[rows], return_counts=True)
         f = float(vals[np.argmax(counts)])
         col = int(np.flatnonzero(self.model.frequency_hz == f)[0])

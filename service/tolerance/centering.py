@@ -18,8 +18,9 @@ cascades them).  Boards are the first-order model's
 (:class:`service.tolerance.assignment.GradeSearch`), whose sensitivities
 barely move between neighbouring values.  The yield of a combination is
 counted at every *uniform* grade level (all parts at their k-th grade), and
-the combination with the most passing boards summed over the levels wins:
-the one that passes most boards whatever grades are bought.  The search is a
+the combination wins that passes the most boards at the tightest grades (up
+to the number needed), then the most summed over the levels: the one that
+can reach the target, and then passes most boards whatever grades are bought.  The search is a
 coordinate ascent over the stages (each stage's alternatives at once), a
 few passes.
 """
@@ -38,6 +39,8 @@ from service.tolerance.assignment import GradeSearch
 
 #: Coordinate-ascent passes over the stages.
 PASSES = 2
+#: Boards (the first of the search's) the combinations are counted on.
+BOARDS = 4000
 #: Weight of the nominal worst margin (dB) in the score, a tie-break between equally passing choices.
 NOMINAL_WEIGHT = 1e-3
 
@@ -51,7 +54,7 @@ class Centering:
     choice : tuple of int
         Index into each stage's ``alternatives``, or -1 where the stage keeps its parts.
     passes_before, passes_after : int
-        Boards passing, summed over the uniform grade levels, at the search's choice and at the centred one.
+        The score (:func:`center`) at the search's choice and at the centred one.
     nominal_margin_db : float
         Predicted nominal worst margin (dB) of the centred choice.
     """
@@ -94,7 +97,8 @@ def stage_changes(plans: list[StagePlan], frequency_hz: np.ndarray) -> list[np.n
     return out
 
 
-def center(plans: list[StagePlan], search: GradeSearch, *, passes: int = PASSES) -> Centering:
+def center(plans: list[StagePlan], search: GradeSearch, *, goal: int | None = None, passes: int = PASSES
+           ) -> Centering:
     """Pick each stage's alternative to maximize the boards passing over the uniform grade levels.
 
     Parameters
@@ -103,21 +107,33 @@ def center(plans: list[StagePlan], search: GradeSearch, *, passes: int = PASSES)
         The design (with the part search's ``alternatives``).
     search : GradeSearch
         Its first-order model on the boards, with the grades.
+    goal : int, optional
+        Boards (of the search's) that must pass: the tightest level's count up to it comes first, so that a
+        choice which makes the goal reachable wins over one that only makes cheaper grades pass more.
     """
     model = search.model
     deltas = stage_changes(plans, model.frequency_hz)
     levels = [search.uniform(k) for k in range(int(search.top.max(initial=0)) + 1)]
-    board_gains = [search.gains(lv) for lv in levels]                                   # each (T, K)
+    boards = slice(0, min(search.trials, BOARDS))
+    board_gains = [search.gains(lv)[:, boards] for lv in levels]                        # each (K, T)
     # row 0 of each stage: keep its present parts; row a + 1: alternative a
     deltas = [np.vstack([np.zeros((1, model.frequency_hz.size)), d]) for d in deltas]
     choice = [0] * len(deltas)
     current = np.zeros(model.frequency_hz.size)
 
+    n_boards = board_gains[0].shape[1]
+    cap = n_boards if goal is None else int(np.ceil(goal * n_boards / search.trials))
+    weight = float(len(board_gains) * n_boards + 1)
+
     def score(shift: np.ndarray) -> np.ndarray:
-        """Scores of shifts (N, K): passing boards over the levels plus the nominal tie-break."""
+        """Scores of shifts (N, K): the tightest level's passing boards up to the goal first, then the passing
+        boards summed over the levels, then the nominal tie-break."""
         total = np.zeros(shift.shape[0])
-        for g in board_gains:
-            total += (search.worst(g[None, :, :] + shift[:, None, :]) >= 0).sum(axis=1)
+        for j, g in enumerate(board_gains):
+            count = (search.worst(g[:, None, :] + shift.T[:, :, None]) >= 0).sum(axis=-1)
+            total += count
+            if j == len(board_gains) - 1:
+                total += weight * np.minimum(count, cap)
         nominal = model.margins(model.gain_db[None, :] + shift).min(axis=-1)
         return total + NOMINAL_WEIGHT * np.clip(nominal, -1e3, 1e3)
 

@@ -184,34 +184,40 @@ class LinearModel:
             object.__setattr__(self, "_segment_slices", cached)
         return cached
 
-    def margins(self, gains_db: np.ndarray) -> np.ndarray:
-        """Segment margins (dB), shape (..., T, S), of predicted gains (..., T, K), read like the verifier."""
+    def margins(self, gains_db: np.ndarray, axis: int = -1) -> np.ndarray:
+        """Segment margins (dB) of predicted gains, read like the verifier (loss from the largest passband gain;
+        passband ``limit - loss``, stopband ``loss - limit``).
+
+        ``gains_db`` has the critical frequencies on ``axis``: (..., T, K) gives (..., T, S); with ``axis=0``,
+        (K, ...) gives (S, ...) (faster for many boards: the reductions run over the leading axis).
+        """
         limits = self.criteria.limits
         slices = self._slices()
-        out = np.empty(gains_db.shape[:-1] + (len(limits),))
+        g = gains_db if axis == 0 else np.moveaxis(gains_db, axis, 0)
+        out = np.empty((len(limits),) + g.shape[1:])
         if self.criteria.reference_gain_db is not None:
-            ref = np.full(gains_db.shape[:-1], self.criteria.reference_gain_db)
+            ref = np.full(g.shape[1:], self.criteria.reference_gain_db)
         else:
             pb = [sl for sl, lim in zip(slices, limits) if lim.band is Band.PASSBAND and sl.stop > sl.start]
             ref = None
             for sl in (pb or [sl for sl in slices if sl.stop > sl.start]):
-                m = gains_db[..., sl].max(axis=-1)
+                m = g[sl].max(axis=0)
                 ref = m if ref is None else np.maximum(ref, m)
         for s, (lim, sl) in enumerate(zip(limits, slices)):
             if sl.stop <= sl.start:
-                out[..., s] = np.inf
+                out[s] = np.inf
             elif lim.band is Band.PASSBAND:
-                out[..., s] = lim.limit_db - ref + gains_db[..., sl].min(axis=-1)
+                out[s] = lim.limit_db - ref + g[sl].min(axis=0)
             else:
-                out[..., s] = ref - gains_db[..., sl].max(axis=-1) - lim.limit_db
-        return out
+                out[s] = ref - g[sl].max(axis=0) - lim.limit_db
+        return out if axis == 0 else np.moveaxis(out, 0, -1)
 
     def worst_frequency_hz(self, gains_db: np.ndarray, s: int) -> np.ndarray:
-        """Per board (T,), the critical frequency (Hz) where segment ``s`` is worst."""
-        cols = np.flatnonzero(self.segment == s)
-        g = gains_db[..., cols]
-        pick = g.argmin(axis=-1) if self.criteria.limits[s].band is Band.PASSBAND else g.argmax(axis=-1)
-        return self.frequency_hz[cols][pick]
+        """Per board, the critical frequency (Hz) where segment ``s`` is worst; ``gains_db`` (K, T)."""
+        sl = self._slices()[s]
+        g = gains_db[sl]
+        pick = g.argmin(axis=0) if self.criteria.limits[s].band is Band.PASSBAND else g.argmax(axis=0)
+        return self.frequency_hz[sl][pick]
 
 
 def critical_frequencies(nominal, criteria: Criteria, ended_hz: dict[int, float] | None = None

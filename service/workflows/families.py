@@ -34,6 +34,7 @@ from service.deadline import DeadlineExceeded
 from service.errors import LimitExceeded, RolloffError
 from service.realization import OpAmpSpec, PartsPolicy, auto_topology, design_filter
 from service.realization.opamp import gbw_rule_of_thumb
+from service.realization.parts import resolve_kind
 from service.response.comparison import Comparison
 from service.tolerance.sampling import resolve_distribution, resolve_temperature, varied_parts
 from service.tolerance.statistics import wilson_interval
@@ -61,9 +62,12 @@ def _auto_figures(row, opamp: OpAmpSpec | None, gbw_error: float) -> None:
         from service.circuit import OpAmpModel
 
         model = OpAmpModel(gbw_hz=float(opamp.gbw_hz), a0=opamp.a0, rout_ohm=float(opamp.rout_ohm or 0.0))
+    # the value spans of the default parts, as /v1/designs gives the automatic rule without parts
+    spans = tuple(float(a.values[-1] / a.values[0]) for a in (resolve_kind(PartsPolicy(), k)
+                                                             for k in ("resistor", "capacitor")))
     count, gbw = 0, 0.0
     for sec in row.approximation.sections:
-        topology, strategy = auto_topology(sec, opamp_model=model, gbw_error=gbw_error)
+        topology, strategy = auto_topology(sec, opamp_model=model, gbw_error=gbw_error, spans=spans)
         count += len(topology.opamp_roles(sec, strategy))
         gbw = max(gbw, gbw_rule_of_thumb(sec.gain, sec.q, sec.f0_hz, gbw_error))
     row.opamps, row.gbw_needed_hz, row.gbw_basis = count, gbw, RULE_BASIS

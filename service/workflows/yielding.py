@@ -592,7 +592,7 @@ def design_to_yield(request: GradedDesignRequest, settings: Settings) -> GradedO
                          _nominal(outcome))
         rounds.append(rnd)
         m = _model(outcome, request, t)
-        centring = center(outcome.plans, m.search)
+        centring = center(outcome.plans, m.search, goal=_goal(m, needed))
         if centring.changed:
             centred = _centred(outcome, centring.choice)
             better = (_nominal(centred) or -math.inf) > (_nominal(outcome) or -math.inf)
