@@ -56,14 +56,14 @@ from service.tolerance.centering import center
 from service.tolerance.confirmation import YieldCheck, verified_yield
 from service.tolerance.sampling import (DEFAULT_TOLERANCE, VariedPart, resolve_distribution, resolve_temperature,
                                         varied_parts)
-from service.tolerance.statistics import wilson_interval
 from service.tolerance.surrogate import deviates, linear_model
 from service.workflows import costs
 from service.workflows.approximating import approximate
-from service.workflows.designing import DesignOutcome, DesignRequest, design, stage_warnings
+from service.workflows.designing import DesignOutcome, DesignRequest, design
+from service.workflows.designing import _finish as finish_design   # the loop's own finish: board, verdict, warnings
 from service.workflows.errors import WorkflowError, YieldUnreachable
 from service.workflows.policy import passband_margin, stopband_margin
-from service.workflows.verdicts import design_criteria, verify_design
+from service.workflows.verdicts import design_criteria
 
 #: Designs the yield search may make (the first included), before the cost model's bound.
 MAX_ATTEMPTS = 4
@@ -378,8 +378,9 @@ def _stopbands(requirement) -> list[tuple[float, float]]:
     return [v] if isinstance(v, tuple) else []
 
 
-def _centred(outcome: DesignOutcome, choice: tuple[int, ...]) -> DesignOutcome:
-    """``outcome`` with each stage in its chosen alternative (-1: kept), re-analysed and verified."""
+def _centred(outcome: DesignOutcome, choice: tuple[int, ...], settings: Settings) -> DesignOutcome:
+    """``outcome`` with each stage in its chosen alternative (-1: kept), re-analysed, put on its board and
+    verified as the design loop finishes a design."""
     plans = [dataclasses.replace(p, components=list(p.alternatives[k])) if k >= 0 else p
              for p, k in zip(outcome.plans, choice)]
     d = outcome.design
@@ -387,11 +388,11 @@ def _centred(outcome: DesignOutcome, choice: tuple[int, ...]) -> DesignOutcome:
     realized = analyze(plans, response=d.response, family=d.family, order=d.order, options=d.options,
                        part_ranges=d.part_ranges, part_series=d.part_series, notes=d.notes,
                        stopbands_hz=_stopbands(req))
-    verdict = verify_design(realized.plans, req)
-    warnings = list(realized.warnings) + stage_warnings(realized) + list(verdict.warnings)
     document = dataclasses.replace(outcome.document, stages=tuple(dataclasses.replace(
         se, components=tuple(p.components)) for se, p in zip(outcome.document.stages, plans)))
-    return DesignOutcome(realized, document, verdict, warnings, list(outcome.steps))
+    centred = finish_design(realized, document, settings)
+    centred.steps = list(outcome.steps)
+    return centred
 
 
 @dataclass
@@ -594,7 +595,7 @@ def design_to_yield(request: GradedDesignRequest, settings: Settings) -> GradedO
         m = _model(outcome, request, t)
         centring = center(outcome.plans, m.search, goal=_goal(m, needed))
         if centring.changed:
-            centred = _centred(outcome, centring.choice)
+            centred = _centred(outcome, centring.choice, settings)
             better = (_nominal(centred) or -math.inf) > (_nominal(outcome) or -math.inf)
             if centred.verdict.meets or (not outcome.verdict.meets and better):
                 m = _model(centred, request, t)
