@@ -47,7 +47,7 @@ from service.config import Settings
 from service.realization import Design, DesignWarning
 from service.realization.analysis import StagePlan
 from service.realization.cascade import analysis_grid
-from service.realization.supply import CAUTION_SPAN_V, SupplyReport, filter_circuit, supply_report
+from service.realization.supply import CAUTION_SPAN_V, Supply, SupplyReport, filter_circuit, supply_report
 from service.response.errors import InvalidLevel
 from service.response.headroom import HeadroomReport, analyze_headroom
 from service.response.noise import (INTEGRATION_POINTS_PER_DECADE, MAX_TEMPERATURE_K, NoiseReport, analyze_noise,
@@ -120,20 +120,20 @@ class SupplySettings:
 
     @property
     def single_rail(self) -> bool:
-        return self.v_neg == 0
+        return self.rails().single_rail
 
     @property
     def span_v(self) -> float:
         """``v_pos - v_neg``, V."""
-        return self.v_pos - self.v_neg
+        return self.rails().span_v
 
     def to_json(self) -> dict:
         return {"v_pos": self.v_pos, "v_neg": self.v_neg, "mid_rail": self.mid_rail.value,
                 "input_coupling": self.input_coupling.value}
 
-    def rails(self) -> dict:
-        """``{"v_pos", "v_neg"}`` as the realization reads them."""
-        return {"v_pos": self.v_pos, "v_neg": self.v_neg}
+    def rails(self) -> Supply:
+        """The rails as the realization owns them (:class:`service.realization.supply.Supply`)."""
+        return Supply(self.v_pos, self.v_neg)
 
     @classmethod
     def from_json(cls, data: Any, path: str = "supply", error: type = WorkflowError) -> "SupplySettings":
