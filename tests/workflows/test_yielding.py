@@ -140,3 +140,42 @@ def test_a_target_out_of_reach_names_the_edge_and_the_parts(client):
     for ref in refs:
         assert ref in p["detail"]
     assert p["rounds"] and p["estimated_best_yield"] < 0.99
+
+
+def test_opamp_spread_and_per_kind_distributions_travel_to_the_check(client):
+    body = copy.deepcopy(REQUEST)
+    body["opamp"] = {"gbw_hz": "2MHz"}
+    body["yield"].update(gbw_spread=0.3, distribution={"resistor": "uniform", "capacitor": "gaussian"})
+    r = client.post(DESIGNS, json=body)
+    assert r.status_code == 200, r.get_json()
+    doc = r.get_json()
+    assert doc["yield"]["reached"] and doc["yield"]["monte_carlo"]["gbw_spread"] == 0.3
+    # source: /v1/tolerance with the reply's own Monte Carlo options draws the same boards
+    same = client.post(TOLERANCE, json=_tolerance_body(doc)).get_json()["yield"]
+    assert same["passed"] == doc["yield"]["passed"]
+
+
+def test_a_stock_grade_brings_its_dielectric_and_its_drift(client):
+    # Each value in a cheap X7R 10 % and a dearer C0G 2 %: over 0-50 degC an X7R part drifts by up to
+    # 1500 ppm/degC x 25 degC (the tempco of service.tolerance.sampling, common practice), so the target needs C0G
+    stock = []
+    for v in ("4.7n", "10n", "22n", "47n"):
+        stock.append({"kind": "capacitor", "value": v, "tolerance": 0.1, "cost": 1, "dielectric": "X7R",
+                      "part_id": f"X7R-{v}"})
+        stock.append({"kind": "capacitor", "value": v, "tolerance": 0.02, "cost": 2, "dielectric": "C0G",
+                      "part_id": f"C0G-{v}"})
+    body = dict(REQUEST, parts={"resistors": {"series": "E96", "grades": R_GRADES}, "stock": stock})
+    r = client.post(DESIGNS, json=body)
+    assert r.status_code == 200, r.get_json()
+    doc = r.get_json()
+    caps = [c for c in _parts(doc) if c["kind"] == "capacitor"]
+    assert all(c["dielectric"] == "C0G" and c["part_id"].startswith("C0G-") for c in caps)
+    same = client.post(TOLERANCE, json=_tolerance_body(doc)).get_json()["yield"]
+    assert same["passed"] == doc["yield"]["passed"]
+    # the same boards with the X7R entries instead fail far more often
+    x7r = copy.deepcopy(doc)
+    for c in _parts(x7r):
+        if c["kind"] == "capacitor":
+            c.update(dielectric="X7R", tolerance=0.1, part_id=c["part_id"].replace("C0G", "X7R"))
+    worse = client.post(TOLERANCE, json=_tolerance_body(x7r)).get_json()["yield"]
+    assert worse["fraction"] < 0.5 * doc["yield"]["fraction"]
