@@ -30,6 +30,7 @@ from service.workflows.document import DesignDocument
 from service.workflows.electrical import (HeadroomRequest, NoiseRequest, ResponseLevels, check_response_levels,
                                           response_levels)
 from service.workflows.errors import WorkflowError
+from service.workflows.figures import with_figure
 from service.workflows.masks import Mask, mask_criteria
 from service.workflows.requirement import Requirement
 from service.workflows.verdicts import circuit_roots, finite_opamps, section_roots, slowest_gbw_hz
@@ -192,6 +193,8 @@ def respond(request: ResponseRequest, settings: Settings, *, path: str = "design
     result = analyze(display, grid, time=request.time, verdict=verdict, response_type=response,
                      passband_hz=request.passband_hz, attenuation_at_hz=request.attenuation_at_hz,
                      max_points=settings.max_frequency_points, max_time_points=settings.max_time_points)
+    if request.figure:
+        result = with_figure(result, request.system, display)
     levels = ResponseLevels()
     if asks_levels:
         levels = response_levels(plans, request.system.settings, result.frequency_hz, request.noise,

@@ -428,14 +428,14 @@ def document_cases(doc: dict | None) -> list[Case]:
     return out
 
 
-def pending_cases(doc: dict | None) -> list[Case]:
-    """Inputs answered 500 whose fix is owned elsewhere (see :data:`PENDING`)."""
+def former_server_error_cases(doc: dict | None) -> list[Case]:
+    """Inputs that once answered 500: each must be a 4xx naming the field, or (``success_ok``) a design."""
     ds, ev, tl = "/v1/designs", "/v1/designs/evaluate", "/v1/tolerance"
     out = [
-        Case("pending: 3rd-order Bessel lowpass on sallen_key", "POST", ds,
+        Case("was 500: 3rd-order Bessel lowpass on sallen_key", "POST", ds,
              {"response": "lowpass", "family": "bessel", "order": 3, "cutoff_hz": 1000, "topology": "sallen_key"},
              field="topology", route=ds, success_ok=True),
-        Case("pending: 5th-order Butterworth highpass on sallen_key", "POST", ds,
+        Case("was 500: 5th-order Butterworth highpass on sallen_key", "POST", ds,
              {"response": "highpass", "family": "butterworth", "order": 5, "cutoff_hz": 1000,
               "topology": "sallen_key"}, field="topology", route=ds, success_ok=True),
     ]
@@ -446,14 +446,14 @@ def pending_cases(doc: dict | None) -> list[Case]:
         d["stages"][0]["section"].update({"order": 1, "q": None})
 
     out += [
-        Case("pending: evaluate settings.ranges 5", "POST", ev, _set(doc, "settings", {"ranges": 5}),
+        Case("was 500: evaluate settings.ranges 5", "POST", ev, _set(doc, "settings", {"ranges": 5}),
              field="settings.ranges", route=ev),
-        Case("pending: evaluate first-order section on sallen_key", "POST", ev, _edit(doc, first_order),
+        Case("was 500: evaluate first-order section on sallen_key", "POST", ev, _edit(doc, first_order),
              field="stages[0]", route=ev),
-        Case("pending: tolerance with a partial requirement", "POST", tl,
+        Case("was 500: tolerance with a partial requirement", "POST", tl,
              {"design": _set(doc, "requirement", {"response": "lowpass", "passband_hz": 1000}), "trials": 50},
              field="design.requirement", route=tl),
-        Case("pending: tolerance with a non-numeric requirement", "POST", tl,
+        Case("was 500: tolerance with a non-numeric requirement", "POST", tl,
              {"design": _set(doc, "requirement", {"response": "lowpass", "passband_hz": "abc", "stopband_hz": 3000,
                                                   "passband_ripple_db": 0.5, "stopband_attenuation_db": 40}),
               "trials": 50}, field="design.requirement", route=tl),
@@ -462,18 +462,11 @@ def pending_cases(doc: dict | None) -> list[Case]:
 
 
 #: Cases whose fix is owned elsewhere -> what must change. Run and reported, not gating, while
-#: ENFORCE_PENDING is False: switch it on once those fixes are merged (then they gate like the rest).
-PENDING: dict[str, str] = {
-    "pending: 3rd-order Bessel lowpass on sallen_key": "realization: realize the first-order section another way or 422",
-    "pending: 5th-order Butterworth highpass on sallen_key": "realization: as above (q compared with None today)",
-    "pending: evaluate settings.ranges 5": "design document reading: settings.ranges must be an object (422)",
-    "pending: evaluate first-order section on sallen_key": "design document reading: a first-order section on a "
-                                                           "second-order topology is a 422 naming the stage",
-    "pending: tolerance with a partial requirement": "tolerance: a requirement missing fields is a 422 (today it is "
-                                                     "ignored or a 500)",
-    "pending: tolerance with a non-numeric requirement": "tolerance: requirement values are checked (422)",
-}
-ENFORCE_PENDING = False
+#: ENFORCE_PENDING is False. Empty now: the six inputs once listed here (odd orders on sallen_key,
+#: settings.ranges 5, a first-order section on a second-order topology, a partial or non-numeric
+#: requirement on /v1/tolerance) are fixed and gate with the rest (:func:`former_server_error_cases`).
+PENDING: dict[str, str] = {}
+ENFORCE_PENDING = True
 
 
 @dataclass
@@ -679,7 +672,7 @@ def cases(design_document: dict | None) -> list[Case]:
     out += wrong_unit_cases(design_document)
     out += query_cases()
     out += document_cases(design_document)
-    out += pending_cases(design_document)
+    out += former_server_error_cases(design_document)
     return out
 
 
