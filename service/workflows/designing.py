@@ -290,8 +290,11 @@ def outcome_of(realized: Design, requirement: Requirement | None = None) -> Desi
     return _finish(realized, document)
 
 
-def design(request: DesignRequest, settings: Settings) -> DesignOutcome:
+def design(request: DesignRequest, settings: Settings, *, most_attempts: int | None = None) -> DesignOutcome:
     """Design a filter for ``request`` and verify it, through the design loop (see the module notes).
+
+    ``most_attempts`` bounds the designs the loop makes (default :data:`MAX_ATTEMPTS`, within the work budget);
+    a caller that budgets the loop's work itself (the yield search) passes what it counted.
 
     Raises
     ------
@@ -309,7 +312,8 @@ def design(request: DesignRequest, settings: Settings) -> DesignOutcome:
     pb = passband_margin(req.passband_ripple_db, request.passband_margin_db)
     sb = stopband_margin(request.stopband_margin_db)
     current = _attempt(request, settings, pb, sb, None)
-    attempts = costs.design_attempts(len(current.plans), settings, MAX_ATTEMPTS)
+    attempts = costs.design_attempts(len(current.plans), settings,
+                                     MAX_ATTEMPTS if most_attempts is None else max(1, most_attempts))
     steps = [_step("design", f"order {current.order} for the requirement tightened by {pb:.4g} dB "
                              f"(passband) and {sb:.4g} dB (stopband)", current)]
     current = _reselected(current, steps)

@@ -5,8 +5,9 @@ buy with a relative cost (or stock entries of one value in several
 tolerances, each with a cost), and a yield target with the Monte Carlo options
 of ``/v1/tolerance``.  :func:`design_to_yield` then:
 
-1. designs the filter (:func:`service.workflows.designing.design`, its own
-   loop included);
+1. designs the filter (:func:`service.workflows.designing.design`, one
+   design of its loop with the reselect step, as the cost model counts it:
+   the search widens reserves and adds orders itself, step 6);
 2. builds the first-order yield model of the design on its own boards
    (:mod:`service.tolerance.surrogate`, a seed derived from the request's, so
    that the boards the assignment is chosen on are not those it is judged
@@ -67,6 +68,9 @@ from service.workflows.verdicts import design_criteria
 
 #: Designs the yield search may make (the first included), before the cost model's bound.
 MAX_ATTEMPTS = 4
+#: Designs of the design loop in one round of the search (its reselect step included): what the cost model
+#: counts per round; the search widens the reserves itself.
+DESIGNS_PER_ROUND = 1
 #: Monte Carlo confirmations of one search, before the cost model's bound.
 MAX_CONFIRMATIONS = 3
 #: Boards of the first-order model: at least, at most (twice the confirmation's, within these).
@@ -582,7 +586,9 @@ def design_to_yield(request: GradedDesignRequest, settings: Settings) -> GradedO
     design_request = request.design
     attempt = 0
     while attempt < budget.attempts:
-        outcome = design(design_request, settings)
+        # one design of the loop (with its reselect step), as the budget counts it: the search widens the
+        # reserves or adds an order itself (step 6)
+        outcome = design(design_request, settings, most_attempts=DESIGNS_PER_ROUND)
         if attempt == 0:   # the budget again with the design's own shape (never below one design and one check)
             budget = costs.yield_budget(len(outcome.plans), mc.trials, model_trials, settings,
                                         most_attempts=MAX_ATTEMPTS, most_confirmations=MAX_CONFIRMATIONS,

@@ -1,4 +1,8 @@
-"""Bad input of a design to a yield target, and of priced grades: a 422 naming the field, never a 500."""
+"""Bad input of a design to a yield target, and of priced grades: a 422 naming the field, never a 500.
+
+Every problem is checked as an RFC 9457 problem document (``tests.conftest.problem``: type, title, status,
+detail, instance).  # source: IETF RFC 9457, Problem Details for HTTP APIs, section 3.1
+"""
 
 from __future__ import annotations
 
@@ -108,3 +112,23 @@ def test_compare_quick_yield_needs_parts(client):
     body["parts"] = {"resistors": {"tolerance": 0.01, "grades": [{"tolerance": 0.01, "cost": 1}]}}
     p = problem(client.post("/v1/approximations/compare", json=body), 422)
     assert "parts.resistors.tolerance" in p["errors"]
+
+
+def test_refused_before_any_design_or_confirmation(monkeypatch):
+    # the cost model answers first: no design is made and no board is drawn for a request it refuses
+    from service.workflows import yielding
+
+    def forbidden(*args, **kwargs):
+        raise AssertionError("work started before the cost check")
+
+    monkeypatch.setattr(yielding, "design", forbidden)
+    monkeypatch.setattr(yielding, "verified_yield", forbidden)
+    for config in ({"max_trials": 500}, {"max_work": 4_000_000}):
+        c = create_app(dict(TESTING=True, **config)).test_client()
+        p = problem(c.post(URL, json=BASE), 422)
+        assert "yield.trials" in p["errors"]
+    c = create_app({"TESTING": True}).test_client()
+    p = problem(c.post(URL, json=_with("yield.target", 0.999)), 422)
+    assert "yield.trials" in p["errors"]
+    p = problem(c.post(URL, json=_with("yield.distribution", {"resistor": "cauchy"})), 422)
+    assert any(k.startswith("yield.distribution") for k in p["errors"]), p["errors"]
