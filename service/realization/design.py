@@ -2,7 +2,9 @@
 
 :func:`design_filter` orders the sections, picks a topology and strategy for
 each, distributes the gain, chooses part values from what the caller can buy
-(:mod:`service.realization.selection`), and hands the stages to
+(:mod:`service.realization.selection`; for a requirement design, the stages'
+ranked choices together for the whole response,
+:mod:`service.realization.compensation`), and hands the stages to
 :func:`service.realization.analysis.analyze` for the achieved figures, op-amp
 needs, BOM, netlist, summary and warnings.
 """
@@ -18,6 +20,7 @@ from service.approximation.types import Section
 from service.circuit import OpAmpModel
 from service.realization.analysis import StagePlan, analyze
 from service.realization.cascade import distribute_gains, gain_freedom, order_sections
+from service.realization.compensation import choose_jointly
 from service.realization.errors import (
     RealizationError, UnknownStrategy, UnknownTopology, UnsupportedSection, WrongLength,
 )
@@ -154,7 +157,7 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
                   exact: bool = False, impedance_ohm: float | None = None, section_order: str = "ascending_q",
                   stage_peak_margin_db: float = DEFAULT_STAGE_PEAK_MARGIN_DB,
                   output_amplitude_v: float = DEFAULT_OUTPUT_AMPLITUDE_V, gbw_error: float = DEFAULT_GBW_ERROR,
-                  stopbands_hz=()) -> Design:
+                  stopbands_hz=(), reserves_db: tuple[float, float] | None = None) -> Design:
     """Realize an approximation as a cascade of op-amp stages with parts that can be bought.
 
     Parameters
@@ -190,6 +193,11 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
         Relative f0/Q error the GBW figures are for (0.01 = 1 %).
     stopbands_hz : sequence of (float, float)
         The requirement's stopbands (Hz), for the mains caution.
+    reserves_db : (float, float) or None
+        For an approximation designed for a tightened requirement: the passband and stopband reserves
+        (dB) taken off the requirement as asked.  The stages' part choices of an approximation with band
+        edges are made together for the whole response against the requirement as asked
+        (:func:`service.realization.compensation.choose_jointly`); None counts no reserve.
 
     Returns
     -------
@@ -298,6 +306,8 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
         plans.append(StagePlan(section=stage_sec, topology=t, strategy=s, components=comps, opamps=ops,
                                predistortion=sel.predistortion, alternatives=alternatives))
 
+    if not exact:
+        plans, _ = choose_jointly(plans, approximation, reserves_db=reserves_db or (0.0, 0.0))
     return analyze(plans, response=_enum_value(getattr(approximation, "response", None)),
                    family=_enum_value(getattr(approximation, "family", None)),
                    order=int(getattr(approximation, "order", sum(s.order for s in sections))),
