@@ -153,11 +153,14 @@ class Selection:
     alternatives: dict | None = None
 
 
-def _window(allowed: Allowed, center: float, width: int) -> np.ndarray:
-    """Up to ``width`` allowed values nearest ``center`` on a log scale, ascending."""
+def _window(allowed: Allowed, center: float, width: int, spread: bool = False) -> np.ndarray:
+    """Up to ``width`` allowed values nearest ``center`` on a log scale, ascending; with ``spread``, ``width``
+    values evenly spaced (by index, so by ratio in a series) over the whole allowed list instead."""
     v = allowed.values
     if v.size <= width:
         return v
+    if spread:
+        return v[np.unique(np.round(np.linspace(0, v.size - 1, width)).astype(int))]
     i = int(np.argmin(np.abs(np.log(v / center))))
     lo = max(0, min(i - width // 2, v.size - width))
     return v[lo:lo + width]
@@ -194,14 +197,14 @@ def _snap(allowed: Allowed, ideal: np.ndarray, exact: bool) -> tuple[np.ndarray,
     return np.where(finite, snapped, np.nan), in_range
 
 
-def _candidates(topology, section, strategy, allowed, free, fixed, specs, r_ref, exact, width):
+def _candidates(topology, section, strategy, allowed, free, fixed, specs, r_ref, exact, width, spread=False):
     """Every candidate of one resistor level: chosen values, ideal values, in-range mask, r_ref."""
     if free:
         w0 = 2 * np.pi * section.f0_hz
         axes = []
         for p in free:
             center = 1.0 / (w0 * r_ref) if p.kind == "capacitor" else r_ref
-            axes.append(_window(allowed[p.kind], center, width))
+            axes.append(_window(allowed[p.kind], center, width, spread))
         grids = np.meshgrid(*axes, indexing="ij")
         free_values = {p.role: g.ravel() for p, g in zip(free, grids)}
         n = free_values[free[0].role].size
@@ -252,20 +255,23 @@ def _cap_stage(topology, section, strategy, allowed, specs, free, fixed, r_pref,
     def finite_any(c):
         return np.logical_and.reduce([np.isfinite(c[1][p.role]) for p in specs]).any()
 
+    spread = False
     if not finite_any(cand) and free:
         # Strategies with a ratio limit (a unity-gain Sallen-Key needs C1/C2 >= 4 Q^2)
-        # may need capacitors far apart: widen the window to every allowed value.
+        # may need capacitors far apart: widen the window to the whole allowed list, spread evenly over it
+        # (a dense series such as E96 has more values than fit; the dependent parts adapt to the choice).
         wide = max(2, int(MAX_COMBINATIONS_WIDE ** (1.0 / len(free))))
         if wide > width:
-            width = wide
-            cand = _candidates(topology, section, strategy, allowed, free, fixed, specs, r_pref, exact, width)
+            width, spread = wide, True
+            cand = _candidates(topology, section, strategy, allowed, free, fixed, specs, r_pref, exact, width,
+                               spread)
     if not in_all(cand[2]).any() and "resistor" in allowed:
         ra = allowed["resistor"]
         tried = [cand]
         for rung in LEVEL_LADDER:
             levels = [r_pref * m for m in rung if ra.low <= r_pref * m <= ra.high]
-            tried += [_candidates(topology, section, strategy, allowed, free, fixed, specs, lv, exact, width)
-                      for lv in levels]
+            tried += [_candidates(topology, section, strategy, allowed, free, fixed, specs, lv, exact, width,
+                                  spread) for lv in levels]
             if any(in_all(c[2]).any() for c in tried[-len(levels):]) if levels else False:
                 break
         cand = _concat(tried)
@@ -622,9 +628,15 @@ def select_values(topology, section: Section, strategy: str, allowed: dict[str, 
 
     chosen, ideal, in_range, levels = _cap_stage(topology, design_section, strategy, allowed, specs, free, fixed,
                                                  r_pref, exact)
+    finite = np.logical_and.reduce([np.isfinite(chosen[p.role]) for p in specs])
+    if pre is not None and not finite.any():
+        # the predistorted section asks for what the allowed parts cannot give: the section as it is
+        design_section, pre = section, None
+        chosen, ideal, in_range, levels = _cap_stage(topology, design_section, strategy, allowed, specs, free, fixed,
+                                                     r_pref, exact)
+        finite = np.logical_and.reduce([np.isfinite(chosen[p.role]) for p in specs])
     n = levels.size
     all_in = in_all(in_range)
-    finite = np.logical_and.reduce([np.isfinite(chosen[p.role]) for p in specs])
     if not finite.any():
         raise InfeasibleStage(
             f"the {topology.name} topology ({strategy}) cannot realize the {section.kind.value} section "

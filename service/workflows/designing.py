@@ -23,10 +23,13 @@ from service.deadline import check as check_deadline
 from service.errors import RolloffError
 from service.realization import Design, DesignWarning, OpAmpSpec, PartsPolicy, design_filter
 from service.realization.analysis import StagePlan, analyze
+from service.realization.conditioning import UNIT_HINT
+from service.realization.errors import InvalidDocument
 from service.realization.results import AnalysisOptions
 from service.workflows import costs, limits
 from service.workflows.approximating import approximate
 from service.workflows.document import DesignDocument, DesignSettings, PartRange, StageEntry
+from service.workflows.electrical import BoardReport, SupplySettings, board_fields, on_board
 from service.workflows.errors import UnrepresentableDesign
 from service.response.verification import Band, verify
 from service.workflows.policy import passband_margin, stopband_margin, widened, with_gain
@@ -61,6 +64,8 @@ class DesignRequest:
     stopband_margin_db : float or None
     stock_entries : int
         How many stock entries the parts name (for the limit).
+    supply : SupplySettings or None
+        The board's rails (kept in the document's settings).
     """
 
     requirement: Requirement
@@ -77,6 +82,7 @@ class DesignRequest:
     passband_margin_db: float | None = None
     stopband_margin_db: float | None = None
     stock_entries: int = 0
+    supply: SupplySettings | None = None
 
 
 @dataclass
@@ -88,6 +94,7 @@ class DesignOutcome:
     verdict: DesignVerdict | None
     warnings: list[DesignWarning] = field(default_factory=list)
     steps: list[DesignStep] = field(default_factory=list)
+    board: BoardReport | None = None
 
     @property
     def plans(self) -> list[StagePlan]:
@@ -130,6 +137,7 @@ class DesignOutcome:
             "warnings": [w.as_dict() for w in self.warnings],
             "overall_gain": d.overall_gain,
             "output_peak_gain_db": _clean(d.output_peak_gain_db),
+            **_clean(board_fields(self.board)),
         }
 
 
@@ -255,13 +263,14 @@ class DesignStep:
                 "status": self.status, "worst_margin_db": self.worst_margin_db}
 
 
-def _finish(design: Design, document: DesignDocument) -> DesignOutcome:
+def _finish(design: Design, document: DesignDocument, settings: Settings | None = None) -> DesignOutcome:
+    design, board = on_board(design, document.settings, settings)
     verdict = None
     req = document.requirement
     if req is not None and req.by_specification:
         verdict = verify_design(design.plans, req)
     warnings = list(design.warnings) + stage_warnings(design) + (list(verdict.warnings) if verdict else [])
-    return DesignOutcome(design, document, verdict, warnings)
+    return DesignOutcome(design, document, verdict, warnings, board=board)
 
 
 def outcome_of(realized: Design, requirement: Requirement | None = None) -> DesignOutcome:
@@ -293,7 +302,7 @@ def design(request: DesignRequest, settings: Settings) -> DesignOutcome:
     costs.check_limit("max_stock_entries", request.stock_entries, settings, field="parts.stock",
                       what="stock entries")
     if not req.by_specification:
-        outcome = _outcome(_attempt(request, settings, None, None, None))
+        outcome = _outcome(_attempt(request, settings, None, None, None), settings)
         outcome.steps = [DesignStep("design", "designed by order (no requirement to verify)", outcome.design.order,
                                     0.0, 0.0, None, None)]
         return outcome
@@ -341,7 +350,7 @@ def design(request: DesignRequest, settings: Settings) -> DesignOutcome:
         current = _reselected(current, steps)
         if _rank(current) > _rank(best):
             best = current
-    outcome = _outcome(best)
+    outcome = _outcome(best, settings)
     outcome.steps = steps
     if not outcome.verdict.meets and len(steps) > 1:
         outcome.warnings.append(DesignWarning(
@@ -403,13 +412,19 @@ def _attempt(request: DesignRequest, settings: Settings, pb: float | None, sb: f
     n_sections = len(approximation.sections)
     costs.check_design(costs.CircuitShape((4,) * n_sections, loaded=bool(request.opamp and request.opamp.rout_ohm)),
                        settings)
-    realized = design_filter(
-        approximation, topology=list(request.topology) if isinstance(request.topology, tuple) else request.topology,
-        strategy=list(request.strategy) if isinstance(request.strategy, tuple) else request.strategy,
-        parts=request.parts, opamp=request.opamp, exact=request.exact, impedance_ohm=request.impedance_ohm,
-        section_order=req.section_order.value, stage_peak_margin_db=request.stage_peak_margin_db,
-        output_amplitude_v=request.output_amplitude_v, gbw_error=request.gbw_error, stopbands_hz=_stopbands(req),
-        reserves_db=None if pb is None else (pb, sb))
+    try:
+        realized = design_filter(
+            approximation,
+            topology=list(request.topology) if isinstance(request.topology, tuple) else request.topology,
+            strategy=list(request.strategy) if isinstance(request.strategy, tuple) else request.strategy,
+            parts=request.parts, opamp=request.opamp, exact=request.exact, impedance_ohm=request.impedance_ohm,
+            section_order=req.section_order.value, stage_peak_margin_db=request.stage_peak_margin_db,
+            output_amplitude_v=request.output_amplitude_v, gbw_error=request.gbw_error, stopbands_hz=_stopbands(req),
+            reserves_db=None if pb is None else (pb, sb))
+    except InvalidDocument as exc:   # the parts allowed put a stage decades from its section
+        raise UnrepresentableDesign(
+            str(exc).replace(UNIT_HINT, "the allowed parts (series, range or stock) cannot give the values this "
+                                        "stage needs"), field="parts") from exc
     check_representable(realized)
     document = DesignDocument(
         response=req.response, family=req.family, order=approximation.order,
@@ -420,12 +435,12 @@ def _attempt(request: DesignRequest, settings: Settings, pb: float | None, sb: f
             exact=request.exact, impedance_ohm=request.impedance_ohm,
             ranges={k: PartRange(*v) for k, v in realized.part_ranges.items()},
             series=dict(realized.part_series), passband_margin_db=pb, stopband_margin_db=sb,
-            gain=request.gain))
+            gain=request.gain, supply=request.supply))
     verdict = _plain_verdict(req, realized.plans) if req.by_specification else None
     return _Candidate(realized, list(realized.plans), document, verdict, pb, sb)
 
 
-def _outcome(candidate: _Candidate) -> DesignOutcome:
+def _outcome(candidate: _Candidate, settings: Settings) -> DesignOutcome:
     """The reply of a candidate: its stages analysed again when they were re-selected, verified with causes."""
     realized = candidate.realized
     if any(a is not b for a, b in zip(candidate.plans, realized.plans)):
@@ -433,7 +448,7 @@ def _outcome(candidate: _Candidate) -> DesignOutcome:
         realized = analyze(candidate.plans, response=d.response, family=d.family, order=d.order, options=d.options,
                            part_ranges=d.part_ranges, part_series=d.part_series, notes=d.notes,
                            stopbands_hz=_stopbands(candidate.document.requirement))
-    return _finish(realized, candidate.document)
+    return _finish(realized, candidate.document, settings)
 
 
 def _entries(plans: list[StagePlan]) -> tuple[StageEntry, ...]:
@@ -506,7 +521,7 @@ def evaluate(document: DesignDocument, settings: Settings, *, path: str = "") ->
         options=AnalysisOptions(s.gbw_error, s.output_amplitude_v, s.stage_peak_margin_db),
         part_ranges={k: (r.low, r.high) for k, r in s.ranges.items()}, part_series=dict(s.series),
         stopbands_hz=_stopbands(document.requirement))
-    return _finish(realized, document)
+    return _finish(realized, document, settings)
 
 
 def evaluate_json(data, settings: Settings, *, path: str = "") -> DesignOutcome:

@@ -18,6 +18,7 @@ from service.response import FrequencyGrid, resolve_frequencies
 from service.tolerance import ToleranceResult, run_tolerance
 from service.workflows import costs
 from service.workflows.document import DesignDocument
+from service.workflows.figures import tolerance_figure_grid, with_tolerance_figure
 from service.workflows.masks import Mask, mask_criteria
 from service.workflows.responding import DEFAULT_POINTS, default_grid
 from service.workflows.verdicts import design_criteria, finite_opamps, slowest_gbw_hz
@@ -62,16 +63,19 @@ def tolerance(request: ToleranceRequest, settings: Settings, *, path: str = "des
     if grid is None:
         roots = [2 * np.pi * p.section.f0_hz for p in plans]
         grid = default_grid(np.array(roots), DEFAULT_POINTS)
+        if request.figure:
+            grid = tolerance_figure_grid(grid, criteria, doc.requirement, settings.max_frequency_points)
     points = len(resolve_frequencies(grid, settings.max_frequency_points))
     sens = len(request.sensitivity_frequencies_hz) or (2 * len(criteria.limits) if criteria else 0)
     shape = costs.CircuitShape(tuple(len(p.opamps) for p in plans),
                                loaded=any((u.rout_ohm or 0.0) > 0 for p in plans for u in p.opamps))
     costs.check_tolerance(shape, request.trials, points, sens, settings, verified=criteria is not None,
                           figure=request.figure)
-    return run_tolerance(
+    result = run_tolerance(
         plans, draw_order=doc.draw_order(), response=None if doc.response is None else doc.response.value,
         trials=request.trials, seed=request.seed, distribution=request.distribution,
         temperature=request.temperature, tempco_ppm_per_c=request.tempco_ppm_per_c, gbw_spread=request.gbw_spread,
         frequencies_hz=grid, criteria=criteria, sensitivity_frequencies_hz=request.sensitivity_frequencies_hz,
         include_trials=request.include_trials, memory_limit_bytes=settings.memory_limit_bytes,
         max_trials=settings.max_trials, max_frequency_points=settings.max_frequency_points)
+    return with_tolerance_figure(result, doc, plans, criteria) if request.figure else result

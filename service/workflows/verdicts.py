@@ -181,7 +181,7 @@ def _unstable_stages(verdict: Verdict, plans: list[StagePlan], stable_when_ideal
         gbw = plan.opamps[0].gbw_hz if plan.opamps else None
         why = (f" with the op-amp's {format_quantity(gbw, 'Hz')} gain-bandwidth" if gbw and stable_when_ideal else "")
         yield group + 1, (f"stage {group + 1} ({plan.topology.name}, f0 {_hz(plan.section.f0_hz)}, Q "
-                          f"{plan.section.q if plan.section.q is not None else '-'}): poles at {f} lie in the right "
+                          f"{'-' if plan.section.q is None else format(plan.section.q, '.4g')}): poles at {f} lie in the right "
                           f"half-plane{why}: the stage oscillates; no response figure of this circuit meets anything")
 
 

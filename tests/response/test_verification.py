@@ -111,8 +111,17 @@ def _limits(btype, edges, rng):
             LossLimit(pb, hi * s, hi * s * 10, 1.0, open_end=True)]
 
 
+def _padded(rs: RootSet, extra: int = 3) -> RootSet:
+    """The same transfer function with ``extra`` absent roots (NaN slots) among its zeros and poles, as a
+    cascade of stages with different root counts has them."""
+    nan = np.full((rs.trials, extra), np.nan + 0j)
+    return RootSet(np.hstack([nan[:, :1], rs.zeros, nan]), np.hstack([rs.poles, nan]), rs.log_gain,
+                   np.concatenate([rs.pole_group, np.zeros(extra, dtype=int)]))
+
+
+@pytest.mark.parametrize("padded", [False, True], ids=["plain", "nan-padded"])
 @pytest.mark.parametrize("seed", range(40))
-def test_worst_margins_match_a_dense_independent_check(seed):
+def test_worst_margins_match_a_dense_independent_check(seed, padded):
     # source: scipy.signal (reference library) -- freqs_zpk sampled densely and polished
     rng = np.random.default_rng(seed)
     z, p, k, btype, edges = _random_case(rng)
@@ -126,7 +135,8 @@ def test_worst_margins_match_a_dense_independent_check(seed):
                                  lim.limit_db - d if lim.band is Band.PASSBAND else lim.limit_db + d,
                                  open_end=lim.open_end))
     want = _reference_margins(z, p, k, shifted)
-    v = verify(RootSet.from_zpk(z, p, k), Criteria(tuple(shifted))).verdict()
+    roots = RootSet.from_zpk(z, p, k)
+    v = verify(_padded(roots) if padded else roots, Criteria(tuple(shifted))).verdict()
     got = [s.margin_db for s in v.segments]
     assert v.proved
     np.testing.assert_allclose(got, want, atol=2e-6)
