@@ -13,8 +13,8 @@ from tests.realization.requirement_cases import FAMILIES, RESPONSES, generate, r
 
 SEED, COUNT = 12, 48
 #: A floor against regressions: 48 of 48 meet with the stages' parts chosen together for the whole response
-#: and the design loop (verify, re-select, widen the margin, add an order); 41 of 48 before the joint choice's
-#: restarts and raised stages, 20 of 48 with part selection alone, 16 of 48 before the joint part search.
+#: and the design loop (verify, re-select, widen the margin, add an order); 41 of 48 with each stage's parts
+#: chosen on its own and the design loop, 20 of 48 with part selection alone, 16 of 48 before the joint part search.
 FLOOR = 0.95
 
 
