@@ -423,7 +423,8 @@ def _attempt(request: DesignRequest, settings: Settings, pb: float | None, sb: f
             strategy=list(request.strategy) if isinstance(request.strategy, tuple) else request.strategy,
             parts=request.parts, opamp=request.opamp, exact=request.exact, impedance_ohm=request.impedance_ohm,
             section_order=req.section_order.value, stage_peak_margin_db=request.stage_peak_margin_db,
-            output_amplitude_v=request.output_amplitude_v, gbw_error=request.gbw_error, stopbands_hz=_stopbands(req))
+            output_amplitude_v=request.output_amplitude_v, gbw_error=request.gbw_error, stopbands_hz=_stopbands(req),
+            reserves_db=None if pb is None else (pb, sb))
     except InvalidDocument as exc:   # the parts allowed put a stage decades from its section
         raise UnrepresentableDesign(
             str(exc).replace(UNIT_HINT, "the allowed parts (series, range or stock) cannot give the values this "
