@@ -612,11 +612,18 @@ def design_to_yield(request: GradedDesignRequest, settings: Settings) -> GradedO
         rnd.tightest = s_.passes(s_.top) / s_.trials
         if best is None or rnd.tightest > best.search.passes(best.search.top) / best.search.trials:
             best = m
+        confirmed: set[bytes] = set()
+        raise_by = 0
         while confirmations < budget.confirmations:
-            a = _assign(m, needed)
-            if a is None:
+            a = _assign(m, needed + raise_by)
+            while a is not None and a.levels.tobytes() in confirmed and needed + raise_by < mc.trials:
+                # the calibrated model proposes grades already confirmed short: ask it for more boards
+                raise_by += max(1, needed - check.passed)
+                a = _assign(m, min(needed + raise_by, mc.trials))
+            if a is None or a.levels.tobytes() in confirmed:
                 rnd.outcome = "the grades cannot reach the target on the model's boards"
                 break
+            confirmed.add(a.levels.tobytes())
             rnd.cost = a.cost
             result = graded(m.outcome, _chosen(m.grades, a.levels), _stock_kinds(request))
             check = verified_yield(result.plans, draw_order=result.document.draw_order(), criteria=m.criteria,
