@@ -210,6 +210,7 @@ def handle_rolloff_error(error: RolloffError) -> Response:
     extra: dict[str, Any] = {}
     if isinstance(error, LimitExceeded):
         extra = {"limit": error.limit, "limit_value": error.value, "setting": error.setting}
+    extra.update(getattr(error, "details", None) or {})
     return problem_response(status, title=title, detail=error.message, slug=slug, errors=errors, extra=extra)
 
 

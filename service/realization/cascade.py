@@ -6,7 +6,11 @@ sections (R. Schaumann and M. E. Van Valkenburg, "Design of Analog Filters",
 2001, sec. 6.2, from memory).  The gain of each stage is then chosen so that
 no intermediate output peaks more than a margin above the filter's own output
 level, the last stage with a free gain taking up whatever the earlier ones
-leave (ibid., "dynamic range scaling").  Peaks are found on a logarithmic
+leave (ibid., "dynamic range scaling"); where fixed-gain stages ahead fall
+short of the filter's gain, a free stage makes up as much of the shortfall as
+keeps its output at the filter's output level, so that the last one is not
+left a large gain (a high-Q stage asked for a gain of 200 cannot be built from
+a short stock list, and needs a faster op-amp).  Peaks are found on a logarithmic
 frequency grid and refined by zooming twice on the largest sample.
 
 ``section_order="max_dynamic_range"`` chooses the order of the largest
@@ -196,8 +200,18 @@ def _magnitudes(shapes: np.ndarray, sections, freedoms, total_gain: float, margi
         elif mode != "fixed":
             g = abs(sections[i].gain)
             pk = float(np.max(cum * shapes[i]))
-            if i < n - 1 and g * pk > limit and pk > 0:
-                g = level / pk
+            if i < n - 1 and pk > 0:
+                # The gain that leaves every later stage at its own (or imposed) gain: when the stages so far
+                # fall short of the filter's gain (fixed attenuating stages), this stage makes up what it can
+                # while its output stays at the filter's output level, instead of leaving it all to the last.
+                later = [abs(freedoms[j][1]) if freedoms[j][0] == "fixed" else abs(sections[j].gain)
+                         for j in range(i + 1, n)]
+                rest = float(np.prod(mags[:i])) * float(np.prod(later))
+                need = abs(total_gain) / rest if rest > 0 else g
+                if need > g:
+                    g = min(need, max(g, level / pk))
+                if g * pk > limit:
+                    g = level / pk
             mags[i] = g
         cum = cum * shapes[i] * mags[i]
     return mags, level, absorber

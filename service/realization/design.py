@@ -2,7 +2,9 @@
 
 :func:`design_filter` orders the sections, picks a topology and strategy for
 each, distributes the gain, chooses part values from what the caller can buy
-(:mod:`service.realization.selection`), and hands the stages to
+(:mod:`service.realization.selection`; for a requirement design, the stages'
+ranked choices together for the whole response,
+:mod:`service.realization.compensation`), and hands the stages to
 :func:`service.realization.analysis.analyze` for the achieved figures, op-amp
 needs, BOM, netlist, summary and warnings.
 """
@@ -18,6 +20,7 @@ from service.approximation.types import Section
 from service.circuit import OpAmpModel
 from service.realization.analysis import StagePlan, analyze
 from service.realization.cascade import distribute_gains, gain_freedom, order_sections
+from service.realization.compensation import apply_choice, best_choice, proxy_grid, stage_curves
 from service.realization.errors import (
     RealizationError, UnknownStrategy, UnknownTopology, UnsupportedSection, WrongLength,
 )
@@ -26,6 +29,7 @@ from service.realization.parts import PartsPolicy, resolve_kind
 from service.realization.results import AnalysisOptions, Component, Design, DesignWarning, OpAmpUse
 from service.realization.selection import select_values
 from service.realization.topologies import TOPOLOGIES, auto_topology
+from service.realization.topologies.auto import auto_upgrade
 
 DEFAULT_STAGE_PEAK_MARGIN_DB = 1.0
 DEFAULT_OUTPUT_AMPLITUDE_V = 1.0
@@ -135,18 +139,127 @@ def _fit_strategy(topology, section: Section, strategy: str, gain: float, *, for
 def _components(specs, allowed, refs: dict, values: dict, ideal: dict) -> list[Component]:
     """The stage's parts with ``values`` (role -> ohm or F): tolerance, dielectric and part id from the
     allowed value each is (none for a value not among them), and whether it lies in the allowed range."""
-    comps = []
+    return _component_sets(specs, allowed, refs, {r: np.array([float(v)]) for r, v in values.items()}, ideal)[0]
+
+
+def _component_sets(specs, allowed, refs: dict, values: dict, ideal: dict) -> list[list[Component]]:
+    """:func:`_components` of K sets of values at once (role -> ndarray (K,)), one list per set."""
+    columns = []
     for p in specs:
         a = allowed[p.kind]
-        v = float(values[p.role])
-        j = int(a.index_of(np.array([v]))[0])
-        listed = bool(np.isclose(a.values[j], v, rtol=1e-9, atol=0.0))
-        comps.append(Component(
-            ref=refs[p.role], role=p.role, kind=p.kind, value=v, ideal=ideal[p.role], tolerance=float(a.tolerance[j]),
-            dielectric=a.dielectric[j] if p.kind == "capacitor" else None,
-            part_id=a.part_id[j] if listed else None,
-            in_range=bool(a.low * (1 - 1e-9) <= v <= a.high * (1 + 1e-9))))
-    return comps
+        v = np.asarray(values[p.role], dtype=float)
+        j = a.index_of(v)
+        listed = np.abs(a.values[j] - v) <= 1e-9 * np.abs(v)
+        in_range = (a.low * (1 - 1e-9) <= v) & (v <= a.high * (1 + 1e-9))
+        columns.append([Component(
+            ref=refs[p.role], role=p.role, kind=p.kind, value=float(v[i]), ideal=ideal[p.role],
+            tolerance=float(a.tolerance[j[i]]), dielectric=a.dielectric[j[i]] if p.kind == "capacitor" else None,
+            part_id=a.part_id[j[i]] if listed[i] else None, in_range=bool(in_range[i])) for i in range(v.size)])
+    return [list(row) for row in zip(*columns)]
+
+
+def _stage_plan(stage_sec: Section, t, s: str, sel, allowed, spec, counters: dict | None) -> StagePlan:
+    """One stage's plan: refs numbered on from ``counters`` (updated), or the roles themselves when None."""
+    prefix = {"resistor": "R", "capacitor": "C"}
+    refs = {}
+    for p in t.parts(stage_sec, s):
+        if counters is None:
+            refs[p.role] = p.role
+        else:
+            counters[p.kind] += 1
+            refs[p.role] = f"{prefix[p.kind]}{counters[p.kind]}"
+    comps = _components(t.parts(stage_sec, s), allowed, refs, sel.values, sel.ideal)
+    alternatives = ()
+    if sel.alternatives:
+        alternatives = tuple(_component_sets(t.parts(stage_sec, s), allowed, refs, sel.alternatives, sel.ideal))
+    ops = []
+    for role in t.opamp_roles(stage_sec, s):
+        if counters is None:
+            ref = role
+        else:
+            counters["opamp"] += 1
+            ref = f"U{counters['opamp']}"
+        if spec is None:
+            ops.append(OpAmpUse(ref=ref, role=role))
+        else:
+            ops.append(OpAmpUse(ref=ref, role=role, gbw_hz=spec.gbw_hz, slew_v_per_us=spec.slew_v_per_us,
+                                a0_db=spec.a0_db, output_swing_v=spec.output_swing_v, supply_v=spec.supply_v,
+                                rout_ohm=spec.rout_ohm, part_id=spec.part_id,
+                                **{k: getattr(spec, k) for k in FIGURES}))
+    return StagePlan(section=stage_sec, topology=t, strategy=s, components=comps, opamps=ops,
+                     predistortion=sel.predistortion, alternatives=alternatives)
+
+
+def _plans(stage_secs, picks, selections, allowed, spec) -> list[StagePlan]:
+    """The stages' plans, refs unique across the design (R1..., C1..., U1... in cascade order)."""
+    counters = {"resistor": 0, "capacitor": 0, "opamp": 0}
+    return [_stage_plan(sec, t, s, sel, allowed, spec, counters)
+            for sec, (t, s), sel in zip(stage_secs, picks, selections)]
+
+
+#: Stages (furthest off first) the design may move to a topology with more op-amps when the joint choice
+#: of the parts leaves the requirement short (:func:`_choose_and_raise`).
+RAISE_TRIES = 3
+#: Least gain (dB) of the joint choice's worst margin for which a stage takes the extra op-amps.
+RAISE_MIN_GAIN_DB = 0.01
+
+
+def _choose_and_raise(plans, stage_secs, picks, selections, raisable, approximation, reserves_db, *, allowed,
+                      spec, model, gbw_error, spans, impedance_ohm) -> tuple[list[StagePlan], list[DesignWarning]]:
+    """The joint choice of the stages' parts (:mod:`service.realization.compensation`); when it leaves the
+    requirement short, the automatically chosen stages furthest off (by their own part search's score)
+    try, one at a time, the automatic rule's topology with more op-amps (:func:`auto_upgrade`), kept when
+    the joint choice's worst margin gains at least :data:`RAISE_MIN_GAIN_DB`, until it meets.
+
+    Fewest op-amps first is the rule of ``auto``; a coarse series can leave a single-op-amp stage of high Q
+    too far off for the whole filter, where a two-integrator loop's parts can be chosen closer (its Q and
+    f0 are set by separate resistors).  Returns the stages and a note per raised stage.
+    """
+    grid = proxy_grid(plans, approximation, reserves_db) if any(len(p.alternatives) > 1 for p in plans) else None
+    if grid is None:
+        return plans, []
+    omega, passband, limit = grid
+    curves = [stage_curves(p, omega) for p in plans]
+    joint = best_choice(curves, passband, limit)
+    if joint is None:
+        return plans, []
+    notes = []
+    if joint.margin_after_db < 0.0:
+        picks, selections = list(picks), list(selections)
+        ranked = sorted((k for k in range(len(plans)) if raisable[k]), key=lambda k: -selections[k].score)
+        for k in ranked[:RAISE_TRIES]:
+            sec, (t, s) = stage_secs[k], picks[k]
+            n_ops = len(t.opamp_roles(sec, s))
+            up = auto_upgrade(sec, n_ops, opamp_model=model, gbw_error=gbw_error, spans=spans)
+            if up is None:
+                continue
+            t2, s2 = up
+            try:
+                forced = t2.forced_gain(sec, s2)
+                if s2 not in t2.strategies(sec) or (forced is not None and not np.isclose(forced, sec.gain)):
+                    continue
+                if any(p.kind not in allowed for p in t2.parts(sec, s2)):
+                    continue
+                sel2 = select_values(t2, sec, s2, allowed, impedance_ohm=impedance_ohm, field=f"stages[{k}]",
+                                     opamp_model=model)
+            except RealizationError:
+                continue
+            trial = curves[:k] + [stage_curves(_stage_plan(sec, t2, s2, sel2, allowed, spec, None), omega)] \
+                + curves[k + 1:]
+            j2 = best_choice(trial, passband, limit)
+            if j2 is None or j2.margin_after_db < joint.margin_after_db + RAISE_MIN_GAIN_DB:
+                continue
+            notes.append(DesignWarning(
+                "stage_topology_raised",
+                f"stage {k + 1}: {t2.name} ({len(t2.opamp_roles(sec, s2))} op-amps) instead of {t.name} "
+                f"({n_ops}): with the allowed parts the whole filter came {-joint.margin_after_db:.3g} dB short of "
+                f"the requirement, {max(0.0, -j2.margin_after_db):.3g} dB with it", stage=k + 1))
+            picks[k], selections[k], curves, joint = (t2, s2), sel2, trial, j2
+            if joint.margin_after_db >= 0.0:
+                break
+        if notes:
+            plans = _plans(stage_secs, picks, selections, allowed, spec)
+    return apply_choice(plans, joint.choice), notes
 
 
 def design_filter(approximation, *, topology: str | list[str] = "auto", strategy: str | list[str] | None = None,
@@ -154,7 +267,7 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
                   exact: bool = False, impedance_ohm: float | None = None, section_order: str = "ascending_q",
                   stage_peak_margin_db: float = DEFAULT_STAGE_PEAK_MARGIN_DB,
                   output_amplitude_v: float = DEFAULT_OUTPUT_AMPLITUDE_V, gbw_error: float = DEFAULT_GBW_ERROR,
-                  stopbands_hz=()) -> Design:
+                  stopbands_hz=(), reserves_db: tuple[float, float] | None = None) -> Design:
     """Realize an approximation as a cascade of op-amp stages with parts that can be bought.
 
     Parameters
@@ -190,6 +303,11 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
         Relative f0/Q error the GBW figures are for (0.01 = 1 %).
     stopbands_hz : sequence of (float, float)
         The requirement's stopbands (Hz), for the mains caution.
+    reserves_db : (float, float) or None
+        For an approximation designed for a tightened requirement: the passband and stopband reserves
+        (dB) taken off the requirement as asked.  The stages' part choices of an approximation with band
+        edges are made together for the whole response against the requirement as asked
+        (:func:`service.realization.compensation.choose_jointly`); None counts no reserve.
 
     Returns
     -------
@@ -266,38 +384,18 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
     kinds = {p.kind for sec, (t, s) in zip(stage_secs, picks) for p in t.parts(sec, s)}
     allowed = {k: resolve_kind(policy, k) for k in sorted(kinds)}
 
-    plans: list[StagePlan] = []
-    counters = {"resistor": 0, "capacitor": 0, "opamp": 0}
-    prefix = {"resistor": "R", "capacitor": "C", "opamp": "U"}
-    for k, (stage_sec, (t, s)) in enumerate(zip(stage_secs, picks)):
-        sel = select_values(t, stage_sec, s, allowed, exact=exact, impedance_ohm=impedance_ohm,
-                            field=f"stages[{k}]", opamp_model=model)
-        refs = {}
-        for p in t.parts(stage_sec, s):
-            counters[p.kind] += 1
-            refs[p.role] = f"{prefix[p.kind]}{counters[p.kind]}"
-        comps = _components(t.parts(stage_sec, s), allowed, refs, sel.values, sel.ideal)
-        alternatives = ()
-        if sel.alternatives:
-            k_alt = len(next(iter(sel.alternatives.values())))
-            alternatives = tuple(
-                _components(t.parts(stage_sec, s), allowed, refs,
-                            {role: float(v[i]) for role, v in sel.alternatives.items()}, sel.ideal)
-                for i in range(k_alt))
-        ops = []
-        for role in t.opamp_roles(stage_sec, s):
-            counters["opamp"] += 1
-            ref = f"U{counters['opamp']}"
-            if spec is None:
-                ops.append(OpAmpUse(ref=ref, role=role))
-            else:
-                ops.append(OpAmpUse(ref=ref, role=role, gbw_hz=spec.gbw_hz, slew_v_per_us=spec.slew_v_per_us,
-                                    a0_db=spec.a0_db, output_swing_v=spec.output_swing_v, supply_v=spec.supply_v,
-                                    rout_ohm=spec.rout_ohm, part_id=spec.part_id,
-                                    **{k: getattr(spec, k) for k in FIGURES}))
-        plans.append(StagePlan(section=stage_sec, topology=t, strategy=s, components=comps, opamps=ops,
-                               predistortion=sel.predistortion, alternatives=alternatives))
-
+    selections = [select_values(t, stage_sec, s, allowed, exact=exact, impedance_ohm=impedance_ohm,
+                                field=f"stages[{k}]", opamp_model=model)
+                  for k, (stage_sec, (t, s)) in enumerate(zip(stage_secs, picks))]
+    plans = _plans(stage_secs, picks, selections, allowed, spec)
+    if not exact:
+        # auto stages whose strategy the caller left open may take more op-amps when that is what meets
+        raisable = [(topo_in[i] in ("auto", None)) and strat_in[i] is None for i in order]
+        plans, raised = _choose_and_raise(
+            plans, stage_secs, picks, selections, raisable, approximation, reserves_db or (0.0, 0.0),
+            allowed=allowed, spec=spec, model=model, gbw_error=gbw_error, spans=spans,
+            impedance_ohm=impedance_ohm)
+        notes += raised
     return analyze(plans, response=_enum_value(getattr(approximation, "response", None)),
                    family=_enum_value(getattr(approximation, "family", None)),
                    order=int(getattr(approximation, "order", sum(s.order for s in sections))),

@@ -52,6 +52,8 @@ class Component:
         Stock identifier, None for series values.
     in_range : bool
         Whether ``value`` lies in the caller's allowed range.
+    cost : float or None
+        Relative cost of the part's tolerance grade, when the caller priced its grades.
     """
 
     ref: str
@@ -63,6 +65,7 @@ class Component:
     dielectric: str | None
     part_id: str | None
     in_range: bool = True
+    cost: float | None = None
 
     def as_dict(self) -> dict:
         d = {
@@ -72,6 +75,8 @@ class Component:
         if self.kind == "capacitor":
             d["dielectric"] = self.dielectric
         d["part_id"] = self.part_id
+        if self.cost is not None:
+            d["cost"] = self.cost
         return d
 
 

@@ -29,8 +29,9 @@ nearest allowed value on its own leaves errors that add up (two resistors
 
 The score of a combination is the worst of ``Q_w |df0/f0|``, ``|dQ/Q|``,
 ``W_z |dfz/fz|`` and the notch depth the zero damping ``zeta_z`` leaves at fz
-(relative to the DC gain, :func:`_depth_weight`), plus
-a small gain-error term and an impedance term ``w * mean|log10(R / R_ref)|``
+(relative to the DC gain, :func:`_depth_weight`), plus :data:`BEAM_TIE_WEIGHT`
+times their mean (of two combinations equally far off in their worst figure,
+the one nearer in the others wins), a small gain-error term and an impedance term ``w * mean|log10(R / R_ref)|``
 that steers resistors toward the preferred level.  The weights follow the
 response: near f0 a biquad's log-magnitude moves about ``Q`` times as much
 as f0 does (``Q_w = max(1, Q)``), and a zero sets the stopband around it
@@ -69,6 +70,8 @@ DEFAULT_R_REF_OHM = 10e3
 CAP_CANDIDATES_KEPT = 16
 #: Partial choices kept at each step of the beam search, per capacitor choice.
 BEAM_WIDTH = 32
+#: Partial choices kept besides those, per capacitor choice, by a one-step look-ahead (:func:`_beam`).
+BEAM_LOOKAHEAD_WIDTH = 32
 #: Allowed values tried for each part around its continuous best value.
 BEAM_OPTIONS = 4
 #: Decades beyond the allowed range a dependent part may go when no candidate keeps every part in range.
@@ -82,10 +85,21 @@ BEAM_REACH = 1.5
 #: Weight of the largest move (log value) in the beam's ranking: among equally good choices,
 #: the one nearer the ideal values (where the linearization is accurate) goes first.
 BEAM_MOVE_WEIGHT = 0.01
+#: Weight of the mean error beside the worst in the beam's ranking (and of the figures' summed errors
+#: beside their largest in the score): among choices equally far off in their worst figure, the one
+#: nearer in the others goes first.
+BEAM_TIE_WEIGHT = 0.02
 #: Combinations scored exactly with the op-amp macromodel.
 MODEL_CANDIDATES = 24
-#: Candidates a selection hands back besides its choice (:attr:`Selection.alternatives`).
-ALTERNATIVES_KEPT = 12
+#: Candidates a selection hands back, its choice included (:attr:`Selection.alternatives`): the first
+#: :data:`ALTERNATIVES_BY_RANK` by rank, the others spread over the directions of the figures' errors
+#: among those within :data:`ALTERNATIVES_POOL_FACTOR` times the chosen error plus
+#: :data:`ALTERNATIVES_POOL_SLACK` (the best :data:`ALTERNATIVES_POOL_SIZE` of them).
+ALTERNATIVES_KEPT = 24
+ALTERNATIVES_BY_RANK = 8
+ALTERNATIVES_POOL_FACTOR = 2.0
+ALTERNATIVES_POOL_SLACK = 3e-3
+ALTERNATIVES_POOL_SIZE = 256
 #: Relative step (in log value) of the finite-difference sensitivities of the screen.
 FD_STEP = 1e-5
 #: Bounds of the weight of a zero-frequency error: a stopband's attenuation between two zeros moves
@@ -293,13 +307,14 @@ def _figure_error(section: Section, gain: float, figs: dict, n: int) -> np.ndarr
     def col(key):
         return np.broadcast_to(np.asarray(figs[key], dtype=float), (n,))
 
-    err = qw * np.abs(col("f0_hz") / section.f0_hz - 1)
+    terms = [qw * np.abs(col("f0_hz") / section.f0_hz - 1)]
     if section.order == 2 and section.q:
-        err = np.maximum(err, np.abs(col("q") / section.q - 1))
+        terms.append(np.abs(col("q") / section.q - 1))
     if figs.get("fz_hz") is not None and section.fz_hz:
-        err = np.maximum(err, wz * np.abs(col("fz_hz") / section.fz_hz - 1))
+        terms.append(wz * np.abs(col("fz_hz") / section.fz_hz - 1))
     if figs.get("zero_damping") is not None:
-        err = np.maximum(err, _depth_weight(section) * np.abs(col("zero_damping")))
+        terms.append(_depth_weight(section) * np.abs(col("zero_damping")))
+    err = np.max(terms, axis=0) + BEAM_TIE_WEIGHT * np.mean(terms, axis=0)
     if gain:
         err = err + GAIN_WEIGHT * np.abs(col("gain") / gain - 1)
     return err
@@ -411,7 +426,13 @@ def _beam(jac: np.ndarray, e0: np.ndarray, x0: np.ndarray, logv: list, order: np
     (minimum-norm) correction of their log values gives the value the next part should take;
     its :data:`BEAM_OPTIONS` allowed values around that value are tried, and the
     :data:`BEAM_WIDTH` partial choices whose error the remaining parts cannot absorb is smallest
-    are kept.  All capacitor choices and beam entries are processed at once (batched matrices).
+    are kept, with :data:`BEAM_LOOKAHEAD_WIDTH` more ranked by a one-step look-ahead (the next part
+    at its nearest allowed value, then what the parts after it cannot absorb): with a coarse series
+    the last parts of a group that sets one figure (four resistors setting f0) round far off unless
+    the earlier ones were chosen for it, which the plain residual, zero until then, cannot see -- the
+    look-ahead is one step of a rollout (D. P. Bertsekas, J. N. Tsitsiklis, C. Wu, "Rollout
+    algorithms for combinatorial optimization", Journal of Heuristics 3 (1997) 245-262, from
+    memory).  All capacitor choices and beam entries are processed at once (batched matrices).
 
     Parameters
     ----------
@@ -452,16 +473,23 @@ def _beam(jac: np.ndarray, e0: np.ndarray, x0: np.ndarray, logv: list, order: np
     def inv(t):
         return np.linalg.inv(gram[..., t] + ridge) if t < m else np.zeros((k, f, f))
 
-    inv_next = inv(0)
+    invs = [inv(t) for t in range(m + 1)]
     reach = BEAM_REACH * max_step
     shifts = np.arange(-(BEAM_OPTIONS // 2) + 1, BEAM_OPTIONS // 2 + 1)
     rows = np.arange(k)[:, None]
     moved_so_far = np.zeros((k, 1))
+
+    def unabsorbed(e, t):
+        """What the parts from the t-th (in fixing order) on cannot absorb of errors ``e`` (K, N, F)."""
+        if t >= m:
+            return e
+        comp = eye - gram[..., t] @ invs[t]
+        return e @ comp.transpose(0, 2, 1)
+
     for t, p in enumerate(order):
         last = t == m - 1
-        inv_both, inv_next = inv_next, inv(t + 1)
         jp = jac[:, :, p]                                                # (K, F)
-        row = (jp[:, None, :] @ inv_both)[:, 0, :]                      # (K, F): p's row of J^T (J J^T)^-1
+        row = (jp[:, None, :] @ invs[t])[:, 0, :]                       # (K, F): p's row of J^T (J J^T)^-1
         xp = x0[:, p][:, None]
         target = xp - np.einsum("kbf,kf->kb", err, row)                  # continuous value of part p, (K, B)
         target = np.minimum(np.maximum(target, xp - reach), xp + reach)
@@ -474,14 +502,43 @@ def _beam(jac: np.ndarray, e0: np.ndarray, x0: np.ndarray, logv: list, order: np
         bsz, o = d.shape[1], d.shape[2]
         flat_err = new_err.reshape(k, bsz * o, f)
         if not last:
-            comp = eye - gram[..., t + 1] @ inv_next                     # (K, F, F): what the rest cannot absorb
-            resid = flat_err @ comp.transpose(0, 2, 1)
+            # one step of look-ahead: the next part at the allowed value nearest its least-squares value,
+            # and what the parts after it cannot absorb then.  Without it every partial choice the later
+            # parts can absorb ties at zero, and the beam keeps those nearest the ideal values, whose
+            # rounding of the last parts is left to chance.
+            q = order[t + 1]
+            jq = jac[:, :, q]
+            row_q = (jq[:, None, :] @ invs[t + 1])[:, 0, :]
+            xq = x0[:, q][:, None]
+            tq = xq - np.einsum("knf,kf->kn", flat_err, row_q)
+            tq = np.minimum(np.maximum(tq, xq - reach), xq + reach)
+            lq = logv[q]
+            hi_q = np.minimum(np.searchsorted(lq, tq), lq.size - 1)
+            lo_q = np.maximum(hi_q - 1, 0)
+            near = np.where(np.abs(lq[lo_q] - tq) <= np.abs(lq[hi_q] - tq), lo_q, hi_q)
+            ahead = flat_err + (lq[near] - xq)[..., None] * jq[:, None, :]
+            resid = np.abs(unabsorbed(flat_err, t + 1))
+            look = np.maximum(resid, np.abs(unabsorbed(ahead, t + 2)))
         else:
-            resid = flat_err
+            resid = look = np.abs(flat_err)
         moved = np.maximum(moved_so_far[:, :, None], np.abs(d)).reshape(k, bsz * o)
-        score = np.max(np.abs(resid), axis=-1) + BEAM_MOVE_WEIGHT * moved   # (K, B*O)
+
+        def ranked(r):
+            return np.argsort(np.max(r, axis=-1) + BEAM_TIE_WEIGHT * np.mean(r, axis=-1)
+                              + BEAM_MOVE_WEIGHT * moved, axis=1, kind="stable")
         width = min(BEAM_WIDTH, bsz * o)
-        pick = np.argsort(score, axis=1, kind="stable")[:, :width]      # (K, W)
+        if last:
+            pick = ranked(resid)[:, :width]                              # (K, W)
+        else:
+            # the beam by what the later parts cannot absorb, and as many again (those not already in)
+            # by the look-ahead
+            plain, ahead_order = ranked(resid), ranked(look)
+            half = plain[:, :width]
+            width = min(width + BEAM_LOOKAHEAD_WIDTH, bsz * o)
+            taken = np.zeros((k, bsz * o), dtype=bool)
+            taken[rows, half] = True
+            fresh = np.argsort(taken[rows, ahead_order], axis=1, kind="stable")[:, :width - half.shape[1]]
+            pick = np.concatenate([half, ahead_order[rows, fresh]], axis=1)
         pb, po = pick // o, pick % o
         beam_ix = beam_ix[rows, pb]
         beam_ix[:, :, p] = opts[rows, pb, po]
@@ -674,17 +731,43 @@ def select_values(topology, section: Section, strategy: str, allowed: dict[str, 
     result = _selection(topology, design_section, strategy, allowed, specs, chosen_values,
                         {p.role: float(ideal[p.role][src]) for p in specs}, err_best, float(lv[best]),
                         predicted_model, pre, total)
-    result.alternatives = _alternatives(values, specs, err, ranked, best)
+    with np.errstate(all="ignore"):
+        vec = _error_vector(section, gain_t, figs, total)
+    result.alternatives = _alternatives(values, specs, err, vec, ranked, best)
     return result
 
 
-def _alternatives(values: dict, specs, err: np.ndarray, ranked: np.ndarray, best: int) -> dict:
-    """Role -> (K,) values of the chosen candidate and the next distinct ones in ``ranked`` order."""
-    order = [best] + [int(i) for i in ranked if int(i) != best and np.isfinite(err[int(i)])]
-    rows = np.array(order, dtype=int)
+def _alternatives(values: dict, specs, err: np.ndarray, vec: np.ndarray, ranked: np.ndarray, best: int) -> dict:
+    """Role -> (K,) values of the chosen candidate and others, distinct: the next best ones and a spread.
+
+    The first :data:`ALTERNATIVES_BY_RANK` follow ``ranked`` (then every other candidate by ``err``);
+    the rest, up to :data:`ALTERNATIVES_KEPT`, are taken among the candidates whose error is at most
+    :data:`ALTERNATIVES_POOL_FACTOR` times the chosen one's plus :data:`ALTERNATIVES_POOL_SLACK`, each the
+    one farthest (largest of the weighted log-errors ``vec`` (N, F), max norm) from those already taken
+    -- a greedy farthest-point choice (T. F. Gonzalez, "Clustering to minimize the maximum intercluster
+    distance", Theoretical Computer Science 38 (1985) 293-306, from memory): errors in every direction,
+    so that a caller judging the whole filter finds choices that offset other stages' errors.
+    """
+    listed = [best] + [int(i) for i in ranked if int(i) != best]
+    seen = set(listed)
+    order = listed + [int(i) for i in np.argsort(err, kind="stable") if int(i) not in seen]
+    rows = np.array([i for i in order if np.isfinite(err[i])], dtype=int)
     table = np.stack([np.asarray(values[p.role], dtype=float)[rows] for p in specs], axis=1)
     _, first = np.unique(table, axis=0, return_index=True)
-    keep = rows[np.sort(first)][:ALTERNATIVES_KEPT]
+    rows = rows[np.sort(first)]                                  # distinct, in order of preference
+    taken = list(rows[:ALTERNATIVES_BY_RANK])
+    limit = ALTERNATIVES_POOL_FACTOR * err[best] + ALTERNATIVES_POOL_SLACK
+    pool = rows[ALTERNATIVES_BY_RANK:]
+    pool = pool[err[pool] <= limit][:ALTERNATIVES_POOL_SIZE]
+    if pool.size and len(taken) < ALTERNATIVES_KEPT:
+        v = np.where(np.isfinite(vec), vec, 0.0)
+        dist = np.min(np.max(np.abs(v[pool][:, None, :] - v[np.array(taken)][None, :, :]), axis=2), axis=1)
+        while len(taken) < ALTERNATIVES_KEPT and np.any(dist >= 0):
+            j = int(np.argmax(dist))
+            taken.append(int(pool[j]))
+            dist = np.minimum(dist, np.max(np.abs(v[pool] - v[pool[j]]), axis=1))
+            dist[j] = -1.0
+    keep = np.array(taken, dtype=int)
     return {p.role: np.asarray(values[p.role], dtype=float)[keep] for p in specs}
 
 

@@ -16,6 +16,9 @@ the message, with the value and the limit it breaks:
 - ``gain_mismatch``, ``inverting``: the cascade's gain differs from the one
   asked for, or the output is inverted.
 - ``mains_connection``: a notch or bandstop aimed at mains frequencies.
+- ``stage_topology_raised``: ``topology: "auto"`` gave a stage more op-amps than its
+  fewest, because the part choices with the fewest left the whole filter short of
+  its requirement (:func:`service.realization.design.design_filter`).
 """
 
 from __future__ import annotations

@@ -10,7 +10,11 @@ within ``max_order`` is listed with ``meets=False`` and the reason.
 
 The recommended family is the lowest-order one that meets the mask and also
 the stated overshoot and group-delay-variation limits (ties: lower highest Q,
-then the order of :class:`service.approximation.types.Family`).
+then the order of :class:`service.approximation.types.Family`).  When the
+realization figures of each family are known (op-amps with the automatic
+topologies, the GBW they need, and with parts a predicted yield; the
+workflow adds them), :func:`recommend` weighs them instead (rule
+:data:`WEIGHED_RULE`).
 """
 
 from __future__ import annotations
@@ -56,6 +60,11 @@ class FamilyComparison:
     within_limits: bool | None = None
     reason: str | None = None
     approximation: Any = field(default=None, repr=False, compare=False)
+    opamps: int | None = None
+    gbw_needed_hz: float | None = None
+    gbw_basis: str | None = None
+    predicted_yield: dict | None = None
+    design_meets: bool | None = None
 
     def as_dict(self) -> dict:
         from service.response.result import _clean
@@ -66,6 +75,8 @@ class FamilyComparison:
             "group_delay_variation_s": self.group_delay_variation_s, "overshoot_pct": self.overshoot_pct,
             "settling_time_1pct_s": self.settling_time_1pct_s, "margin_db": self.margin_db,
             "meets": self.meets, "within_limits": self.within_limits, "reason": self.reason,
+            "opamps": self.opamps, "gbw_needed_hz": self.gbw_needed_hz, "gbw_basis": self.gbw_basis,
+            "predicted_yield": self.predicted_yield, "design_meets": self.design_meets,
         })
 
 
@@ -95,11 +106,15 @@ class Comparison:
                 "recommended_reason": self.recommended_reason}
 
     _COLUMNS = ("family", "order", "sections", "first_order_sections", "max_q", "group_delay_variation_s",
-                "overshoot_pct", "settling_time_1pct_s", "margin_db", "meets", "within_limits", "reason")
+                "overshoot_pct", "settling_time_1pct_s", "margin_db", "meets", "within_limits", "reason",
+                "opamps", "gbw_needed_hz", "predicted_yield")
 
     def table(self) -> dict[str, np.ndarray]:
-        """Columns for CSV, a row per family (object arrays; None for missing)."""
+        """Columns for CSV, a row per family (object arrays; None for missing; the yield as its fraction)."""
         rows = [f.as_dict() for f in self.families]
+        for r in rows:
+            y = r.get("predicted_yield")
+            r["predicted_yield"] = None if y is None else y.get("fraction")
         return {c: np.array([r[c] for r in rows], dtype=object) for c in self._COLUMNS}
 
     def curves(self, points: int = 600) -> dict[str, tuple]:
@@ -234,15 +249,86 @@ def compare_families(response: ResponseType | str, passband_hz, stopband_hz, pas
             rows.append(FamilyComparison(family=fam, meets=False, reason=exc.message))
             continue
         rows.append(_evaluate_family(fam, approx, criteria, overshoot_limit_pct, group_delay_variation_limit_s))
-    candidates = [r for r in rows if r.meets and r.within_limits]
+    family, reason = recommend(rows, fams, overshoot_limit_pct=overshoot_limit_pct,
+                               group_delay_variation_limit_s=group_delay_variation_limit_s, max_order=max_order)
+    return Comparison(rows, family, reason, criteria, rt)
+
+
+WEIGHED_RULE = ("among the families that meet the requirement and the stated limits: with parts given, those whose "
+                "predicted yield is not distinguishably below the best (Wilson intervals overlapping the best's); "
+                "then the fewest op-amps with the automatic topologies, then the lowest GBW needed, then the "
+                "lowest highest Q, then the lowest order")
+
+
+def _limits_text(overshoot_limit_pct, group_delay_variation_limit_s) -> str:
     limits = []
     if overshoot_limit_pct is not None:
         limits.append(f"overshoot <= {overshoot_limit_pct:g} %")
     if group_delay_variation_limit_s is not None:
         limits.append(f"group-delay variation <= {group_delay_variation_limit_s:g} s")
-    stated = " and " + " and ".join(limits) if limits else ""
-    if candidates:
+    return " and " + " and ".join(limits) if limits else ""
+
+
+def _hz(f: float) -> str:
+    for scale, unit in ((1e9, "GHz"), (1e6, "MHz"), (1e3, "kHz")):
+        if f >= scale:
+            return f"{f / scale:.3g} {unit}"
+    return f"{f:.3g} Hz"
+
+
+def _figures(r: FamilyComparison) -> str:
+    parts = []
+    if r.predicted_yield is not None:
+        parts.append(f"about {100 * r.predicted_yield['fraction']:.3g} % of boards pass with the given parts")
+    if r.opamps is not None:
+        parts.append(f"{r.opamps} op-amp{'s' if r.opamps != 1 else ''}")
+    if r.gbw_needed_hz is not None:
+        parts.append(f"{_hz(r.gbw_needed_hz)} GBW needed")
+    if r.max_q is not None:
+        parts.append(f"highest Q {r.max_q:.3g}")
+    parts.append(f"order {r.order}")
+    return ", ".join(parts)
+
+
+def recommend(rows: list[FamilyComparison], fams: Sequence[Family], *, overshoot_limit_pct: float | None = None,
+              group_delay_variation_limit_s: float | None = None, max_order: int = 20
+              ) -> tuple[Family | None, str]:
+    """The recommended family and why.
+
+    Without realization figures (``opamps`` None everywhere): the lowest order (see the module notes).
+    With them: :data:`WEIGHED_RULE`; the reason states the chosen family's figures and, where they differ,
+    why the lowest-order and the fewest-op-amp families were passed over.
+    """
+    stated = _limits_text(overshoot_limit_pct, group_delay_variation_limit_s)
+    candidates = [r for r in rows if r.meets and r.within_limits]
+    if not candidates:
+        return None, f"no family meets the requirement{stated} within order {max_order}"
+    weighed = any(r.opamps is not None for r in candidates)
+    if not weighed:
         best = min(candidates, key=lambda r: (r.order, r.max_q if r.max_q is not None else 0.0, fams.index(r.family)))
-        reason = f"lowest order ({best.order}) that meets the requirement{stated}"
-        return Comparison(rows, best.family, reason, criteria, rt)
-    return Comparison(rows, None, f"no family meets the requirement{stated} within order {max_order}", criteria, rt)
+        return best.family, f"lowest order ({best.order}) that meets the requirement{stated}"
+    pool = candidates
+    with_yield = [r for r in pool if r.predicted_yield is not None]
+    if with_yield:
+        top = max(with_yield, key=lambda r: r.predicted_yield["ci95_low"])
+        pool = [r for r in with_yield if r.predicted_yield["ci95_high"] >= top.predicted_yield["ci95_low"]]
+
+    def key(r):
+        return (r.opamps if r.opamps is not None else 10 ** 6,
+                r.gbw_needed_hz if r.gbw_needed_hz is not None else math.inf,
+                r.max_q if r.max_q is not None else 0.0, r.order, fams.index(r.family))
+
+    best = min(pool, key=key)
+    reason = f"{best.family.value}: {_figures(best)}; it meets the requirement{stated}"
+    if with_yield:
+        reason += "; no family's predicted yield is distinguishably higher"
+    notes = []
+    lowest = min(candidates, key=lambda r: (r.order, fams.index(r.family)))
+    if lowest is not best and lowest.order < best.order:
+        notes.append(f"{lowest.family.value} has the lowest order ({lowest.order}) but {_figures(lowest)}")
+    fewest = min(candidates, key=key)
+    if fewest is not best and fewest is not lowest:
+        notes.append(f"{fewest.family.value} needs fewer op-amps or less GBW but {_figures(fewest)}")
+    if notes:
+        reason += "; " + "; ".join(notes)
+    return best.family, reason

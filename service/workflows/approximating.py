@@ -37,16 +37,30 @@ def approximate(requirement: Requirement, settings: Settings, *, min_order: int 
 
 
 def compare(requirement: Requirement, settings: Settings, *, overshoot_limit_pct: float | None = None,
-            group_delay_variation_limit_s: float | None = None):
-    """Every family side by side for one requirement (by specification), each verified like a design.
+            group_delay_variation_limit_s: float | None = None, parts=None, opamp=None, gbw_error: float = 0.01,
+            monte_carlo=None):
+    """Every family side by side for one requirement (by specification), each verified like a design, with
+    what each costs to build (op-amps with ``auto``, GBW needed; with ``parts`` a quick predicted yield:
+    :mod:`service.workflows.families`) and a recommendation that weighs them
+    (:func:`service.response.comparison.recommend`).
 
     Returns
     -------
     service.response.Comparison
     """
+    from service.approximation import Family
     from service.response import compare_families
+    from service.response.comparison import recommend
+    from service.workflows.families import add_build_figures
 
     r = requirement
-    return compare_families(r.response, r.passband_hz, r.stopband_hz, r.passband_ripple_db, r.stopband_attenuation_db,
-                            criteria=r.criteria(finite_opamps=False), overshoot_limit_pct=overshoot_limit_pct,
-                            group_delay_variation_limit_s=group_delay_variation_limit_s, max_order=settings.max_order)
+    comparison = compare_families(r.response, r.passband_hz, r.stopband_hz, r.passband_ripple_db,
+                                  r.stopband_attenuation_db, criteria=r.criteria(finite_opamps=False),
+                                  overshoot_limit_pct=overshoot_limit_pct,
+                                  group_delay_variation_limit_s=group_delay_variation_limit_s,
+                                  max_order=settings.max_order)
+    add_build_figures(comparison, r, settings, parts=parts, opamp=opamp, gbw_error=gbw_error, monte_carlo=monte_carlo)
+    comparison.recommended, comparison.recommended_reason = recommend(
+        comparison.families, list(Family), overshoot_limit_pct=overshoot_limit_pct,
+        group_delay_variation_limit_s=group_delay_variation_limit_s, max_order=settings.max_order)
+    return comparison

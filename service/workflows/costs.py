@@ -154,6 +154,69 @@ def check_tolerance(shape: CircuitShape, trials: int, points: int, sensitivity_p
             fits=f"use at most {fits:,} trials at {points} points")
 
 
+#: The roots of one Monte Carlo board's circuit, per stage: units (the verifier's own cost per board is
+#: VERIFICATION_UNITS_PER_STAGE per op-amp, as for /v1/tolerance).
+ROOTS_UNITS_PER_STAGE = 300
+#: Op-amps per stage assumed before a design exists (the worst the automatic topologies use).
+OPAMPS_PER_STAGE_BOUND = 4
+#: Passive parts per stage assumed for the first-order yield model (a generous average of the topologies).
+PARTS_PER_STAGE = 8
+#: First-order model, centring and grade search on one board for one part: units (their array passes over
+#: the critical frequencies, summed over the search's moves; measured in tests/bench/bench_yield.py).
+SURROGATE_UNITS_PER_BOARD_PART = 100
+
+
+@dataclass(frozen=True)
+class YieldBudget:
+    """What a yield-targeted design may do: designs and Monte Carlo confirmations, and their total work."""
+
+    attempts: int
+    confirmations: int
+    units: float
+
+
+def yield_budget(stages: int, trials: int, model_trials: int, settings: Settings, *, most_attempts: int,
+                 most_confirmations: int, opamps: int | None = None, refuse: bool = True) -> YieldBudget:
+    """Bound the whole yield search before it starts (``trials`` per confirmation).
+
+    One design (with its reselect step), its first-order model on ``model_trials`` boards, and one
+    confirmation must fit ``ROLLOFF_MAX_WORK`` -- else (with ``refuse``) a 422 naming ``yield.trials`` with
+    what fits; ``opamps`` is the design's op-amp count once known (before: a bound per stage).  The
+    rest of the budget buys further designs (wider reserves, more order), then further confirmations
+    (calibration rounds), up to the given most.
+    """
+    check_limit("max_trials", trials, settings, field="yield.trials", what="trials")
+    stages = max(1, stages)
+    design = (DESIGN_ATTEMPT_UNITS_PER_STAGE + RESELECT_UNITS_PER_STAGE) * stages
+    model = model_trials * PARTS_PER_STAGE * stages * SURROGATE_UNITS_PER_BOARD_PART
+    n_opamps = OPAMPS_PER_STAGE_BOUND * stages if opamps is None else max(stages, opamps)
+    per_trial = VERIFICATION_UNITS_PER_STAGE * n_opamps + ROOTS_UNITS_PER_STAGE * stages
+    confirm = trials * per_trial
+    first = design + model + confirm
+    fits = max(0, int((settings.max_work - design - model) // per_trial))
+    if refuse:
+        _refuse(first, settings, field="yield.trials",
+                what=f"a yield-targeted design with {trials:,} trials per Monte Carlo confirmation",
+                fits=f"use at most {fits:,} trials")
+    left = max(0.0, settings.max_work - first)
+    extra = int(min(most_attempts - 1, left // (design + model)))
+    attempts, left = 1 + extra, left - extra * (design + model)
+    more = int(min(most_confirmations - 1, left // confirm))
+    confirmations = 1 + more
+    return YieldBudget(attempts, confirmations,
+                       attempts * (design + model) + confirmations * confirm)
+
+
+def check_compare(sections: list[int], trials: int, settings: Settings, *, yield_units_per_board_part: float) -> None:
+    """A comparison that realizes every meeting family (``sections`` each) and estimates its yield on ``trials``
+    boards fits the budget; the problem names ``parts`` (the field that asks for the designs)."""
+    stages = sum(max(1, s) for s in sections)
+    units = stages * (DESIGN_ATTEMPT_UNITS_PER_STAGE + trials * PARTS_PER_STAGE * yield_units_per_board_part)
+    _refuse(units, settings, field="parts",
+            what=f"realizing {len(sections)} families ({stages} stages) with {trials:,} boards each",
+            fits="compare without parts (op-amps and GBW by the automatic topology rule), or with fewer trials")
+
+
 #: Noise analysis: units per frequency point per unit of the circuit's point weight (one adjoint solve of the
 #: stages), and per noise source and point (its transfer and density); measured through the workflow (about
 #: 25 ms of CPU for four stages on 2,500 points here).

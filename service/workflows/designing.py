@@ -292,8 +292,11 @@ def outcome_of(realized: Design, requirement: Requirement | None = None) -> Desi
     return _finish(realized, document)
 
 
-def design(request: DesignRequest, settings: Settings) -> DesignOutcome:
+def design(request: DesignRequest, settings: Settings, *, most_attempts: int | None = None) -> DesignOutcome:
     """Design a filter for ``request`` and verify it, through the design loop (see the module notes).
+
+    ``most_attempts`` bounds the designs the loop makes (default :data:`MAX_ATTEMPTS`, within the work budget);
+    a caller that budgets the loop's work itself (the yield search) passes what it counted.
 
     Raises
     ------
@@ -311,7 +314,8 @@ def design(request: DesignRequest, settings: Settings) -> DesignOutcome:
     pb = passband_margin(req.passband_ripple_db, request.passband_margin_db)
     sb = stopband_margin(request.stopband_margin_db)
     current = _attempt(request, settings, pb, sb, None)
-    attempts = costs.design_attempts(len(current.plans), settings, MAX_ATTEMPTS)
+    attempts = costs.design_attempts(len(current.plans), settings,
+                                     MAX_ATTEMPTS if most_attempts is None else max(1, most_attempts))
     steps = [_step("design", f"order {current.order} for the requirement tightened by {pb:.4g} dB "
                              f"(passband) and {sb:.4g} dB (stopband)", current)]
     current = _reselected(current, steps)
@@ -421,7 +425,8 @@ def _attempt(request: DesignRequest, settings: Settings, pb: float | None, sb: f
             strategy=list(request.strategy) if isinstance(request.strategy, tuple) else request.strategy,
             parts=request.parts, opamp=request.opamp, exact=request.exact, impedance_ohm=request.impedance_ohm,
             section_order=req.section_order.value, stage_peak_margin_db=request.stage_peak_margin_db,
-            output_amplitude_v=request.output_amplitude_v, gbw_error=request.gbw_error, stopbands_hz=_stopbands(req))
+            output_amplitude_v=request.output_amplitude_v, gbw_error=request.gbw_error, stopbands_hz=_stopbands(req),
+            reserves_db=None if pb is None else (pb, sb))
     except InvalidDocument as exc:   # the parts allowed put a stage decades from its section
         raise UnrepresentableDesign(
             str(exc).replace(UNIT_HINT, "the allowed parts (series, range or stock) cannot give the values this "

@@ -41,7 +41,7 @@ DOCUMENT_KEYS = ("response", "family", "order", "stages", "requirement", "settin
 DOCUMENT_DERIVED = ("bom", "bom_lines", "netlist", "summary", "verdict", "warnings", "overall_gain",
                     "output_peak_gain_db", "service_version", "steps", "yield", "noise", "supply", "grades",
                     "cost")
-COMPONENT_KEYS = ("ref", "role", "kind", "value", "ideal", "tolerance", "dielectric", "part_id")
+COMPONENT_KEYS = ("ref", "role", "kind", "value", "ideal", "tolerance", "dielectric", "part_id", "cost")
 OPAMP_FIGURES = ("gbw_hz", "slew_v_per_us", "a0_db", "output_swing_v", "supply_v", "rout_ohm", "en_nv_rthz",
                  "in_pa_rthz", "en_corner_hz", "in_corner_hz", "vos_v", "ib_a", "rail_headroom_v")
 OPAMP_KEYS = ("ref", "role", *OPAMP_FIGURES, "part_id")
@@ -292,7 +292,8 @@ def _component(data: Any, path: str, seen: dict[str, str]) -> Component:
         ref=ref, role=f.string("role", max_length=L.MAX_REF_LENGTH), kind=kind, value=value, ideal=ideal,
         tolerance=f.number("tolerance", low=L.TOLERANCE_RANGE[0], high=L.TOLERANCE_RANGE[1]),
         dielectric=f.string("dielectric", max_length=L.MAX_DIELECTRIC_LENGTH) if kind == "capacitor" else None,
-        part_id=f.string("part_id", max_length=L.MAX_ID_LENGTH))
+        part_id=f.string("part_id", max_length=L.MAX_ID_LENGTH),
+        cost=f.number("cost", low=0.0, high=L.MAX_RELATIVE_COST))
 
 
 def _opamp(data: Any, path: str, seen: dict[str, str]) -> OpAmpUse:
@@ -357,7 +358,7 @@ def _plan(st: StageEntry, index: int, sf: str, settings: DesignSettings) -> Stag
         rng = settings.ranges.get(c.kind)
         comps[role] = Component(ref=c.ref, role=role, kind=c.kind, value=c.value, ideal=c.ideal,
                                 tolerance=c.tolerance, dielectric=c.dielectric, part_id=c.part_id,
-                                in_range=True if rng is None else rng.contains(c.value))
+                                in_range=True if rng is None else rng.contains(c.value), cost=c.cost)
     missing = [p for p in specs if p.role not in comps]
     if missing:
         names = ", ".join(f"{p.role} ({p.kind})" for p in missing)

@@ -24,3 +24,15 @@ class RequirementError(InfeasibleSpec):
 
 class UnrepresentableDesign(InfeasibleSpec):
     """A design whose parts or gains leave the range the service represents and reads back."""
+
+
+class YieldUnreachable(InfeasibleSpec):
+    """A yield target no design and grades within the search's bounds reach.
+
+    ``details`` (plain JSON values) are added to the problem: the limiting requirement edge (band,
+    segment, frequency) and the parts that limit it, the best estimated and confirmed yields, the rounds.
+    """
+
+    def __init__(self, message: str, *, field: str | None = None, details: dict | None = None):
+        super().__init__(message, field=field)
+        self.details = dict(details or {})

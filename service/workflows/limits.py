@@ -21,6 +21,8 @@ SECTION_FREQUENCY_RANGE_HZ = (1e-6, 1e13)
 SECTION_Q_RANGE = (1e-9, 1e6)
 #: Relative tolerance of a part.
 TOLERANCE_RANGE = (0.0, 0.5)
+#: Largest relative cost of a tolerance grade (any unit the caller chooses).
+MAX_RELATIVE_COST = 1e9
 #: Op-amp figures.
 GBW_RANGE_HZ = (1.0, 1e12)
 A0_RANGE_DB = (20.0, 200.0)

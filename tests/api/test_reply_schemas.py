@@ -8,8 +8,9 @@ import pytest
 
 from service.api.formats import FIGURE_DIGITS, round_figure, round_figures
 from service.api.schemas.designs import DesignRequestSchema, DesignSchema
+from service.api.schemas.compare import CompareRequestSchema
 from service.api.schemas.filters import (REQUIREMENT_KEYS, ApproximationRequestSchema, ApproximationSchema,
-                                         CompareRequestSchema, ComparisonSchema, requirement_from)
+                                         ComparisonSchema, requirement_from)
 from service.api.schemas.responses import ResponseRequestSchema, ResponseSchema
 from service.api.schemas.tolerance import ToleranceRequestSchema, ToleranceSchema
 from service.api.views.designs import EXAMPLE as DESIGN_EXAMPLE

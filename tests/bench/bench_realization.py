@@ -44,7 +44,8 @@ sys.path.insert(0, TREE)
 
 def measure(runs: int, opamp: float | None, cold: bool) -> dict:
     from service.approximation import design_by_order
-    from service.realization import design_filter, document_from_design
+    from service.realization import design_filter
+    from service.workflows.designing import outcome_of
 
     try:
         from service.realization.topologies.auto import _choose
@@ -57,7 +58,7 @@ def measure(runs: int, opamp: float | None, cold: bool) -> dict:
 
     def once():
         d = design_filter(approx, topology="auto", parts=parts, **kwargs)
-        doc = document_from_design(d)
+        doc = outcome_of(d).as_dict()
         assert doc["bom"] and doc["netlist"]
         return d
 

@@ -9,7 +9,9 @@ from service.api.schemas.common import ENUMS, ReplySchema, StrictSchema, one_of
 from service.api.schemas.electrical import SUPPLY_DESCRIPTION, DesignNoiseSchema, SupplyReportSchema, SupplySchema
 from service.api.schemas.filters import (FREQ_RANGE, FilterSchema, FrequencyOrPair, GroupDelayLimitSchema,
                                          SectionSchema, requirement_from)
+from service.api.schemas.montecarlo import MC_KEYS, YieldTargetSchema
 from service.api.schemas.verdicts import VerdictSchema
+from service.api.schemas.yields import CostSchema, YieldReportSchema
 from service.approximation import CutoffAt, Excess, Family, ResponseType, SectionOrder
 from service.components import SERIES
 from service.realization import TOPOLOGIES, OpAmpSpec, PartsPolicy
@@ -18,6 +20,7 @@ from service.workflows import limits as L
 from service.workflows.document import (COMPONENT_KEYS, DOCUMENT_DERIVED, DOCUMENT_KEYS, OPAMP_KEYS, STAGE_DERIVED,
                                         STAGE_KEYS, DesignSettings)
 from service.workflows.policy import DEFAULT_PASSBAND_MARGIN_FRACTION, DEFAULT_STOPBAND_MARGIN_DB
+from service.workflows.yielding import GradedDesignRequest, GradeOffer, MonteCarloSpec, StockOffer, YieldTarget
 
 TOPOLOGY_NAMES = ["auto", *TOPOLOGIES]
 _TOLERANCE = ma.validate.Range(min=L.TOLERANCE_RANGE[0], max=L.TOLERANCE_RANGE[1])
@@ -89,13 +92,44 @@ class RangeField(ma.fields.List):
         return [low, high]
 
 
-class ResistorPolicySchema(StrictSchema):
+_GRADE_TOLERANCE = ma.validate.Range(min=0, max=L.TOLERANCE_RANGE[1], min_inclusive=False)
+_COST = ma.validate.Range(min=0, max=L.MAX_RELATIVE_COST, min_inclusive=False)
+
+
+class GradeSchema(StrictSchema):
+    """A tolerance grade the caller can buy, with its relative cost."""
+
+    tolerance = ma.fields.Float(required=True, validate=_GRADE_TOLERANCE, metadata={
+        "description": "Relative tolerance of the grade (0.001 = 0.1 %)."})
+    cost = ma.fields.Float(required=True, validate=_COST, metadata={
+        "description": "Relative cost of a part in this grade (any unit, the same for every grade and kind)."})
+
+
+class _GradedKind(StrictSchema):
+    grades = ma.fields.List(ma.fields.Nested(GradeSchema), validate=ma.validate.Length(min=1, max=8), metadata={
+        "description": "The tolerance grades this kind can be bought in, each with a relative cost (instead of "
+                       "`tolerance`). Parts take the cheapest; with `yield`, the cheapest grades that reach the "
+                       "target (each part's grade comes back as its `tolerance` and `cost`)."})
+
+    @ma.validates_schema
+    def _grades(self, data, **kwargs):
+        grades = data.get("grades")
+        if not grades:
+            return
+        if "tolerance" in data:
+            raise ma.ValidationError("give tolerance or grades, not both", "tolerance")
+        tols = [g["tolerance"] for g in grades]
+        if len(set(tols)) != len(tols):
+            raise ma.ValidationError("each grade needs its own tolerance (one is given twice)", "grades")
+
+
+class ResistorPolicySchema(_GradedKind):
     series = one_of(SERIES, description="IEC 60063 series the resistors come from (default E96).", name="SeriesName")
     range = RangeField("ohm", metadata={"description": "[lowest, highest] resistor (Ω), default [1k, 1M]."})
     tolerance = ma.fields.Float(validate=_TOLERANCE, metadata={"description": "Relative tolerance (0.01 = 1 %)."})
 
 
-class CapacitorPolicySchema(StrictSchema):
+class CapacitorPolicySchema(_GradedKind):
     series = one_of(SERIES, description="IEC 60063 series the capacitors come from (default E12).",
                     name="SeriesName")
     range = RangeField("F", metadata={"description": "[lowest, highest] capacitor (F), default [100p, 10u]."})
@@ -113,6 +147,10 @@ class StockPartSchema(StrictSchema):
     dielectric = ma.fields.String(validate=_DIELECTRIC, allow_none=True)
     part_id = ma.fields.String(validate=_ID, allow_none=True, metadata={
         "description": "The caller's id (component database), returned on the BOM line."})
+    cost = ma.fields.Float(validate=_COST, allow_none=True, metadata={
+        "description": "Relative cost of the entry. Entries of one value in several tolerances are that value's "
+                       "grades: a part takes the cheapest (unpriced entries count 0, so the tightest of them), "
+                       "and with `yield` the cheapest that reach the target."})
 
 
 class PartsSchema(StrictSchema):
@@ -197,6 +235,14 @@ class DesignRequestSchema(FilterSchema):
     stage = StrictInteger(validate=ma.validate.Range(min=1), metadata={
         "description": "With `format: svg`: draw only this stage (numbered from 1); default the whole filter."})
     supply = ma.fields.Nested(SupplySchema, metadata={"description": SUPPLY_DESCRIPTION})
+    yield_ = ma.fields.Nested(YieldTargetSchema, data_key="yield", metadata={
+        "description": "Design to a yield: the share of Monte Carlo boards (drawn as /v1/tolerance draws them) "
+                       "that must meet the requirement. With `grades` per part kind (or stock entries of one value "
+                       "in several tolerances, with `cost`), the cheapest grades that reach it are assigned; when "
+                       "no grades can, the design is redone with wider reserves or one more order. The reply's "
+                       "`yield` gives the confirmed yield with its Wilson interval, `cost` the total relative "
+                       "cost; a target out of reach is a 422 naming the requirement edge and the parts that limit "
+                       "it."})
 
     @ma.validates_schema
     def _margins(self, data, **kwargs):
@@ -209,7 +255,7 @@ class DesignRequestSchema(FilterSchema):
     def _typed(self, data, **kwargs):
         parts = data.get("parts")
         stock = (parts or {}).get("stock") or []
-        return {"request": DesignRequest(
+        request = DesignRequest(
             requirement=requirement_from(data),
             topology=tuple(data["topology"]) if isinstance(data["topology"], list) else data["topology"],
             strategy=tuple(data["strategy"]) if isinstance(data.get("strategy"), list) else data.get("strategy"),
@@ -219,8 +265,25 @@ class DesignRequestSchema(FilterSchema):
             stage_peak_margin_db=data["stage_peak_margin_db"], output_amplitude_v=data["output_amplitude_v"],
             gbw_error=data["gbw_error"], passband_margin_db=data.get("passband_margin_db"),
             stopband_margin_db=data.get("stopband_margin_db"), stock_entries=len(stock),
-            supply=None if data.get("supply") is None else SupplySettings.from_json(data["supply"], "supply")),
-            "format": data["format"], "stage": data.get("stage")}
+            supply=None if data.get("supply") is None else SupplySettings.from_json(data["supply"], "supply"))
+        graded = graded_request(request, parts or {}, data.get("yield_"))
+        return {"request": graded if graded is not None else request, "format": data["format"],
+                "stage": data.get("stage")}
+
+
+def graded_request(request: DesignRequest, parts: dict, target: dict | None) -> GradedDesignRequest | None:
+    """The request with its priced grades and yield target (None when it has neither)."""
+    grades = {kind: tuple(GradeOffer(g["tolerance"], g["cost"]) for g in (parts.get(key) or {}).get("grades") or ())
+              for key, kind in (("resistors", "resistor"), ("capacitors", "capacitor"))}
+    grades = {k: v for k, v in grades.items() if v}
+    stock = tuple(StockOffer(e["kind"], e["value"], e["tolerance"], e.get("cost"), e.get("dielectric"),
+                             e.get("part_id")) for e in parts.get("stock") or ())
+    if target is None and not grades and not any(e.cost is not None for e in stock):
+        return None
+    yt = None
+    if target is not None:
+        yt = YieldTarget(target["target"], MonteCarloSpec(**{k: target[k] for k in MC_KEYS if target.get(k) is not None}))
+    return GradedDesignRequest(request, grades, stock, yt)
 
 
 def _parts_policy(parts: dict) -> dict:
@@ -229,10 +292,14 @@ def _parts_policy(parts: dict) -> dict:
     policy: dict = {}
     for key, kind in (("resistors", "resistor"), ("capacitors", "capacitor")):
         given = dict(parts.get(key) or {})
+        grades = given.pop("grades", None)
+        if grades:
+            # the parts start in the cheapest grade (the tightest among equally cheap ones)
+            given["tolerance"] = min(grades, key=lambda g: (g["cost"], g["tolerance"]))["tolerance"]
         rng = given.pop("range", None)
         if rng is not None:
             given["min_value"], given["max_value"] = rng
-        entries = [{k: v for k, v in e.items() if k != "kind"} for e in stock if e["kind"] == kind]
+        entries = [{k: v for k, v in e.items() if k not in ("kind", "cost")} for e in stock if e["kind"] == kind]
         if entries:
             given["stock"] = entries
         if given or key in parts:
@@ -254,6 +321,8 @@ class ComponentSchema(StrictSchema):
     tolerance = ma.fields.Float(allow_none=True, validate=_TOLERANCE)
     dielectric = ma.fields.String(allow_none=True, validate=_DIELECTRIC)
     part_id = ma.fields.String(allow_none=True, validate=_ID)
+    cost = ma.fields.Float(allow_none=True, validate=ma.validate.Range(min=0, max=L.MAX_RELATIVE_COST), metadata={
+        "description": "Relative cost of the part's tolerance grade (present when the request priced its grades)."})
 
 
 OpAmpUseSchema = StrictSchema.from_dict({
@@ -540,3 +609,9 @@ class DesignSchema(ReplySchema):
     noise = ma.fields.Nested(DesignNoiseSchema, allow_none=True, metadata={
         "description": "When an op-amp has noise figures: the output noise over the netlist's `.noise` sweep and "
                        "its largest contributions; null otherwise."})
+    yield_ = ma.fields.Nested(YieldReportSchema, data_key="yield", attribute="yield", metadata={
+        "description": "With a yield target: the Monte Carlo yield of this design with its parts' grades, every "
+                       "board verified like a design, with its Wilson interval and how it was reached."})
+    cost = ma.fields.Nested(CostSchema, metadata={
+        "description": "With priced grades: the total relative cost of the parts' grades (and of all-cheapest "
+                       "and all-tightest, for comparison)."})

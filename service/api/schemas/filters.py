@@ -212,29 +212,15 @@ class ApproximationRequestSchema(FilterSchema):
                     description="`csv`: the sections as a table.")
 
 
-class CompareRequestSchema(StrictSchema):
-    """One requirement, every family."""
+class PredictedYieldSchema(ma.Schema):
+    """A quick first-order yield estimate of one family's realized design."""
 
-    response = one_of(ResponseType, required=True, description="lowpass, highpass, bandpass or bandstop.")
-    passband_hz = FrequencyOrPair(required=True, metadata={"description": "Passband edge (Hz) or pair."})
-    stopband_hz = FrequencyOrPair(required=True, metadata={"description": "Stopband edge (Hz) or pair."})
-    passband_ripple_db = ma.fields.Float(required=True, validate=_RIPPLE)
-    stopband_attenuation_db = ma.fields.Float(required=True, validate=_ATTEN)
-    passband_upper_hz = Quantity(unit="Hz", validate=FREQ_RANGE, metadata={
-        "description": "Highpass and bandstop: where the open passband's check ends (Hz); default 10 x its edge."})
-    overshoot_limit_pct = ma.fields.Float(validate=ma.validate.Range(min=0, max=100), metadata={
-        "description": "Recommend only a family whose step overshoot stays within this (%)."})
-    group_delay_variation_limit_s = Quantity(unit="s", validate=ma.validate.Range(min=0, max=1e3), metadata={
-        "description": "Recommend only a family whose passband group-delay variation stays within this (s)."})
-    format = one_of(["json", "csv"], name="ApproximationBodyFormat", load_default="json",
-                    description="`csv`: a row per family.")
-
-    @ma.validates_schema
-    def _pairs(self, data, **kwargs):
-        band = data.get("response") in BAND_RESPONSES
-        for name in ("passband_hz", "stopband_hz"):
-            if name in data:
-                _check_pair(data, name, band)
+    fraction = ma.fields.Float(metadata={"description": "Share of the boards meeting the requirement."})
+    ci95_low = ma.fields.Float(metadata={"description": "95 % Wilson score interval, lower end."})
+    ci95_high = ma.fields.Float(metadata={"description": "95 % Wilson score interval, upper end."})
+    trials = ma.fields.Integer()
+    passed = ma.fields.Integer()
+    method = ma.fields.String()
 
 
 class FamilyComparisonSchema(ma.Schema):
@@ -250,11 +236,23 @@ class FamilyComparisonSchema(ma.Schema):
     margin_db = ma.fields.Float(allow_none=True, metadata={"description": "Smallest attenuation margin (dB)."})
     within_limits = ma.fields.Boolean(allow_none=True, metadata={"description": "Meets the overshoot/delay limits."})
     reason = ma.fields.String(allow_none=True)
+    opamps = ma.fields.Integer(allow_none=True, metadata={
+        "description": "Op-amps of its sections with `topology: auto` (with parts: of the realized design)."})
+    gbw_needed_hz = ma.fields.Float(allow_none=True, metadata={
+        "description": "Largest gain-bandwidth (Hz) a stage needs; `gbw_basis` says how it was found."})
+    gbw_basis = ma.fields.String(allow_none=True)
+    predicted_yield = ma.fields.Nested(PredictedYieldSchema, allow_none=True, metadata={
+        "description": "With parts: a quick first-order estimate of the share of Monte Carlo boards meeting the "
+                       "requirement {fraction, ci95_low, ci95_high (Wilson), trials, passed, method}."})
+    design_meets = ma.fields.Boolean(allow_none=True, metadata={
+        "description": "With parts: whether the realized nominal circuit meets the requirement (verified)."})
 
 
 class ComparisonSchema(ReplySchema):
     response = ma.fields.String()
     families = ma.fields.List(ma.fields.Nested(FamilyComparisonSchema))
     recommended = ma.fields.String(allow_none=True, metadata={
-        "description": "Lowest-order family that meets the requirement and the stated limits."})
+        "description": "Among the families that meet the requirement and the stated limits: with parts, those "
+                       "whose predicted yield is not distinguishably below the best; then the fewest op-amps, the "
+                       "lowest GBW needed, the lowest highest Q, the lowest order."})
     recommended_reason = ma.fields.String()

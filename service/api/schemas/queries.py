@@ -178,7 +178,7 @@ def _approximation_query() -> type[StrictSchema]:
 
 
 def _compare_query() -> type[StrictSchema]:
-    from service.api.schemas.filters import CompareRequestSchema
+    from service.api.schemas.compare import CompareRequestSchema
 
     return query_form(CompareRequestSchema, name="CompareQuerySchema", formats=("json", "csv", "text"),
                       format_name="ApproximationFormat")

@@ -5,66 +5,12 @@ from __future__ import annotations
 import marshmallow as ma
 
 from service.api.fields import Quantity, StrictInteger
-from service.api.schemas.common import ENUMS, ReplySchema, Scalar, StrictSchema, one_of
+from service.api.schemas.common import ReplySchema, Scalar, StrictSchema, one_of
 from service.api.schemas.designs import DesignDocumentSchema
+from service.api.schemas.montecarlo import DISTRIBUTIONS, DistributionField, TemperatureSchema  # noqa: F401
+from service.api.schemas.yields import CriterionFailuresSchema, WorstTrialSchema  # noqa: F401
 from service.api.schemas.responses import FrequenciesField, MaskField, frequencies_from, mask_from
 from service.workflows import DesignDocument, ToleranceRequest
-
-DISTRIBUTIONS = ["uniform", "gaussian"]
-ENUMS.setdefault("DistributionName", list(DISTRIBUTIONS))
-
-
-class DistributionField(ma.fields.Field):
-    """``"uniform"``, ``"gaussian"``, or one per kind ``{"resistor", "capacitor", "opamp"}``."""
-
-    KINDS = ("resistor", "capacitor", "opamp")
-
-    def _deserialize(self, value, attr, data, **kwargs):
-        if isinstance(value, str):
-            if value not in DISTRIBUTIONS:
-                raise ma.ValidationError(f"expected one of {', '.join(DISTRIBUTIONS)}")
-            return value
-        if isinstance(value, dict):
-            errors = {}
-            for key, v in value.items():
-                if key not in self.KINDS:
-                    errors[key] = [f"unknown part kind: expected {', '.join(self.KINDS)}"]
-                elif v not in DISTRIBUTIONS:
-                    errors[key] = [f"expected one of {', '.join(DISTRIBUTIONS)}"]
-            if errors:
-                raise ma.ValidationError(errors)
-            return dict(value)
-        raise ma.ValidationError("expected \"uniform\", \"gaussian\" or {resistor, capacitor, opamp: ...}")
-
-    def openapi_properties(self) -> dict:
-        return {"oneOf": [{"$ref": "#/components/schemas/DistributionName"},
-                          {"$ref": "#/components/schemas/DistributionByKind"}]}
-
-
-class DistributionByKindSchema(StrictSchema):
-    """One distribution per part kind; a kind left out is gaussian (documentation of :class:`DistributionField`,
-    whose one type in generated clients this is)."""
-
-    resistor = one_of(DISTRIBUTIONS, name="DistributionName", description="Resistors' distribution.")
-    capacitor = one_of(DISTRIBUTIONS, name="DistributionName", description="Capacitors' distribution.")
-    opamp = one_of(DISTRIBUTIONS, name="DistributionName", description="Op-amps' gain-bandwidth distribution.")
-
-
-#: Schemas referenced by name from custom fields (registered as OpenAPI components by the app).
-REFERENCED_COMPONENTS = {"DistributionByKind": DistributionByKindSchema}
-
-
-class TemperatureSchema(StrictSchema):
-    min_c = ma.fields.Float(required=True, validate=ma.validate.Range(min=-273.15, max=500),
-                            metadata={"description": "Lowest board temperature (°C)."})
-    max_c = ma.fields.Float(required=True, validate=ma.validate.Range(min=-273.15, max=500),
-                            metadata={"description": "Highest board temperature (°C)."})
-
-    @ma.validates_schema
-    def _ordered(self, data, **kwargs):
-        if "min_c" in data and "max_c" in data and data["min_c"] > data["max_c"]:
-            raise ma.ValidationError("min_c must not exceed max_c", "max_c")
-
 
 class ToleranceRequestSchema(StrictSchema):
     design = ma.fields.Nested(DesignDocumentSchema, required=True, metadata={
@@ -167,29 +113,6 @@ class ToleranceMetricsSchema(ma.Schema):
                                                              "frequency in Hz (\"25600.0\")."})
     stages = ma.fields.List(ma.fields.Nested(StageDistributionSchema), metadata={
         "description": "Each stage's f0 and Q (closed form, ideal op-amps), stage 1 first."})
-
-
-class WorstTrialSchema(ma.Schema):
-    trial = ma.fields.Integer(metadata={"description": "Trial index (from 0), as in `trials`."})
-    frequency_hz = ma.fields.Float(metadata={"description": "Where that trial's margin is least (Hz)."})
-    loss_db = ma.fields.Float(metadata={"description": "That trial's loss there (dB)."})
-    margin_db = ma.fields.Float(metadata={"description": "That trial's margin on the segment (dB)."})
-
-
-class CriterionFailuresSchema(ma.Schema):
-    segment = ma.fields.Integer(allow_none=True, metadata={"description": "Index of the verified segment (from 0); "
-                                                                         "null for the group-delay limit."})
-    band = ma.fields.String(metadata={"description": "passband, stopband or group_delay."})
-    start_hz = ma.fields.Float()
-    stop_hz = ma.fields.Float(allow_none=True, metadata={"description": "Null: to infinity."})
-    limit_db = ma.fields.Float(metadata={"description": "Loss limit of the segment (dB)."})
-    limit_pct = ma.fields.Float(metadata={"description": "Group-delay deviation limit (%)."})
-    failures = ma.fields.Integer(metadata={"description": "Stable trials missing this criterion."})
-    worst_margin_db = ma.fields.Float(allow_none=True)
-    worst_margin_pct = ma.fields.Float(allow_none=True)
-    worst_trial = ma.fields.Nested(WorstTrialSchema, allow_none=True, metadata={
-        "description": "The located trial with the least margin on this segment; null when no trial's worst "
-                       "point was located."})
 
 
 class YieldSchema(ma.Schema):

@@ -15,9 +15,9 @@ def register_views(api) -> None:
     page.register(api)      # / and /docs: pages, not API operations (kept out of the OpenAPI document)
 
     from service.api.schemas.common import ENUMS
-    from service.api.schemas import responses, tolerance
+    from service.api.schemas import montecarlo, responses
 
-    for name, schema in {**responses.REFERENCED_COMPONENTS, **tolerance.REFERENCED_COMPONENTS}.items():
+    for name, schema in {**responses.REFERENCED_COMPONENTS, **montecarlo.REFERENCED_COMPONENTS}.items():
         if name not in api.spec.components.schemas:
             api.spec.components.schema(name, schema=schema)
     for name, choices in sorted(ENUMS.items()):

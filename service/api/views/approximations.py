@@ -8,8 +8,9 @@ from flask.views import MethodView
 from service.api.extension import Blueprint, representation
 from service.api.formats import FIGURE_DIGITS, csv_response
 from service.api.schemas.common import representation_query
+from service.api.schemas.compare import CompareRequestSchema
 from service.api.schemas.filters import (
-    ApproximationRequestSchema, ApproximationSchema, ComparisonSchema, CompareRequestSchema, requirement_from,
+    ApproximationRequestSchema, ApproximationSchema, ComparisonSchema, requirement_from,
 )
 from service.api.schemas.queries import ApproximationQuerySchema, CompareQuerySchema
 from service.workflows import approximate, compare
@@ -95,11 +96,26 @@ class Approximations(MethodView):
 _COMPARE_DESCRIPTION = """\
 Every family that can meet one requirement, side by side: order, number of
 second-order sections, highest section Q (a sensitivity warning sign), passband
-group-delay variation (s), step overshoot (%), settling time to 1 % (s) and the
-smallest attenuation margin (dB). Families that cannot meet it within
-ROLLOFF_MAX_ORDER are listed with `meets: false` and the reason. With
-`overshoot_limit_pct` and/or `group_delay_variation_limit_s`, `recommended` is
-the lowest-order family that also meets those limits. `format=csv`: a row per
+group-delay variation (s), step overshoot (%), settling time to 1 % (s), the
+smallest attenuation margin (dB), and what it costs to build: the op-amps of
+its sections with `topology: auto` and the largest GBW a stage needs (rule of
+thumb |G|·Q·f0/error per section). With `parts` (as for /v1/designs, and
+optionally `opamp` and `yield` for how boards are drawn) every meeting family
+is realized as /v1/designs realizes it on its first step, and the row gives
+the realized op-amp count, the stages' own GBW need, whether the nominal
+circuit meets the requirement, and a quick predicted yield: the share of
+Monte Carlo boards meeting the requirement by a first-order model of the
+part sensitivities, with its Wilson interval (not verified board by board:
+/v1/tolerance does that for a design). Families that cannot meet the
+requirement within ROLLOFF_MAX_ORDER are listed with `meets: false` and the
+reason.
+
+`recommended` weighs them, among the families that meet the requirement and
+the stated `overshoot_limit_pct` / `group_delay_variation_limit_s`: with
+parts, those whose predicted yield is not distinguishably below the best
+(Wilson intervals overlapping the best's); then the fewest op-amps, the lowest
+GBW needed, the lowest highest Q, the lowest order; `recommended_reason` says
+why, and why the lowest-order family was passed over. `format=csv`: a row per
 family; `format=text&field=recommended` one value.
 
 Example (PM-7 accelerometer channel): which approximation for 0.1 dB to 10 kHz
@@ -110,7 +126,9 @@ and 80 dB at 25.6 kHz, with at most 10 % step overshoot?
 def _compare(args):
     comparison = compare(requirement_from(args), current_app.config["ROLLOFF_SETTINGS"],
                          overshoot_limit_pct=args.get("overshoot_limit_pct"),
-                         group_delay_variation_limit_s=args.get("group_delay_variation_limit_s"))
+                         group_delay_variation_limit_s=args.get("group_delay_variation_limit_s"),
+                         parts=args.get("parts"), opamp=args.get("opamp"), gbw_error=args["gbw_error"],
+                         monte_carlo=args.get("monte_carlo"))
     if representation().produce == "csv":
         return csv_response(comparison.table(), filename="compare.csv", digits=FIGURE_DIGITS)
     return comparison.as_dict()

@@ -7,6 +7,7 @@ from flask.views import MethodView
 
 from service.workflows import DesignDocument, design, evaluate_json
 from service.workflows.bom import bom_lines, bom_table
+from service.workflows.yielding import GradedDesignRequest, design_to_yield
 from service.api.extension import Blueprint, representation
 from service.api.formats import csv_response, spice_response, svg_response
 from service.api.schemas.common import representation_query
@@ -142,6 +143,14 @@ def _bom_filename(document: DesignDocument) -> str:
     return "-".join(["bom", *map(str, parts)]) + ".csv"
 
 
+def _design(request):
+    """The design workflow the request asks for: to a yield target (with `yield`) or the design loop."""
+    settings = current_app.config["ROLLOFF_SETTINGS"]
+    if isinstance(request, GradedDesignRequest):
+        return design_to_yield(request, settings)
+    return design(request, settings)
+
+
 def _reply(outcome, stage: int | None = None):
     """A design outcome in the representation asked: the document, its BOM (CSV), netlist or schematic."""
     fmt = representation().produce
@@ -165,7 +174,7 @@ class Designs(MethodView):
     @blp.doc(summary="Design a filter with parts from a series (query parameters)", description=_DESCRIPTION,
              operationId="design_filter_by_query")
     def get(self, args):
-        return _reply(design(args["request"], current_app.config["ROLLOFF_SETTINGS"]), args.get("stage"))
+        return _reply(_design(args["request"]), args.get("stage"))
 
     @blp.arguments(DesignRepresentation, location="query", unknown="raise")
     @blp.arguments(DesignRequestSchema, example=EXAMPLE)
@@ -177,7 +186,7 @@ class Designs(MethodView):
                       description="Invalid request, infeasible requirement, or parts that cannot realize it.")
     @blp.doc(summary="Design a filter with parts from stock", description=_DESCRIPTION, operationId="design_filter")
     def post(self, _query, args):
-        return _reply(design(args["request"], current_app.config["ROLLOFF_SETTINGS"]), args.get("stage"))
+        return _reply(_design(args["request"]), args.get("stage"))
 
 
 _EVALUATE_DESCRIPTION = """\

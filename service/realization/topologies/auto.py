@@ -29,6 +29,11 @@ Rule (stated in the catalog, :func:`describe_auto`):
    figure is least beyond its limit is taken, among those whose spreads the
    caller's parts can give at all.
 3. ``allpass``: no topology yet -> :class:`UnsupportedSection`.
+4. A requirement design whose stages' part choices, made together for the whole
+   response, leave the requirement short: up to three automatically chosen stages
+   (furthest off first) take rule 2's choice among the candidates with more
+   op-amps (:func:`auto_upgrade`), each kept only when it brings the filter
+   closer to meeting (``service.realization.design``).
 
 The limits are common practice of the trade, not a single published figure;
 the reasoning follows Schaumann & Van Valkenburg [1]_ ch. 3-5 (the Q
@@ -108,7 +113,10 @@ AUTO_RULE = (
     "representative design (capacitors at the preferred impedance level, ratio chosen for the smallest "
     "spread); among equals the one that realizes the section's gain exactly, then the smallest Q "
     "sensitivity; when none is within the limits, the one least beyond them among those the allowed parts "
-    "can build."
+    "can build. For a requirement design, when the stages' part choices (made together for the whole "
+    "response) leave the requirement short, up to three stages, furthest off first, take the same rule's "
+    "choice among the topologies with more op-amps, each kept only when it brings the filter closer to "
+    "meeting (warning stage_topology_raised)."
 )
 
 
@@ -251,7 +259,7 @@ def _first_order(section: Section) -> tuple[Topology, str]:
 
 
 @lru_cache(maxsize=512)
-def _choose(section: Section, model_key, gbw_error: float, spans) -> tuple[Topology, str]:
+def _choose(section: Section, model_key, gbw_error: float, spans, above: int = 0) -> tuple[Topology, str] | None:
     opamp_model = None
     if model_key is not None:
         from service.circuit import OpAmpModel
@@ -263,6 +271,9 @@ def _choose(section: Section, model_key, gbw_error: float, spans) -> tuple[Topol
     slow = opamp_model is not None and model_key[0] < 100.0 * (section.q or 1.0) * section.f0_hz
     options = [(len(top.opamp_roles(section, strategy)), top, strategy)
                for top in candidates for strategy in _strategies(top, section, slow)]
+    options = [o for o in options if o[0] > above]
+    if above and not options:
+        return None
     found = []
     for count in sorted({o[0] for o in options}):
         group = [a for _, top, strategy in (o for o in options if o[0] == count)
@@ -273,6 +284,8 @@ def _choose(section: Section, model_key, gbw_error: float, spans) -> tuple[Topol
             best = min(accepted, key=lambda a: (not a.exact_gain, a.q_sensitivity))
             return best.topology, best.strategy
     if not found:
+        if above:
+            return None
         raise UnsupportedSection(
             f"no topology realizes this {section.kind.value} section (f0 {section.f0_hz:.6g} Hz, Q {section.q}, "
             f"gain {section.gain:.6g})", field="section")
@@ -319,6 +332,23 @@ def auto_topology(section: Section, *, opamp_gbw_hz: float | None = None, opamp_
     return _choose(section, key, float(gbw_error), spans)
 
 
+def auto_upgrade(section: Section, opamps: int, *, opamp_model=None, gbw_error: float = 0.01,
+                 spans: tuple[float, float] | None = None) -> tuple[Topology, str] | None:
+    """The rule of :func:`auto_topology` among the candidates with more than ``opamps`` op-amps (None: none).
+
+    What a stage takes when its part choices, with the fewest op-amps, leave the whole filter short of its
+    requirement (:func:`service.realization.design.design_filter`): the next op-amp count up.
+    """
+    if section.order == 1:
+        return None
+    key = None
+    if opamp_model is not None:
+        key = (float(opamp_model.gbw_hz), float(opamp_model.a0), float(opamp_model.rout_ohm))
+    if spans is not None:
+        spans = (float(spans[0]), float(spans[1]))
+    return _choose(section, key, float(gbw_error), spans, int(opamps))
+
+
 def describe_auto() -> dict:
     """The rule and limits of ``topology: "auto"`` for the catalog."""
     from service.realization.gbw import GBW_SPREAD, PREDISTORTION_MAX_SHIFT
@@ -337,5 +367,5 @@ def describe_auto() -> dict:
     }
 
 
-__all__ = ["auto_topology", "assess", "Assessment", "describe_auto", "AUTO_RULE", "CANDIDATES", "MAX_Q",
+__all__ = ["auto_topology", "auto_upgrade", "assess", "Assessment", "describe_auto", "AUTO_RULE", "CANDIDATES", "MAX_Q",
            "MAX_RESISTOR_SPREAD", "MAX_CAPACITOR_SPREAD", "MAX_Q_SENSITIVITY"]
