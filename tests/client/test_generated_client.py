@@ -30,6 +30,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 import scipy.signal
+import scipy.stats
 
 from service.api.views.designs import EVALUATE_EXAMPLE
 from service.api.views.responses import EXAMPLE as RESPONSE_EXAMPLE
@@ -281,6 +282,26 @@ def test_every_operation_through_the_generated_client(document, package, client,
     assert float(r3) == next(c.value for c in design.stages[1].components if c.ref == "R3")
     assert call("design_filter_text", field="summary.meets", body=design_body) == "true"
     assert len(svg(call("design_filter_by_query_svg", stage=2, **design_query))) > 0
+
+    # -- a design to a yield target and a comparison with parts, over GET as a sheet asks for them
+    bearing_query = dict(response=m.ResponseType.LOWPASS, family=m.Family.CHEBYSHEV1, passband_hz=["1kHz"],
+                         stopband_hz=["3kHz"], passband_ripple_db=0.5, stopband_attenuation_db=40.0,
+                         parts_resistors_series=m.SeriesName.E96, parts_resistors_tolerance=0.01,
+                         parts_capacitors_tolerance=0.05, yield_target=0.5, yield_trials=300)
+    to_yield = typed(call("design_filter_by_query", **bearing_query), "Design")
+    report = to_yield.yield_
+    assert report.reached is True and report.ci95_low >= 0.5 and report.monte_carlo.trials == 300
+    # source: E. B. Wilson, JASA 22 (1927) 209-212 (via scipy.stats binomtest's Wilson interval)
+    ci = scipy.stats.binomtest(report.passed, report.trials).proportion_ci(0.95, method="wilson")
+    assert close(report.ci95_low, ci.low) and close(report.ci95_high, ci.high)
+    assert float(call("design_filter_by_query_text", field="yield.fraction", **bearing_query)) == report.fraction
+    with_parts = dict(compare_query, parts_resistors_tolerance=0.01, parts_capacitors_tolerance=0.05,
+                      yield_trials=300)
+    built = typed(call("compare_families_by_query", **with_parts), "Comparison")
+    cheby = next(f for f in built.families if f.family == "chebyshev1")
+    assert type(cheby.predicted_yield).__name__ == "PredictedYield" and 0 <= cheby.predicted_yield.fraction <= 1
+    assert float(call("compare_families_by_query_text", field="families.chebyshev1.predicted_yield.fraction",
+                      **with_parts)) == cheby.predicted_yield.fraction
 
     # -- evaluate: the design document sent back as the generated client holds it
     document_model = m.DesignDocument.from_dict(by_req.to_dict())

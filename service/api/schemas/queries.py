@@ -32,18 +32,27 @@ from service.api.schemas.filters import FREQ_RANGE, FrequencyOrPair
 _ONE_OR_MANY = "rolloff_one_or_many"
 
 
-def _documented_default(field: ma.fields.Field, metadata: dict, many: bool = False) -> dict:
-    """The body field's default, stated for the documentation only (the body schema applies it)."""
+def _documented_default(field: ma.fields.Field, metadata: dict, many: bool = False, top: bool = True) -> dict:
+    """The body field's default, stated for the documentation only (the body schema applies it).
+
+    A field of a nested object states it in its description instead: that default applies only when the object
+    is given, and a generated client sends every documented default (it would give the object, ``yield.trials``
+    making a ``yield`` the caller did not ask for).
+    """
     default = field.load_default
     if default is not ma.missing and not callable(default) and "default" not in metadata:
         value = field._serialize(default, None, None)
+        if not top:
+            text = metadata.get("description", "")
+            return dict(metadata, description=f"{text}{' ' if text else ''}Default {value} when the object is given.")
         return dict(metadata, default=[value] if many and not isinstance(value, list) else value)
     return dict(metadata)
 
 
-def _query_field(field: ma.fields.Field, required: bool) -> ma.fields.Field | None:
+def _query_field(field: ma.fields.Field, required: bool, top: bool = True) -> ma.fields.Field | None:
     """The query form of one leaf field of a body schema; None for a field with no query form."""
-    meta = _documented_default(field, field.metadata, many=isinstance(field, (FrequencyOrPair, NameOrList)))
+    meta = _documented_default(field, field.metadata, many=isinstance(field, (FrequencyOrPair, NameOrList)),
+                               top=top)
     if isinstance(field, FrequencyOrPair):
         out = ma.fields.List(Quantity(unit="Hz", validate=FREQ_RANGE), validate=ma.validate.Length(min=1, max=2),
                              required=required, metadata=dict(meta, **{_ONE_OR_MANY: True}))
@@ -85,7 +94,7 @@ def flat_fields(schema: type[ma.Schema], *, exclude: Iterable[str] = (), prefix:
             nested = field.schema.__class__
             out.update(flat_fields(nested, exclude=exclude, prefix=key + ".", top=False))
             continue
-        q = _query_field(field, required=top and field.required)
+        q = _query_field(field, required=top and field.required, top=top)
         if q is not None:
             q.data_key = key
             out[key] = q

@@ -31,14 +31,19 @@ class CriterionFailuresSchema(ma.Schema):
 
 
 class MonteCarloReportSchema(ma.Schema):
-    """The options a confirming run drew its boards with (as /v1/tolerance takes them)."""
+    """The options a confirming run drew its boards with, as /v1/tolerance takes them: an option the run did not
+    use is left out (not null), so the object can be sent to /v1/tolerance as it is."""
 
     trials = ma.fields.Integer()
     seed = ma.fields.Integer()
     distribution = DistributionField(metadata={"description": "`uniform`, `gaussian`, or one per part kind."})
-    temperature = ma.fields.Nested(TemperatureSchema, allow_none=True)
-    tempco_ppm_per_c = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.Float(), allow_none=True)
-    gbw_spread = ma.fields.Float(allow_none=True)
+    temperature = ma.fields.Nested(TemperatureSchema)
+    tempco_ppm_per_c = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.Float())
+    gbw_spread = ma.fields.Float()
+
+    @ma.post_dump
+    def _without_unused(self, data, **kwargs):
+        return {k: v for k, v in data.items() if v is not None}
 
 
 class YieldConfirmationSchema(ma.Schema):
