@@ -26,7 +26,7 @@ BLAS thread, bound to 127.0.0.1 on a free port of ``ROLLOFF_TEST_PORTS`` or
 ``--port``), timed from sending the request to the last byte of the JSON reply
 on a kept-alive connection.  Each of ``--rounds`` rounds runs the ngspice loop
 once on the same sampled part values (``--spice-trials``, default all trials,
-unscaled) and ``--requests`` requests, and takes the ratio ngspice / median
+unscaled) and ``--requests`` requests on a connection opened after the ngspice run, and takes the ratio ngspice / median
 request; the median and spread of the rounds' ratios are printed, with the
 worker's peak RSS (VmHWM) added by the requests.  The cost model may refuse a
 request it estimates above ``ROLLOFF_MAX_WORK``; ``--max-work`` sets that
@@ -296,7 +296,16 @@ class Service:
         else:
             self.stop()
             raise RuntimeError("the service did not become ready")
-        self.conn = http.client.HTTPConnection("127.0.0.1", port, timeout=120)
+        self.conn = None
+        self.reconnect()
+
+    def reconnect(self) -> None:
+        """A new kept-alive connection (the server closes idle ones), opened with a GET /healthz."""
+        if self.conn is not None:
+            self.conn.close()
+        self.conn = http.client.HTTPConnection("127.0.0.1", self.port, timeout=120)
+        self.conn.request("GET", "/healthz")
+        self.conn.getresponse().read()
 
     def worker_pid(self) -> int:
         with open(f"/proc/{self.proc.pid}/task/{self.proc.pid}/children") as fh:
@@ -362,6 +371,7 @@ def http_bench(trials: int, rounds: int, requests: int, spice_trials: int, maske
                 fh.write(spice_deck(doc, spice_trials, seed))
             for r in range(rounds):
                 s = ngspice_once(deck, spice_trials) * scale
+                svc.reconnect()
                 hs = [svc.post(body)[0] for _ in range(requests)]
                 http_t += hs
                 spice_t.append(s)
