@@ -9,8 +9,9 @@ are reduced per chunk and never depend on the chunking (``chunk_trials``, or
 the default of :func:`tile_trials`, bounded by the memory limit).
 
 Magnitude, phase and group delay on the caller's grid are kept per trial as
-float32 in frequency-major stores (F_b, T), sorted in place per frequency for
-the percentiles (:mod:`service.tolerance.statistics`).  When the stores of all
+float32 in frequency-major stores (F_b, T); the percentiles read the order
+statistics they need from them by selection, not by sorting
+(:func:`service.tolerance.statistics.row_percentiles`).  When the stores of all
 frequencies would exceed the store budget the caller's grid is split into
 frequency blocks, each swept over all trials again; the per-trial figures are
 then read in a first sweep of the metric grid alone.  The split depends on
@@ -40,7 +41,7 @@ from service.deadline import check as check_deadline
 from service.tolerance import figures as fig
 from service.tolerance.grids import Grids
 from service.tolerance.sampling import Samples
-from service.tolerance.statistics import sorted_percentiles
+from service.tolerance.statistics import row_percentiles
 
 #: Default trials per chunk for up to REFERENCE_COLUMNS evaluated frequencies (speed only, never the numbers).
 TILE_TRIALS = 1024
@@ -227,8 +228,7 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
             stores[2][:, sl] = gd.T
             del h, hc, hs, mag, ph, gd
         for key, st in zip(("mag", "ph", "gd"), stores):
-            st.sort(axis=1)
-            out[key][:, c0:c1] = sorted_percentiles(st)
+            out[key][:, c0:c1] = row_percentiles(st)
         del stores, engine
     return Sweep(out["mag"], out["ph"], out["gd"], figs.result(), nblocks, tile)
 
