@@ -43,9 +43,10 @@ from service.tolerance.grids import Grids
 from service.tolerance.sampling import Samples
 from service.tolerance.statistics import row_percentiles
 
-#: Default trials per chunk for up to REFERENCE_COLUMNS evaluated frequencies (speed only, never the numbers).
+#: Largest default chunk (trials processed at once; speed only, never the numbers).
 TILE_TRIALS = 1024
-REFERENCE_COLUMNS = 1024
+#: Working set of one chunk's complex response: the chunk's arrays stay in cache (measured fastest here).
+TILE_BYTES = 3 * 2**20
 MIN_TILE_TRIALS = 64
 #: Bytes of working memory per trial and evaluated frequency while a chunk is processed (measured, rounded up).
 WORK_BYTES_PER_POINT = 64
@@ -56,9 +57,10 @@ STORE_BUDGET_BYTES = 160 * 2**20
 
 
 def tile_trials(columns: int) -> int:
-    """Default chunk (trials processed at once) for ``columns`` evaluated frequencies."""
+    """Default chunk (trials processed at once) for ``columns`` evaluated frequencies: a power of two whose
+    complex response (16 bytes a point) fits :data:`TILE_BYTES`, within [MIN_TILE_TRIALS, TILE_TRIALS]."""
     t = TILE_TRIALS
-    while t > MIN_TILE_TRIALS and t * columns > TILE_TRIALS * REFERENCE_COLUMNS:
+    while t > MIN_TILE_TRIALS and 16 * t * columns > TILE_BYTES:
         t //= 2
     return t
 
