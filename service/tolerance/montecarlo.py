@@ -82,7 +82,7 @@ class Sweep:
     magnitude_db: np.ndarray     # (7, F) percentiles
     phase_deg: np.ndarray        # (7, F)
     group_delay_s: np.ndarray    # (7, F)
-    figures: TrialFigures
+    figures: TrialFigures | None
     blocks: int
     tile: int
 
@@ -148,7 +148,7 @@ def _phase_delay(hc: np.ndarray, hs: np.ndarray, f: np.ndarray, fs: np.ndarray, 
 
 def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, nominal: np.ndarray,
                 phase_nominal_rad: np.ndarray, *, memory_limit_bytes: int, chunk_trials: int | None = None,
-                store_budget_bytes: int | None = None) -> Sweep:
+                store_budget_bytes: int | None = None, phase: bool = True, figures: bool = True) -> Sweep:
     """Sweep every trial; percentiles on the caller's grid and per-trial figures.
 
     Parameters
@@ -172,6 +172,12 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
         Trials processed at once (at least :data:`MIN_TILE_TRIALS`); None:
         :func:`tile_trials`.  Either is bounded by the memory limit; the
         numbers never depend on it.
+    phase : bool
+        Compute the phase and group-delay percentiles (else they are NaN).
+    figures : bool
+        Compute the per-trial figures (else ``Sweep.figures`` is None).  The
+        engine evaluates the same frequencies either way, so the percentiles
+        are the same bits whatever is asked.
 
     Returns
     -------
@@ -189,11 +195,12 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
     chunk = tile if chunk_trials is None else max(MIN_TILE_TRIALS, int(chunk_trials))
     chunk = min(chunk, max(MIN_TILE_TRIALS, memory_limit_bytes // 2 // (WORK_BYTES_PER_POINT * columns)))
     engine_limit = max(2**20, memory_limit_bytes // 4)
-    figs = _Figures(trials, grids)
-    out = {k: np.empty((7, nf)) for k in ("mag", "ph", "gd")}
+    figs = _Figures(trials, grids) if figures else None
+    out = {k: np.full((7, nf), np.nan) for k in ("mag", "ph", "gd")}
+    keys = ("mag", "ph", "gd") if phase else ("mag",)
 
     nx = grids.extra_hz.size
-    if not single:
+    if not single and figures:
         engine = _Engine(circuit, samples, grids.evaluation_hz(shifted=False), engine_limit)
         for t0 in range(0, trials, chunk):
             check_deadline("tolerance.montecarlo")
@@ -210,29 +217,34 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
         else:
             cols = np.concatenate([f[c0:c1], fs[c0:c1]])
         engine = _Engine(circuit, samples, cols, engine_limit)
-        stores = [np.empty((w, trials), dtype=np.float32) for _ in range(3)]
+        stores = [np.empty((w, trials), dtype=np.float32) for _ in keys]
         for t0 in range(0, trials, chunk):
             check_deadline("tolerance.montecarlo")
             t1 = min(trials, t0 + chunk)
             sl = slice(t0, t1)
             h = engine(t0, t1)
             if single:
-                g = fig.gain_db(h[:, :nf + nx])
-                figs.add(sl, g[:, grids.order])
-                mag = g[:, :nf]
                 hc, hs = h[:, :nf], h[:, nf + nx:]
+                if figs is not None:
+                    g = fig.gain_db(h[:, :nf + nx])
+                    figs.add(sl, g[:, grids.order])
+                    mag = g[:, :nf]
+                else:
+                    mag = fig.gain_db(hc)                # element by element: the same bits as above
             else:
                 hc, hs = h[:, :w], h[:, w:]
                 mag = fig.gain_db(hc)
-            ph, gd = _phase_delay(hc, hs, f[c0:c1], fs[c0:c1], nominal[c0:c1], phase_nominal_rad[c0:c1])
             stores[0][:, sl] = mag.T
-            stores[1][:, sl] = ph.T
-            stores[2][:, sl] = gd.T
-            del h, hc, hs, mag, ph, gd
-        for key, st in zip(("mag", "ph", "gd"), stores):
+            if phase:
+                ph, gd = _phase_delay(hc, hs, f[c0:c1], fs[c0:c1], nominal[c0:c1], phase_nominal_rad[c0:c1])
+                stores[1][:, sl] = ph.T
+                stores[2][:, sl] = gd.T
+                del ph, gd
+            del h, hc, hs, mag
+        for key, st in zip(keys, stores):
             out[key][:, c0:c1] = row_percentiles(st)
         del stores, engine
-    return Sweep(out["mag"], out["ph"], out["gd"], figs.result(), nblocks, tile)
+    return Sweep(out["mag"], out["ph"], out["gd"], None if figs is None else figs.result(), nblocks, tile)
 
 
 __all__ = ["monte_carlo", "Sweep", "TrialFigures", "tile_trials", "TILE_TRIALS"]
