@@ -38,7 +38,8 @@ computation, encoding), top entries by cumulative and by own time.
 
 ``--compare BEFORE`` times two commits in one run: both are extracted with
 ``git archive`` (the AFTER tree whole, the BEFORE tree the same except
-``service/circuit`` and ``service/tolerance`` taken from BEFORE), and fresh
+``service/circuit``, ``service/tolerance`` and ``service/workflows/tolerancing.py``
+taken from BEFORE), and fresh
 processes of each alternate, round by round, with ``OPENBLAS_NUM_THREADS=1``.
 It prints each side's wall and CPU times and the per-round ratios before/after.
 
@@ -156,7 +157,8 @@ def compare(before: str, after: str, rounds: int, repeat: int, trials: int, mask
     cmd = [sys.executable, os.path.abspath(__file__)]
     env = dict(os.environ, OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1")
     with tempfile.TemporaryDirectory(prefix="bench-compare-") as tmp:
-        tb, ta = extract_trees(before, after, tmp)
+        tb, ta = extract_trees(before, after, tmp, packages=("service/circuit", "service/tolerance",
+                                                              "service/workflows/tolerancing.py"))
         res = {"before": {"wall": [], "cpu": [], "peak": []}, "after": {"wall": [], "cpu": [], "peak": []}}
         ratio = {"wall": [], "cpu": []}
         for r in range(rounds):
