@@ -127,13 +127,15 @@ SMALL_ANGLE = 1e-2
 
 
 def _phase_delay(hc: np.ndarray, hs: np.ndarray, f: np.ndarray, fs: np.ndarray, nominal: np.ndarray,
-                 phase_nominal: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Phase (degrees, float32) and group delay (s, float64), each (Tc, Fb); see the module notes."""
+                 phase_nominal: np.ndarray, ph_out: np.ndarray, gd_out: np.ndarray) -> None:
+    """Phase (degrees) and group delay (s) of a chunk (Tc, Fb) into float32 ``ph_out``, ``gd_out`` (Tc, Fb);
+    see the module notes.  The delay is computed in float64 and rounded once, on the way out."""
     q32 = np.multiply(hc, np.conj(nominal)[None, :], out=np.empty(hc.shape, dtype=np.complex64))
     ph = np.angle(q32)                           # the product in float64, rounded to complex64 on output
     del q32
     ph += phase_nominal.astype(np.float32)[None, :]
-    ph *= np.float32(180.0 / np.pi)
+    np.multiply(ph, np.float32(180.0 / np.pi), out=ph_out)
+    del ph
     q = np.conjugate(hc)
     np.multiply(hs, q, out=q)                    # H(f(1+d)) conj(H(f))
     x, y = q.real, q.imag
@@ -142,8 +144,7 @@ def _phase_delay(hc: np.ndarray, hs: np.ndarray, f: np.ndarray, fs: np.ndarray, 
     if not (gd.max() <= SMALL_ANGLE and gd.min() >= -SMALL_ANGLE and x.min() > 0):
         big = (np.abs(gd) > SMALL_ANGLE) | (x <= 0) | np.isnan(gd)
         gd[big] = np.arctan2(y[big], x[big])
-    gd *= (-1.0 / (2.0 * np.pi * (fs - f)))[None, :]
-    return ph, gd
+    np.multiply(gd, (-1.0 / (2.0 * np.pi * (fs - f)))[None, :], out=gd_out, casting="same_kind")
 
 
 def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, nominal: np.ndarray,
@@ -236,10 +237,8 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
                 mag = fig.gain_db(hc)
             stores[0][:, sl] = mag.T
             if phase:
-                ph, gd = _phase_delay(hc, hs, f[c0:c1], fs[c0:c1], nominal[c0:c1], phase_nominal_rad[c0:c1])
-                stores[1][:, sl] = ph.T
-                stores[2][:, sl] = gd.T
-                del ph, gd
+                _phase_delay(hc, hs, f[c0:c1], fs[c0:c1], nominal[c0:c1], phase_nominal_rad[c0:c1],
+                             stores[1][:, sl].T, stores[2][:, sl].T)
             del h, hc, hs, mag
         for key, st in zip(keys, stores):
             out[key][:, c0:c1] = row_percentiles(st)
