@@ -360,6 +360,7 @@ def http_bench(trials: int, rounds: int, requests: int, spice_trials: int, maske
               f"{', ROLLOFF_MAX_WORK=' + max_work if max_work else ''}): reference design, {trials} trials x "
               f"{F_POINTS} frequencies, Gaussian{', verified against the mask' if masked else ''}; "
               f"body {len(body) / 1024:.0f} KiB; {load()}")
+        idle = svc.peak_rss_mib()
         dt, data = svc.post(body)                      # warm-up (first request of the worker)
         reply = json.loads(data)
         assert reply["trial_count"] == trials and len(reply["frequency_hz"]) == F_POINTS
@@ -383,8 +384,9 @@ def http_bench(trials: int, rounds: int, requests: int, spice_trials: int, maske
         print(f"HTTP request:        {stats(http_t)}")
         print(f"ngspice {spice_trials} trials{f' scaled x{scale:g}' if scale != 1 else ''}: {stats(spice_t)}")
         print(f"ratio ngspice / HTTP (per round, median of {requests} requests): {stats(ratios, 'x')}")
-        print(f"worker peak RSS {svc.peak_rss_mib():.0f} MiB, added by the timed requests "
-              f"{svc.peak_rss_mib() - rss0:.0f} MiB (after the warm-up request: {rss0:.0f} MiB)  ({load()})")
+        peak = svc.peak_rss_mib()
+        print(f"worker peak RSS {peak:.0f} MiB: added by the requests {peak - idle:.0f} MiB over the idle worker "
+              f"({idle:.0f} MiB), by the timed ones {peak - rss0:.0f} MiB over the warm-up's peak  ({load()})")
     finally:
         svc.stop()
 
