@@ -16,8 +16,9 @@ Run:
 In-process (default): wall and CPU time (``time.process_time``) of the whole
 ``run_tolerance`` (percentiles, metrics, sensitivity, worst case, yield) over
 repeats after a warm-up (median, IQR, min, max), the peak added RSS of a fresh
-process with one BLAS thread (``ru_maxrss`` after the run minus before it,
-after a warm-up), the peak traced memory (tracemalloc), and ngspice's wall time
+process with one BLAS thread (after a warm-up: the peak resident set during the
+run, VmHWM reset before it, minus the resident set before it), the peak traced
+memory (tracemalloc), and ngspice's wall time
 for ``--spice-trials`` trials of a ``.control`` loop that alters every part and
 reruns ``ac`` (scaled linearly to ``--trials``), with the ratio.
 
@@ -183,16 +184,32 @@ def compare(before: str, after: str, rounds: int, repeat: int, trials: int, mask
             print(f"  ratio before/after, {k:4s} (per round): {stats(ratio[k], 'x')}")
 
 
+def _status_mib(pid, key: str) -> float:
+    with open(f"/proc/{pid}/status") as fh:
+        for line in fh:
+            if line.startswith(key + ":"):
+                return int(line.split()[1]) / 1024
+    return float("nan")
+
+
 def child(trials: int, masked: bool) -> None:
-    """Fresh process: one warm-up, one timed run; print JSON with wall time and ru_maxrss before/after."""
+    """Fresh process: one warm-up, one timed run; print JSON with wall time, the resident set before the run and
+    its peak during the run (VmHWM, reset after the warm-up through /proc/self/clear_refs)."""
     run = InProcess(masked)
     run(100)
-    base = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    try:
+        with open("/proc/self/clear_refs", "w") as fh:
+            fh.write("5")                       # resets the peak resident set to the current one
+    except OSError:
+        pass
+    base = _status_mib("self", "VmRSS")
     t0, c0 = time.perf_counter(), time.process_time()
     run(trials)
     dt, dc = time.perf_counter() - t0, time.process_time() - c0
-    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
-    print(json.dumps({"wall_s": dt, "cpu_s": dc, "maxrss_mib": peak / 1024, "before_mib": base / 1024}))
+    peak = _status_mib("self", "VmHWM")
+    if peak != peak:
+        peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    print(json.dumps({"wall_s": dt, "cpu_s": dc, "maxrss_mib": peak, "before_mib": base}))
 
 
 def fresh(trials: int, masked: bool) -> dict:
@@ -316,11 +333,7 @@ class Service:
 
     def peak_rss_mib(self) -> float:
         """VmHWM (peak resident set) of the worker, MiB."""
-        with open(f"/proc/{self.worker_pid()}/status") as fh:
-            for line in fh:
-                if line.startswith("VmHWM:"):
-                    return int(line.split()[1]) / 1024
-        return float("nan")
+        return _status_mib(self.worker_pid(), "VmHWM")
 
     def post(self, body: bytes) -> tuple[float, bytes]:
         """Wall time (s) from sending the request to the reply's last byte, and the reply."""
@@ -475,8 +488,8 @@ def main() -> None:
     rs = [fresh(a.trials, a.mask) for _ in range(3)]
     print(f"  fresh process (OPENBLAS_NUM_THREADS=1): wall {stats([r['wall_s'] for r in rs])}; "
           f"CPU {stats([r['cpu_s'] for r in rs])}; peak RSS added by the run "
-          f"{max(r['maxrss_mib'] - r['before_mib'] for r in rs):.0f} MiB (after import and warm-up "
-          f"{min(r['before_mib'] for r in rs):.0f} MiB)")
+          f"{max(r['maxrss_mib'] - r['before_mib'] for r in rs):.0f} MiB (resident before the run, after import "
+          f"and a warm-up: {min(r['before_mib'] for r in rs):.0f} MiB)")
     if a.big:
         rs = [fresh(a.big, a.mask) for _ in range(2)]
         print(f"{a.big} trials, fresh process: wall {stats([r['wall_s'] for r in rs])}; peak RSS added "
