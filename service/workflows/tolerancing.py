@@ -38,12 +38,16 @@ class ToleranceRequest:
     mask: Mask | None = None
     sensitivity_frequencies_hz: tuple[float, ...] = ()
     include_trials: int = 0
-    figure: bool = False
     reply: str = "json"
 
+    @property
+    def figure(self) -> bool:
+        """The reply is the SVG figure (its drawing is part of the cost)."""
+        return self.reply == "svg"
+
     def outputs(self) -> Outputs:
-        """What the reply shows, so what the run computes: everything for ``json``; the percentile table for
-        ``csv``; the magnitude envelope and the yield for ``svg``."""
+        """What the reply (``json``, ``csv`` or ``svg``) shows, so what the run computes: everything for
+        ``json``; the percentile table for ``csv``; the magnitude envelope and the yield for ``svg``."""
         if self.reply == "csv":
             return Outputs(figures=False, yield_=False, sensitivity=False)
         if self.reply == "svg":
