@@ -75,10 +75,12 @@ def _int(value, name: str, lo: int) -> int:
     return int(value)
 
 
-def _response_type(response: str | None, f: np.ndarray, g: np.ndarray) -> ResponseType:
+def _response_type(response: str | None, circuit, dense: np.ndarray) -> ResponseType:
+    """The given response type, or the one the nominal response on ``dense`` (Hz) shows (evaluated only then)."""
     try:
         return ResponseType(response)
     except ValueError:
+        g = fig.gain_db(ac_response(circuit, dense, output="out"))[0]
         return infer_response_type(float(g[0]), float(g[-1]), float(np.max(g)))
 
 
@@ -185,8 +187,7 @@ def run_tolerance(plans: list[StagePlan], *, draw_order: Sequence[str] = (), res
     pos = f[f > 0]
     lo, hi = (pos.min(), pos.max()) if pos.size else (1.0, 1e6)
     dense = np.unique(np.concatenate([np.geomspace(lo, hi, NOMINAL_POINTS), f]))
-    g_dense = fig.gain_db(ac_response(circuit, dense, output="out"))[0]
-    response = _response_type(response, dense, g_dense)
+    response = _response_type(response, circuit, dense)
     if sensitivity_frequencies_hz is None or len(sensitivity_frequencies_hz) == 0:
         sens_f = np.array(sorted({e for s in (criteria.limits if criteria else ()) for e in (s.start_hz, s.stop_hz)
                                   if math.isfinite(e) and e > 0}))
