@@ -75,3 +75,21 @@ def test_a_reply_without_some_parts_computes_the_same_numbers(butter8_sk, lowpas
     assert figure.yield_ == full.yield_
     assert np.isnan(figure.phase_deg).all() and np.isnan(figure.group_delay_s).all()
     assert figure.svg().lstrip().startswith(b"<?xml")
+
+
+def test_reply_lists_pass_through_and_other_values_are_serialized(butter8_sk):
+    # the reply's number lists are Python floats already (ndarray.tolist) and pass through the schema as they are;
+    # anything else (numpy scalars, ints) is serialized item by item, as a List(Float) would
+    from service.api.schemas.tolerance import ToleranceSchema
+
+    r = run_tolerance(butter8_sk, trials=50, frequencies_hz=GRID[::25])
+    d = r.as_dict()
+    assert all(type(x) is float for x in d["frequency_hz"] + d["magnitude_db_percentiles"]["p50"])
+    out = ToleranceSchema().dump(d)
+    assert out["frequency_hz"] is d["frequency_hz"]
+    assert out["magnitude_db_percentiles"]["p50"] == d["magnitude_db_percentiles"]["p50"]
+    mixed = dict(d, frequency_hz=[np.float64(1.5), 2], nominal_magnitude_db=np.array([0.25, -3.0]).tolist())
+    mixed["phase_deg_percentiles"] = {"min": [np.float32(1.0), 3]}
+    out = ToleranceSchema().dump(mixed)
+    assert out["frequency_hz"] == [1.5, 2.0] and all(type(x) is float for x in out["frequency_hz"])
+    assert out["phase_deg_percentiles"] == {"min": [1.0, 3.0]}
