@@ -1,10 +1,15 @@
 # rolloff: analog filter design service
-FROM python:3.11-slim
+# Base: any Debian-based image with python3 (3.11) and the venv module. The default is the
+# official Python image; where no registry is reachable, build one from Debian's packages with
+# scripts/base-image and pass --build-arg BASE_IMAGE=localhost/rolloff-base:bookworm.
+ARG BASE_IMAGE=docker.io/library/python:3.11-slim-bookworm
+FROM ${BASE_IMAGE}
 
 ENV PYTHONDONTWRITEBYTECODE=1 \
     PYTHONUNBUFFERED=1 \
     PIP_NO_CACHE_DIR=1 \
     PIP_DISABLE_PIP_VERSION_CHECK=1 \
+    PATH=/opt/rolloff/bin:$PATH \
     MPLCONFIGDIR=/tmp/matplotlib \
     PROMETHEUS_MULTIPROC_DIR=/tmp/rolloff-metrics \
     ROLLOFF_HOST=0.0.0.0 \
@@ -13,24 +18,36 @@ ENV PYTHONDONTWRITEBYTECODE=1 \
 
 WORKDIR /app
 
-# Dependencies first, so that a source change does not reinstall them.
-COPY requirements.lock /app/requirements.lock
-RUN pip install --no-cache-dir -r /app/requirements.lock
+# Dependencies first, so that a source change does not reinstall them: every package pinned and
+# hash-checked (requirements.lock; the build tools in requirements-build.lock), in a virtual
+# environment of its own (a distribution's python3 is externally managed, PEP 668).
+# Behind a TLS-inspecting proxy, hand the build its CA bundle as a secret (never stored in the
+# image): `--secret id=pip-ca,src=/etc/ssl/certs/ca-certificates.crt`.
+COPY requirements.lock requirements-build.lock /app/
+RUN --mount=type=secret,id=pip-ca \
+    if [ -f /run/secrets/pip-ca ]; then export PIP_CERT=/run/secrets/pip-ca; fi \
+    && python3 -m venv /opt/rolloff \
+    && /opt/rolloff/bin/pip install --no-cache-dir --require-hashes \
+       -r /app/requirements-build.lock -r /app/requirements.lock
 
 COPY pyproject.toml README.md /app/
 COPY service /app/service
-RUN pip install --no-cache-dir --no-deps /app \
-    && useradd --system --uid 10001 --no-create-home --shell /usr/sbin/nologin rolloff
+RUN /opt/rolloff/bin/pip install --no-cache-dir --no-deps --no-build-isolation /app \
+    && groupadd --system --gid 10001 rolloff \
+    && useradd --system --uid 10001 --gid 10001 --no-create-home --shell /usr/sbin/nologin rolloff
 
 USER 10001
 EXPOSE 8000
 
-# The service's own health endpoint, checked with the Python already in the image.
+# Kept by Docker and by `podman build --format docker`; OCI images (podman's and buildah's
+# default) drop HEALTHCHECK: there the orchestrator's probes on /healthz and /readyz do this job
+# (deploy/kubernetes/deployment.yaml).
 HEALTHCHECK --interval=30s --timeout=5s --start-period=20s --retries=3 \
-    CMD ["python", "-c", "import sys, urllib.request; sys.exit(0 if urllib.request.urlopen('http://127.0.0.1:8000/healthz', timeout=4).status == 200 else 1)"]
+    CMD ["python", "-c", "import os, sys, urllib.request; sys.exit(0 if urllib.request.urlopen('http://127.0.0.1:%s/healthz' % os.environ.get('ROLLOFF_PORT', '8000'), timeout=4).status == 200 else 1)"]
 
 # Run read-only: `docker run --read-only --tmpfs /tmp ...`. Every write goes to /tmp: matplotlib's
 # cache (MPLCONFIGDIR), the metrics files (PROMETHEUS_MULTIPROC_DIR, emptied at start by the gunicorn
 # config) and gunicorn's worker heartbeat files (worker_tmp_dir); no control socket is made.
-# Workers, threads, timeouts and limits come from ROLLOFF_* variables (see README).
+# Workers, threads, timeouts and limits come from ROLLOFF_* variables (see README). SIGTERM drains
+# in-flight requests for ROLLOFF_GRACEFUL_TIMEOUT_S seconds (give `docker stop -t` more than that).
 CMD ["sh", "-c", "mkdir -p \"$PROMETHEUS_MULTIPROC_DIR\" && exec gunicorn --config python:service.gunicorn_conf service.wsgi:app"]

@@ -8,23 +8,54 @@ variable a caller hit. Nothing else in the project reads ``os.environ``.
 
 from __future__ import annotations
 
+import difflib
 import os
+import sys
 from dataclasses import dataclass, field, fields, replace
-from typing import Any, Callable, Mapping
+from typing import Any, Callable, Mapping, TextIO
+
+PREFIX = "ROLLOFF_"
+TEST_PREFIX = "ROLLOFF_TEST_"
 
 
-@dataclass(frozen=True)
-class Setting:
-    """One configurable value: its attribute name, variable, parser, default and meaning."""
+class ConfigError(ValueError):
+    """A configuration variable is set to a value its setting does not allow.
 
-    name: str
-    env: str
-    parse: Callable[[str], Any]
-    default: Any
-    doc: str
-    limit: bool = False  # listed under ``limits`` in the catalog
+    Parameters
+    ----------
+    variable : str
+        The environment variable (``"ROLLOFF_WORKERS"``).
+    value : str
+        The text it was set to.
+    allowed : str
+        What the setting accepts (``"a whole number from 1 up"``).
+    """
+
+    def __init__(self, variable: str, value: str, allowed: str):
+        self.variable = variable
+        self.value = value
+        self.allowed = allowed
+        super().__init__(f"{variable}={value!r} is not valid: expected {allowed}")
 
 
+def _allows(description: str) -> Callable[[Callable[[str], Any]], Callable[[str], Any]]:
+    """Attach the text naming what a parser accepts (shown when a value is refused)."""
+
+    def mark(parse: Callable[[str], Any]) -> Callable[[str], Any]:
+        parse.allowed = description  # type: ignore[attr-defined]
+        return parse
+
+    return mark
+
+
+def _whole_number(text: str) -> int:
+    text = text.strip()
+    if not text or not text.lstrip("+-").isdigit():  # int() would also take "1_000" and " 1 "
+        raise ValueError(text)
+    return int(text)
+
+
+@_allows("true or false (also 1/0, yes/no, on/off)")
 def _bool(text: str) -> bool:
     value = text.strip().lower()
     if value in ("1", "true", "yes", "on"):
@@ -34,33 +65,100 @@ def _bool(text: str) -> bool:
     raise ValueError(f"expected a boolean (true/false), got {text!r}")
 
 
+@_allows("a comma-separated list")
 def _csv(text: str) -> tuple[str, ...]:
     return tuple(item.strip() for item in text.split(",") if item.strip())
 
 
+@_allows("a whole number from 1 up")
 def _positive_int(text: str) -> int:
-    value = int(text)
+    value = _whole_number(text)
     if value < 1:
         raise ValueError(f"expected a positive integer, got {text!r}")
     return value
 
 
+@_allows("a whole number from 0 up")
+def _count(text: str) -> int:
+    value = _whole_number(text)
+    if value < 0:
+        raise ValueError(f"expected a whole number from 0 up, got {text!r}")
+    return value
+
+
+@_allows("a TCP port, a whole number from 1 to 65535")
+def _port(text: str) -> int:
+    value = _whole_number(text)
+    if not 1 <= value <= 65535:
+        raise ValueError(f"expected a port from 1 to 65535, got {text!r}")
+    return value
+
+
+@_allows("a host name or IP address")
+def _host(text: str) -> str:
+    value = text.strip()
+    if not value or any(c.isspace() for c in value):
+        raise ValueError(f"expected a host name or address, got {text!r}")
+    return value
+
+
+LOG_LEVELS = ("debug", "info", "warning", "error", "critical")
+
+
+@_allows("one of " + ", ".join(LOG_LEVELS))
+def _log_level(text: str) -> str:
+    value = text.strip().lower()
+    if value not in LOG_LEVELS:
+        raise ValueError(f"expected one of {', '.join(LOG_LEVELS)}, got {text!r}")
+    return value
+
+
+@_allows("a file path (or empty)")
+def _path(text: str) -> str:
+    return text.strip()
+
+
+@dataclass(frozen=True)
+class Setting:
+    """One configurable value: its attribute name, variable, parser, default and meaning.
+
+    ``allowed`` names what the variable accepts, for the message that refuses a
+    value; when omitted it is taken from the parser (``parse.allowed``).
+    """
+
+    name: str
+    env: str
+    parse: Callable[[str], Any]
+    default: Any
+    doc: str
+    limit: bool = False  # listed under ``limits`` in the catalog
+    allowed: str | None = None
+
+    def read(self, raw: str) -> Any:
+        """Parse ``raw``; raise :class:`ConfigError` naming the variable, the value and what is allowed."""
+        try:
+            return self.parse(raw)
+        except (ValueError, TypeError):
+            allowed = self.allowed or getattr(self.parse, "allowed", None) or "a valid value"
+            raise ConfigError(self.env, raw, allowed) from None
+
+
 MIB = 1024 * 1024
 
 SETTINGS: tuple[Setting, ...] = (
-    Setting("host", "ROLLOFF_HOST", str, "127.0.0.1", "Address `rolloff serve` binds to."),
-    Setting("port", "ROLLOFF_PORT", _positive_int, 8000, "Port `rolloff serve` binds to."),
+    Setting("host", "ROLLOFF_HOST", _host, "127.0.0.1", "Address `rolloff serve` binds to."),
+    Setting("port", "ROLLOFF_PORT", _port, 8000, "Port `rolloff serve` binds to."),
     Setting("workers", "ROLLOFF_WORKERS", _positive_int, 2, "gunicorn worker processes."),
     Setting("threads", "ROLLOFF_THREADS", _positive_int, 16, "Threads per gunicorn worker (gthread): requests a worker holds at once, computing, queued or reading."),
     Setting("timeout_s", "ROLLOFF_TIMEOUT_S", _positive_int, 30,
             "gunicorn worker timeout: a worker silent this long is killed and replaced."),
     Setting("graceful_timeout_s", "ROLLOFF_GRACEFUL_TIMEOUT_S", _positive_int, 20,
             "On SIGTERM, time in-flight requests get to finish before workers are stopped."),
-    Setting("max_requests", "ROLLOFF_MAX_REQUESTS", int, 5000,
+    Setting("max_requests", "ROLLOFF_MAX_REQUESTS", _count, 5000,
             "Requests after which a worker is recycled (0: never)."),
-    Setting("max_requests_jitter", "ROLLOFF_MAX_REQUESTS_JITTER", int, 500,
+    Setting("max_requests_jitter", "ROLLOFF_MAX_REQUESTS_JITTER", _count, 500,
             "Random spread added to max_requests so workers do not recycle together."),
-    Setting("log_level", "ROLLOFF_LOG_LEVEL", str, "info", "Log level of the service logs on stderr."),
+    Setting("log_level", "ROLLOFF_LOG_LEVEL", _log_level, "info", "Log level of the service logs on stderr."),
     Setting("max_body_bytes", "ROLLOFF_MAX_BODY_BYTES", _positive_int, MIB,
             "Largest request body accepted (bytes); larger bodies get 413.", limit=True),
     Setting("max_json_depth", "ROLLOFF_MAX_JSON_DEPTH", _positive_int, 32,
@@ -82,16 +180,16 @@ SETTINGS: tuple[Setting, ...] = (
             "Peak working memory the circuit engine may use for one batched analysis.", limit=True),
     Setting("api_keys", "ROLLOFF_API_KEYS", _csv, (),
             "Comma-separated API keys; when set (or a keys file is), /v1 needs `Authorization: Bearer <key>`."),
-    Setting("api_keys_file", "ROLLOFF_API_KEYS_FILE", str, "",
+    Setting("api_keys_file", "ROLLOFF_API_KEYS_FILE", _path, "",
             "File with one API key per line (blank lines and # comments ignored)."),
     Setting("cors_origins", "ROLLOFF_CORS_ORIGINS", _csv, (),
             "Comma-separated origins allowed to call /v1 from a browser (none by default)."),
-    Setting("metrics_dir", "PROMETHEUS_MULTIPROC_DIR", str, "",
+    Setting("metrics_dir", "PROMETHEUS_MULTIPROC_DIR", _path, "",
             "Folder for multi-process metrics under gunicorn (set by `rolloff serve`)."),
     Setting("request_deadline_s", "ROLLOFF_REQUEST_DEADLINE_S", _positive_int, 10, "Time limit of one request from the end of its body to the end of its computation (queueing included); past it: 503 with Retry-After.", limit=True),
     Setting("body_timeout_s", "ROLLOFF_BODY_TIMEOUT_S", _positive_int, 8, "Time a client gets to send a request's headers, and then its body; slower clients get 408.", limit=True),
     Setting("compute_slots", "ROLLOFF_COMPUTE_SLOTS", _positive_int, 1, "Requests one worker process computes at once; health, readiness, metrics and the catalog never wait for a slot."),
-    Setting("compute_queue", "ROLLOFF_COMPUTE_QUEUE", int, 8, "Requests one worker process lets wait for a compute slot; more get 503 with Retry-After at once."),
+    Setting("compute_queue", "ROLLOFF_COMPUTE_QUEUE", _count, 8, "Requests one worker process lets wait for a compute slot; more get 503 with Retry-After at once."),
 )
 
 
@@ -132,9 +230,9 @@ class Settings:
 
         Raises
         ------
-        ValueError
-            When a variable is set to something its parser rejects; the message
-            names the variable.
+        ConfigError
+            (a ``ValueError``) when a variable is set to something its setting
+            does not accept; it names the variable, the value and what is allowed.
         """
         environ = os.environ if environ is None else environ
         values = {}
@@ -142,10 +240,7 @@ class Settings:
             raw = environ.get(s.env)
             if raw is None:
                 continue
-            try:
-                values[s.name] = s.parse(raw)
-            except ValueError as exc:
-                raise ValueError(f"{s.env}: {exc}") from None
+            values[s.name] = s.read(raw)
         return cls(**values)
 
     def override(self, **changes: Any) -> "Settings":
@@ -170,3 +265,63 @@ def setting_env(name: str) -> str:
         if s.name == name:
             return s.env
     raise KeyError(name)
+
+
+def unknown_variables(environ: Mapping[str, str] | None = None) -> list[str]:
+    """``ROLLOFF_*`` variables set in ``environ`` that name no setting, sorted.
+
+    ``ROLLOFF_TEST_*`` variables belong to the test suite (e.g. ``ROLLOFF_TEST_PORTS``) and are
+    not settings of the service: they are not listed.
+    """
+    environ = os.environ if environ is None else environ
+    known = {s.env for s in SETTINGS}
+    return sorted(name for name in environ
+                  if name.startswith(PREFIX) and not name.startswith(TEST_PREFIX) and name not in known)
+
+
+def unknown_variables_warning(environ: Mapping[str, str] | None = None) -> str | None:
+    """One line naming every unknown ``ROLLOFF_*`` variable (with the closest setting), or None."""
+    unknown = unknown_variables(environ)
+    if not unknown:
+        return None
+    known = [s.env for s in SETTINGS if s.env.startswith(PREFIX)]
+    named = []
+    for name in unknown:
+        close = difflib.get_close_matches(name, known, n=1, cutoff=0.8)
+        named.append(f"{name} (did you mean {close[0]}?)" if close else name)
+    return f"rolloff: warning: unknown settings ignored: {', '.join(named)}"
+
+
+def load_or_exit(environ: Mapping[str, str] | None = None, *, warn: bool = True,
+                 stream: TextIO | None = None) -> Settings:
+    """The settings of a starting process; on an invalid value, one line on stderr and exit status 2.
+
+    Used where a process starts (``rolloff serve``, the gunicorn master reading
+    ``service/gunicorn_conf.py``, the WSGI module), so that a misconfigured
+    replica stops at once with a message an operator can act on and no traceback.
+
+    Parameters
+    ----------
+    environ : mapping, optional
+        Default ``os.environ``.
+    warn : bool
+        Also write one warning line listing unknown ``ROLLOFF_*`` variables.
+    stream : text stream, optional
+        Where the lines go (default ``sys.stderr``).
+
+    Raises
+    ------
+    SystemExit
+        With status 2 when a setting is invalid.
+    """
+    stream = sys.stderr if stream is None else stream
+    try:
+        settings = Settings.from_env(environ)
+    except ConfigError as exc:
+        print(f"rolloff: invalid configuration: {exc}", file=stream, flush=True)
+        raise SystemExit(2) from None
+    if warn:
+        line = unknown_variables_warning(environ)
+        if line:
+            print(line, file=stream, flush=True)
+    return settings

@@ -26,9 +26,10 @@ import glob
 import os
 import sys
 
-from service.config import Settings
+from service.config import load_or_exit
 
-_settings = Settings.from_env()
+# An invalid ROLLOFF_* value stops the master here: one line on stderr, exit status 2, no traceback.
+_settings = load_or_exit()
 
 bind = f"{_settings.host}:{_settings.port}"
 workers = _settings.workers

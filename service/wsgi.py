@@ -12,6 +12,7 @@ load holds the interpreter lock for seconds, during which that worker's
 import io
 
 from service.api.app import create_app
+from service.config import load_or_exit
 
 
 def warm_up() -> None:
@@ -31,5 +32,8 @@ def warm_up() -> None:
     readiness_checks()
 
 
+# Checked before the app is built, so that a WSGI server loading this module with an invalid
+# ROLLOFF_* value stops with one line on stderr and exit status 2 (no traceback).
+load_or_exit(warn=False)
 app = create_app()
 warm_up()

@@ -398,9 +398,9 @@ def _scale_interval(family, n, sel, ap, as_, rp, rs, gd_norm):
     return a_lo, a_s
 
 
-def _minimum_order(family, sel, ap, as_, rp, rs, gd_norm, highest):
+def _minimum_order(family, sel, ap, as_, rp, rs, gd_norm, highest, least=1):
     step = 2 if family is Family.LINKWITZ_RILEY else 1
-    start = step
+    start = max(step, least + (least % step if step == 2 else 0))
     eq = _ORDER_EQUATIONS.get(family)
     if eq is not None and gd_norm is None:
         n_real = eq(sel, ap, as_)
@@ -411,7 +411,7 @@ def _minimum_order(family, sel, ap, as_, rp, rs, gd_norm, highest):
             raise InfeasibleRequirement(
                 f"the requirement needs a {family.value} order of {n_eq} (order equation: "
                 f"{n_real:.3f}), above the highest accepted order {highest}", field=None)
-        start = n_eq
+        start = max(n_eq, start)
     for n in range(start, highest + 1, step):
         lo, hi = _scale_interval(family, n, sel, ap, as_, rp, rs, gd_norm)
         if lo <= hi * (1.0 + 1e-12):
@@ -429,7 +429,7 @@ def _minimum_order(family, sel, ap, as_, rp, rs, gd_norm, highest):
 
 def design_by_requirement(response, family, passband_hz, stopband_hz, passband_ripple_db,
                           stopband_attenuation_db, *, excess="stopband", group_delay=None,
-                          section_order="ascending_q", max_order=20) -> Approximation:
+                          section_order="ascending_q", max_order=20, min_order=None) -> Approximation:
     """Design the lowest-order filter of ``family`` that meets a requirement.
 
     Parameters
@@ -451,6 +451,9 @@ def design_by_requirement(response, family, passband_hz, stopband_hz, passband_r
     section_order : {"ascending_q", "descending_q", "as_computed"}
     max_order : int
         Configured cap on the order.
+    min_order : int, optional
+        Lowest order to consider: the lowest order at or above it that meets the requirement is
+        designed (a higher order than needed leaves excess selectivity, placed by ``excess``).
 
     Returns
     -------
@@ -500,7 +503,11 @@ def design_by_requirement(response, family, passband_hz, stopband_hz, passband_r
             f"the transition band is {sel - 1.0:.2e} of the passband edge (equivalent lowpass "
             f"selectivity), below the {MIN_TRANSITION:g} that is computed accurately",
             field="stopband_hz")
-    n, a_lo, a_hi = _minimum_order(family, sel, ap, as_, rp, rs, gd_norm, highest)
+    least = 1 if min_order is None else int(min_order)
+    if least > highest:
+        raise InfeasibleRequirement(f"an order of at least {least} is above the highest accepted order {highest}",
+                                    field="order")
+    n, a_lo, a_hi = _minimum_order(family, sel, ap, as_, rp, rs, gd_norm, highest, least)
     if family is Family.ELLIPTIC:
         _check_elliptic_transition(n, rp, rs, InfeasibleRequirement)
     a = {Excess.STOPBAND: a_lo, Excess.PASSBAND: a_hi,

@@ -84,15 +84,22 @@ class RootSet:
     def cascade(cls, parts: list["RootSet"]) -> "RootSet":
         """The product of transfer functions (stages in cascade), trial by trial.
 
-        The pole columns of part ``i`` get ``pole_group`` ``i``.
+        The pole columns of part ``i`` get ``pole_group`` ``i``.  A part of one trial stands for every
+        trial (its roots repeated), so some stages may vary while the others keep their nominal values.
         """
         if not parts:
             raise CircuitError("a cascade needs at least one transfer function", field="stages")
-        if len({p.trials for p in parts}) > 1:
+        counts = {p.trials for p in parts} - {1}
+        if len(counts) > 1:
             raise CircuitError("the parts of a cascade differ in their number of trials", field="stages")
-        return cls(np.concatenate([p.zeros for p in parts], axis=1),
-                   np.concatenate([p.poles for p in parts], axis=1),
-                   np.sum([p.log_gain for p in parts], axis=0),
+        t = counts.pop() if counts else 1
+
+        def rows(a: np.ndarray) -> np.ndarray:
+            return np.broadcast_to(a, (t,) + a.shape[1:]) if a.shape[0] != t else a
+
+        return cls(np.concatenate([rows(p.zeros) for p in parts], axis=1),
+                   np.concatenate([rows(p.poles) for p in parts], axis=1),
+                   np.sum([rows(p.log_gain) for p in parts], axis=0),
                    np.concatenate([np.full(p.poles.shape[1], i, dtype=int) for i, p in enumerate(parts)]))
 
     def trial(self, index: int) -> "RootSet":

@@ -43,6 +43,9 @@ class StagePlan:
     opamps: list[OpAmpUse]
     notes: list = field(default_factory=list)
     predistortion: object = None
+    #: Other part choices for the stage, best first (each a full list of components with the same refs),
+    #: as the selection ranked them; empty for a stage read from a document.
+    alternatives: tuple = ()
 
     @property
     def refs(self) -> dict[str, str]:
@@ -235,6 +238,7 @@ def analyze(plans: list[StagePlan], *, response: str | None, family: str | None,
         output_peak_gain_db=float(20 * np.log10(out_level)),
     )
     design.plans = list(plans)
+    design.notes = list(notes or [])
     design.bom = _bom(plans)
     circuit = cascade_circuit(plans)
     lo = 10 ** math.floor(math.log10(grid[0]) + 1e-9)

@@ -25,6 +25,8 @@ from service.realization.errors import InvalidDocument
 
 #: Largest ratio between a stage's pole frequencies and its section's f0 (either way).
 POLE_SPAN = 1e3
+#: The likely cause of such a stage in an edited document.
+UNIT_HINT = "a value is probably in the wrong unit (ohm, F)"
 
 
 def check_stage_poles(plans, zpks, *, root: str = "design") -> None:
@@ -59,7 +61,7 @@ def check_stage_poles(plans, zpks, *, root: str = "design") -> None:
             where = "its transfer function cannot be computed (poles at 0 or infinity)"
         raise InvalidDocument(
             f"stage {k + 1}: with these part values ({values}) {where}, not within a factor {POLE_SPAN:g} of its "
-            f"section's f0_hz = {section.f0_hz:.6g}; a value is probably in the wrong unit (ohm, F)",
+            f"section's f0_hz = {section.f0_hz:.6g}; {UNIT_HINT}",
             field=f"{root}.stages[{k}].components" if root else f"stages[{k}].components")
 
 

@@ -132,6 +132,23 @@ def _fit_strategy(topology, section: Section, strategy: str, gain: float, *, for
     return section, strategy
 
 
+def _components(specs, allowed, refs: dict, values: dict, ideal: dict) -> list[Component]:
+    """The stage's parts with ``values`` (role -> ohm or F): tolerance, dielectric and part id from the
+    allowed value each is (none for a value not among them), and whether it lies in the allowed range."""
+    comps = []
+    for p in specs:
+        a = allowed[p.kind]
+        v = float(values[p.role])
+        j = int(a.index_of(np.array([v]))[0])
+        listed = bool(np.isclose(a.values[j], v, rtol=1e-9, atol=0.0))
+        comps.append(Component(
+            ref=refs[p.role], role=p.role, kind=p.kind, value=v, ideal=ideal[p.role], tolerance=float(a.tolerance[j]),
+            dielectric=a.dielectric[j] if p.kind == "capacitor" else None,
+            part_id=a.part_id[j] if listed else None,
+            in_range=bool(a.low * (1 - 1e-9) <= v <= a.high * (1 + 1e-9))))
+    return comps
+
+
 def design_filter(approximation, *, topology: str | list[str] = "auto", strategy: str | list[str] | None = None,
                   parts: PartsPolicy | dict | None = None, opamp: OpAmpSpec | dict | None = None,
                   exact: bool = False, impedance_ohm: float | None = None, section_order: str = "ascending_q",
@@ -255,17 +272,18 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
     for k, (stage_sec, (t, s)) in enumerate(zip(stage_secs, picks)):
         sel = select_values(t, stage_sec, s, allowed, exact=exact, impedance_ohm=impedance_ohm,
                             field=f"stages[{k}]", opamp_model=model)
-        comps = []
+        refs = {}
         for p in t.parts(stage_sec, s):
             counters[p.kind] += 1
-            a = allowed[p.kind]
-            idx = sel.index[p.role]
-            j = idx if idx is not None else int(a.index_of(np.array([sel.values[p.role]]))[0])
-            comps.append(Component(
-                ref=f"{prefix[p.kind]}{counters[p.kind]}", role=p.role, kind=p.kind, value=sel.values[p.role],
-                ideal=sel.ideal[p.role], tolerance=float(a.tolerance[j]),
-                dielectric=a.dielectric[j] if p.kind == "capacitor" else None,
-                part_id=a.part_id[idx] if idx is not None else None, in_range=sel.in_range[p.role]))
+            refs[p.role] = f"{prefix[p.kind]}{counters[p.kind]}"
+        comps = _components(t.parts(stage_sec, s), allowed, refs, sel.values, sel.ideal)
+        alternatives = ()
+        if sel.alternatives:
+            k_alt = len(next(iter(sel.alternatives.values())))
+            alternatives = tuple(
+                _components(t.parts(stage_sec, s), allowed, refs,
+                            {role: float(v[i]) for role, v in sel.alternatives.items()}, sel.ideal)
+                for i in range(k_alt))
         ops = []
         for role in t.opamp_roles(stage_sec, s):
             counters["opamp"] += 1
@@ -278,7 +296,7 @@ def design_filter(approximation, *, topology: str | list[str] = "auto", strategy
                                     rout_ohm=spec.rout_ohm, part_id=spec.part_id,
                                     **{k: getattr(spec, k) for k in FIGURES}))
         plans.append(StagePlan(section=stage_sec, topology=t, strategy=s, components=comps, opamps=ops,
-                               predistortion=sel.predistortion))
+                               predistortion=sel.predistortion, alternatives=alternatives))
 
     return analyze(plans, response=_enum_value(getattr(approximation, "response", None)),
                    family=_enum_value(getattr(approximation, "family", None)),

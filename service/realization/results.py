@@ -234,6 +234,8 @@ class Design:
         Largest gain from input to output (dB).
     plans : list of StagePlan
         What the stages were analysed from.
+    notes : list of DesignWarning
+        The cautions found before the analysis (kept for a re-analysis of changed parts).
     """
 
     response: str | None
@@ -249,3 +251,4 @@ class Design:
     overall_gain: float = 1.0
     output_peak_gain_db: float = 0.0
     plans: list = field(default_factory=list, repr=False, compare=False)
+    notes: list = field(default_factory=list, repr=False, compare=False)

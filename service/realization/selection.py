@@ -84,6 +84,8 @@ BEAM_REACH = 1.5
 BEAM_MOVE_WEIGHT = 0.01
 #: Combinations scored exactly with the op-amp macromodel.
 MODEL_CANDIDATES = 24
+#: Candidates a selection hands back besides its choice (:attr:`Selection.alternatives`).
+ALTERNATIVES_KEPT = 12
 #: Relative step (in log value) of the finite-difference sensitivities of the screen.
 FD_STEP = 1e-5
 #: Bounds of the weight of a zero-frequency error: a stopband's attenuation between two zeros moves
@@ -119,6 +121,9 @@ class Selection:
         The section the design equations were asked for (None: the target itself).
     combinations : int
         Combinations the joint search evaluated.
+    alternatives : dict of str to ndarray or None
+        Role -> values (K,) of the best :data:`ALTERNATIVES_KEPT` candidates by the same score, the
+        chosen one first: what a caller judging the whole filter (not the stage alone) may pick from.
     """
 
     values: dict
@@ -131,13 +136,17 @@ class Selection:
     predicted_macromodel: dict | None = None
     predistortion: Predistortion | None = None
     combinations: int = 0
+    alternatives: dict | None = None
 
 
-def _window(allowed: Allowed, center: float, width: int) -> np.ndarray:
-    """Up to ``width`` allowed values nearest ``center`` on a log scale, ascending."""
+def _window(allowed: Allowed, center: float, width: int, spread: bool = False) -> np.ndarray:
+    """Up to ``width`` allowed values nearest ``center`` on a log scale, ascending; with ``spread``, ``width``
+    values evenly spaced (by index, so by ratio in a series) over the whole allowed list instead."""
     v = allowed.values
     if v.size <= width:
         return v
+    if spread:
+        return v[np.unique(np.round(np.linspace(0, v.size - 1, width)).astype(int))]
     i = int(np.argmin(np.abs(np.log(v / center))))
     lo = max(0, min(i - width // 2, v.size - width))
     return v[lo:lo + width]
@@ -174,14 +183,14 @@ def _snap(allowed: Allowed, ideal: np.ndarray, exact: bool) -> tuple[np.ndarray,
     return np.where(finite, snapped, np.nan), in_range
 
 
-def _candidates(topology, section, strategy, allowed, free, fixed, specs, r_ref, exact, width):
+def _candidates(topology, section, strategy, allowed, free, fixed, specs, r_ref, exact, width, spread=False):
     """Every candidate of one resistor level: chosen values, ideal values, in-range mask, r_ref."""
     if free:
         w0 = 2 * np.pi * section.f0_hz
         axes = []
         for p in free:
             center = 1.0 / (w0 * r_ref) if p.kind == "capacitor" else r_ref
-            axes.append(_window(allowed[p.kind], center, width))
+            axes.append(_window(allowed[p.kind], center, width, spread))
         grids = np.meshgrid(*axes, indexing="ij")
         free_values = {p.role: g.ravel() for p, g in zip(free, grids)}
         n = free_values[free[0].role].size
@@ -232,20 +241,23 @@ def _cap_stage(topology, section, strategy, allowed, specs, free, fixed, r_pref,
     def finite_any(c):
         return np.logical_and.reduce([np.isfinite(c[1][p.role]) for p in specs]).any()
 
+    spread = False
     if not finite_any(cand) and free:
         # Strategies with a ratio limit (a unity-gain Sallen-Key needs C1/C2 >= 4 Q^2)
-        # may need capacitors far apart: widen the window to every allowed value.
+        # may need capacitors far apart: widen the window to the whole allowed list, spread evenly over it
+        # (a dense series such as E96 has more values than fit; the dependent parts adapt to the choice).
         wide = max(2, int(MAX_COMBINATIONS_WIDE ** (1.0 / len(free))))
         if wide > width:
-            width = wide
-            cand = _candidates(topology, section, strategy, allowed, free, fixed, specs, r_pref, exact, width)
+            width, spread = wide, True
+            cand = _candidates(topology, section, strategy, allowed, free, fixed, specs, r_pref, exact, width,
+                               spread)
     if not in_all(cand[2]).any() and "resistor" in allowed:
         ra = allowed["resistor"]
         tried = [cand]
         for rung in LEVEL_LADDER:
             levels = [r_pref * m for m in rung if ra.low <= r_pref * m <= ra.high]
-            tried += [_candidates(topology, section, strategy, allowed, free, fixed, specs, lv, exact, width)
-                      for lv in levels]
+            tried += [_candidates(topology, section, strategy, allowed, free, fixed, specs, lv, exact, width,
+                                  spread) for lv in levels]
             if any(in_all(c[2]).any() for c in tried[-len(levels):]) if levels else False:
                 break
         cand = _concat(tried)
@@ -559,9 +571,15 @@ def select_values(topology, section: Section, strategy: str, allowed: dict[str, 
 
     chosen, ideal, in_range, levels = _cap_stage(topology, design_section, strategy, allowed, specs, free, fixed,
                                                  r_pref, exact)
+    finite = np.logical_and.reduce([np.isfinite(chosen[p.role]) for p in specs])
+    if pre is not None and not finite.any():
+        # the predistorted section asks for what the allowed parts cannot give: the section as it is
+        design_section, pre = section, None
+        chosen, ideal, in_range, levels = _cap_stage(topology, design_section, strategy, allowed, specs, free, fixed,
+                                                     r_pref, exact)
+        finite = np.logical_and.reduce([np.isfinite(chosen[p.role]) for p in specs])
     n = levels.size
     all_in = in_all(in_range)
-    finite = np.logical_and.reduce([np.isfinite(chosen[p.role]) for p in specs])
     if not finite.any():
         raise InfeasibleStage(
             f"the {topology.name} topology ({strategy}) cannot realize the {section.kind.value} section "
@@ -635,12 +653,16 @@ def select_values(topology, section: Section, strategy: str, allowed: dict[str, 
             best = int(top[i])
             err_best = float(exact_err[i])
             predicted_model = {kk: float(np.asarray(v)[i]) for kk, v in mod.items()}
+            ranked = top[np.argsort(exact_err, kind="stable")]
+            ranked = ranked[np.isfinite(exact_err[np.argsort(exact_err, kind="stable")])]
         else:
             best = int(np.argmin(err))
             err_best = float(err[best])
+            ranked = np.argsort(err, kind="stable")
     else:
         best = int(np.argmin(err))
         err_best = float(err[best])
+        ranked = np.argsort(err, kind="stable")
     if not np.isfinite(err_best):
         raise InfeasibleStage(
             f"the {topology.name} topology ({strategy}) gives no candidate with finite f0 and Q for the "
@@ -649,9 +671,21 @@ def select_values(topology, section: Section, strategy: str, allowed: dict[str, 
         )
     chosen_values = {p.role: float(values[p.role][best]) for p in specs}
     src = int(keep[origin[best]])
-    return _selection(topology, design_section, strategy, allowed, specs, chosen_values,
-                      {p.role: float(ideal[p.role][src]) for p in specs}, err_best, float(lv[best]),
-                      predicted_model, pre, total)
+    result = _selection(topology, design_section, strategy, allowed, specs, chosen_values,
+                        {p.role: float(ideal[p.role][src]) for p in specs}, err_best, float(lv[best]),
+                        predicted_model, pre, total)
+    result.alternatives = _alternatives(values, specs, err, ranked, best)
+    return result
+
+
+def _alternatives(values: dict, specs, err: np.ndarray, ranked: np.ndarray, best: int) -> dict:
+    """Role -> (K,) values of the chosen candidate and the next distinct ones in ``ranked`` order."""
+    order = [best] + [int(i) for i in ranked if int(i) != best and np.isfinite(err[int(i)])]
+    rows = np.array(order, dtype=int)
+    table = np.stack([np.asarray(values[p.role], dtype=float)[rows] for p in specs], axis=1)
+    _, first = np.unique(table, axis=0, return_index=True)
+    keep = rows[np.sort(first)][:ALTERNATIVES_KEPT]
+    return {p.role: np.asarray(values[p.role], dtype=float)[keep] for p in specs}
 
 
 def _selection(topology, design_section, strategy, allowed, specs, values, ideal, score, r_ref, predicted_model,

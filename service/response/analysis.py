@@ -151,4 +151,5 @@ def analyze(system: Any, frequencies, *, time: TimeGrid | None = None, verdict: 
         step = TimeResponse(sim.time_s, sim.step)
         impulse = TimeResponse(sim.time_s, sim.impulse, sim.dirac_weight)
         step_metrics(sim, metrics)
-    return ResponseResult(rt, f, mag, np.degrees(ph), gd, step, impulse, metrics, verdict, notes)
+    return ResponseResult(rt, f, mag, np.degrees(ph), gd, step, impulse, metrics, verdict, notes,
+                          passbands_hz=None if not passbands else tuple((float(a), float(b)) for a, b in passbands))

@@ -72,18 +72,24 @@ def _movement(trial: np.ndarray, nominal: np.ndarray) -> tuple[np.ndarray, np.nd
     return eps, same & stays & np.isfinite(eps)
 
 
-def _curvature_table(roots: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """``sum_r 1/(d_r - eps |r|)^2`` (inf where a root may reach the interval), intervals x tabulated eps."""
+def _curvature_table(roots: np.ndarray, a: np.ndarray, b: np.ndarray, eps: np.ndarray) -> np.ndarray:
+    """``sum_r 1/(d_r - eps |r|)^2`` (inf where a root may reach the interval), shape (intervals, eps.size).
+
+    ``eps`` holds the relative root movements wanted (entries of :data:`EPSILON_GRID`); only those
+    columns are computed, one interval block at a time, so memory stays (intervals x roots).
+    """
     roots = roots[np.isfinite(roots)]
+    out = np.zeros((a.size, eps.size))
     if roots.size == 0:
-        return np.zeros((a.size, EPSILON_GRID.size))
+        return out
     rr = np.broadcast_to(roots, (a.size, roots.size))
     dmin, _ = distances_to_interval(rr, a, b)                         # (P, R)
     mag = np.abs(roots)
-    d = dmin[:, None, :] - EPSILON_GRID[None, :, None] * mag[None, None, :]    # (P, E, R)
-    with np.errstate(divide="ignore"):
-        term = np.where(d > 0, 1.0 / np.maximum(d, 1e-300) ** 2, np.inf)
-    return term.sum(axis=2)
+    for j, e in enumerate(eps):
+        d = dmin - e * mag[None, :]
+        with np.errstate(divide="ignore"):
+            out[:, j] = np.where(d > 0, 1.0 / np.maximum(d, 1e-300) ** 2, np.inf).sum(axis=1)
+    return out
 
 
 def _refine_for_slack(part: Partition, nominal: RootSet, inverse: RootSet | None, slack: float):
@@ -99,7 +105,7 @@ def _refine_for_slack(part: Partition, nominal: RootSet, inverse: RootSet | None
             rows = inv == flag
             if rows.any():
                 r = np.concatenate([roots.zeros[0], roots.poles[0]])
-                m[rows] = _curvature_table(r, a[rows], b[rows])[:, 0]
+                m[rows] = _curvature_table(r, a[rows], b[rows], EPSILON_GRID[:1])[:, 0]
         need = m * (b - a) ** 2 / 8.0 > slack
         if np.isinf(m[need]).any():
             # a root on an interval (a transmission zero on the axis, the zeros at infinity of an all-pole
@@ -160,8 +166,11 @@ def bound_trials(roots: RootSet, nominal: RootSet, criteria: Criteria, partition
         pts, where = np.unique(np.concatenate([a_i[rows], b_i[rows]]), return_inverse=True)
         g = src.log_magnitude(pts)                                         # (T, N)
         ga, gb = g[:, where[:rows.size]].T, g[:, where[rows.size:]].T      # (P_f, T)
-        table = _curvature_table(np.concatenate([nom.zeros[0], nom.poles[0]]), a_i[rows], b_i[rows])
-        m = table[:, k_inv if flag else k_direct]                           # (P_f, T)
+        k = k_inv if flag else k_direct
+        cols, k_col = np.unique(k, return_inverse=True)                     # only the movements trials need
+        table = _curvature_table(np.concatenate([nom.zeros[0], nom.poles[0]]), a_i[rows], b_i[rows],
+                                 EPSILON_GRID[cols])
+        m = table[:, k_col]                                                 # (P_f, T)
         slack = m * ((b_i[rows] - a_i[rows]) ** 2 / 8.0)[:, None]
         with np.errstate(invalid="ignore"):
             lo[rows] = np.minimum(ga, gb) - slack

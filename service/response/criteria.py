@@ -51,6 +51,9 @@ class LossLimit:
     ends_with_rolloff : bool
         A loss above the limit everywhere from some frequency up to
         ``stop_hz`` ends the segment there instead of failing it.
+    rolloff_from_hz : float
+        Lowest frequency (Hz) at which such a roll-off may end the segment: below it the
+        limit holds whatever follows (0: anywhere).
     """
 
     band: Band
@@ -59,6 +62,7 @@ class LossLimit:
     limit_db: float
     open_end: bool = False
     ends_with_rolloff: bool = False
+    rolloff_from_hz: float = 0.0
 
     def __post_init__(self):
         start, stop, limit = float(self.start_hz), float(self.stop_hz), float(self.limit_db)

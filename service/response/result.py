@@ -10,6 +10,7 @@ import numpy as np
 from service.approximation.types import ResponseType
 from service.response.verification import Verdict
 from service.response.metrics import ResponseMetrics
+from service.response.figure_inputs import FigureSubject, PassbandDetail
 
 
 def _clean(x):
@@ -70,6 +71,12 @@ class ResponseResult:
         The verification against the requirement or mask (``mask_result`` in the reply).
     notes : list of str
         Anything the caller should know (e.g. why the time response is missing).
+    passbands_hz : tuple of (float, float) or None
+        The passband intervals (Hz; an open band ends at ``inf``) the ripple and delay metrics were read on.
+    subject : FigureSubject or None
+        The filter and the design, for the figure's title (set by the workflow).
+    detail : PassbandDetail or None
+        The passband sampled densely, for the figure's passband detail (set by the workflow for a figure).
     """
 
     response_type: ResponseType
@@ -82,6 +89,9 @@ class ResponseResult:
     metrics: ResponseMetrics
     verdict: Verdict | None = None
     notes: list[str] = field(default_factory=list)
+    passbands_hz: tuple[tuple[float, float], ...] | None = None
+    subject: FigureSubject | None = None
+    detail: PassbandDetail | None = None
 
     def as_dict(self) -> dict:
         """Plain-JSON form with the public field names."""
@@ -120,7 +130,7 @@ class ResponseResult:
         raise InvalidGrid("table kind must be 'frequency' or 'time'", field="format")
 
     def svg(self) -> bytes:
-        """SVG figure: magnitude (with the mask), phase, group delay and step response."""
+        """SVG figure: magnitude with the mask and the verdict, passband detail, group delay, phase, step response."""
         from service.response.plotting import response_figure_svg
 
         return response_figure_svg(self)

@@ -324,6 +324,7 @@ def verify_losses(roots: RootSet, criteria: Criteria, live: np.ndarray, out, pre
         if not (lim.ends_with_rolloff and lim.band is Band.PASSBAND):
             continue
         end = _rolloff_end(response, items, s, r_ref - limit_np[s], tol)
+        end = np.where(end >= TWO_PI * lim.rolloff_from_hz, end, np.inf)   # too early: the band fails instead
         has_end = end < stops[:, s]
         if has_end.any():
             stops[has_end, s] = end[has_end]

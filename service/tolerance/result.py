@@ -2,15 +2,12 @@
 
 from __future__ import annotations
 
-import io
 import math
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from service.tolerance.statistics import PERCENTILE_NAMES
-
-WIDTH_IN, HEIGHT_IN, DPI = 8.0, 5.0, 100
 
 
 def _finite(x):
@@ -64,6 +61,11 @@ class ToleranceResult:
         The requirement each trial was verified against (``mask`` in the reply).
     notes : dict
         How figures were computed (methods, tile size, frequency blocks).
+    subject : FigureSubject or None
+        The filter and the design, for the figure's title (set by the workflow for a figure).
+    nominal_verdict : Verdict or None
+        The nominal design verified against ``criteria`` (set by the workflow for a figure: where a
+        segment's worst point is when no trial's was located).
     """
 
     frequency_hz: np.ndarray
@@ -82,6 +84,8 @@ class ToleranceResult:
     trial_count: int
     criteria: object = None
     notes: dict = field(default_factory=dict)
+    subject: object = None
+    nominal_verdict: object = None
 
     def as_dict(self) -> dict:
         """The JSON reply (plain Python values; None for a figure a trial set lacks)."""
@@ -120,52 +124,10 @@ class ToleranceResult:
         return cols
 
     def svg(self) -> bytes:
-        """Magnitude envelope with the mask, as an SVG document (bytes).
+        """The envelope figure (see :func:`service.tolerance.plotting.tolerance_figure`) as an SVG document."""
+        from service.tolerance.plotting import tolerance_figure_svg
 
-        Bands: min-max, 0.135-99.865 % and 2.5-97.5 %, the median and the
-        nominal; the mask's forbidden regions shaded relative to the nominal
-        reference gain.  matplotlib (Agg) is imported here only.
-        """
-        from matplotlib.backends.backend_agg import FigureCanvasAgg
-        from matplotlib.figure import Figure
-
-        f = np.asarray(self.frequency_hz, dtype=float)
-        pos = f > 0
-        log_x = bool(pos.sum() > 1 and f[pos][-1] / f[pos][0] > 20)
-        keep = pos if log_x else np.ones(f.shape, dtype=bool)
-        x = f[keep]
-        m = self.magnitude_db[:, keep]
-        fig = Figure(figsize=(WIDTH_IN, HEIGHT_IN), dpi=DPI, layout="constrained")
-        FigureCanvasAgg(fig)
-        ax = fig.subplots()
-        ax.fill_between(x, m[0], m[6], color="tab:blue", alpha=0.15, lw=0, label="min - max")
-        ax.fill_between(x, m[1], m[5], color="tab:blue", alpha=0.25, lw=0, label="0.135 - 99.865 %")
-        ax.fill_between(x, m[2], m[4], color="tab:blue", alpha=0.4, lw=0, label="2.5 - 97.5 %")
-        ax.plot(x, m[3], color="tab:blue", lw=1.2, label="median")
-        ax.plot(x, self.nominal_magnitude_db[keep], color="k", lw=0.8, ls="--", label="nominal")
-        top = float(np.max(m[6])) if m.size else 0.0
-        y_lo = max(float(np.min(m[0])) if m.size else -100.0, top - 140.0)
-        if self.criteria is not None and x.size:
-            from service.response.plotting import _draw_limits
-
-            ref = self.notes.get("nominal_reference_gain_db", 0.0)
-            if self.criteria.reference_gain_db is not None:
-                ref = self.criteria.reference_gain_db
-            _draw_limits(ax, self.criteria.limits, ref, float(x[0]), float(x[-1]), y_lo - 10)
-        if log_x:
-            ax.set_xscale("log")
-        ax.set_ylim(y_lo - 5, top + 5)
-        ax.set_xlabel("frequency (Hz)")
-        ax.set_ylabel("magnitude (dB)")
-        title = f"Monte Carlo, {self.trial_count} trials"
-        if self.yield_ is not None:
-            title += f", yield {100 * self.yield_['fraction']:.1f} %"
-        ax.set_title(title)
-        ax.grid(True, which="both", lw=0.3, alpha=0.5)
-        ax.legend(loc="lower left", fontsize=8)
-        buf = io.BytesIO()
-        fig.savefig(buf, format="svg", metadata={"Date": None})
-        return buf.getvalue()
+        return tolerance_figure_svg(self)
 
 
 def _criteria_json(criteria) -> dict:

@@ -237,11 +237,17 @@ def run_tolerance(plans: list[StagePlan], *, draw_order: Sequence[str] = (), res
         fails = []
         for j, lim in enumerate(criteria.limits):
             margins = verdicts.margin_db[:, j]
+            # where the worst of the trials whose margin the search located has it (a bounded trial has none)
+            located = np.flatnonzero(np.isfinite(verdicts.worst_hz[:, j]) & np.isfinite(margins))
+            k = int(located[np.argmin(margins[located])]) if located.size else None
             fails.append({
                 "segment": j, "band": lim.band.value, "start_hz": lim.start_hz,
                 "stop_hz": lim.stop_hz if math.isfinite(lim.stop_hz) else None, "limit_db": lim.limit_db,
                 "failures": int((~ok[:, j] & verdicts.stable).sum()),
-                "worst_margin_db": float(np.nanmin(margins)) if np.isfinite(margins).any() else None})
+                "worst_margin_db": float(np.nanmin(margins)) if np.isfinite(margins).any() else None,
+                "worst_trial": None if k is None else {
+                    "trial": k, "frequency_hz": float(verdicts.worst_hz[k, j]),
+                    "loss_db": float(verdicts.loss_db[k, j]), "margin_db": float(margins[k])}})
         if criteria.delay is not None:
             dm = verdicts.delay_margin_pct
             fails.append({"segment": None, "band": "group_delay", "start_hz": 0.0, "stop_hz": criteria.delay.stop_hz,

@@ -8,8 +8,9 @@ from service.workflows.costs import check_limit
 from service.workflows.requirement import Requirement
 
 
-def approximate(requirement: Requirement, settings: Settings) -> Approximation:
-    """The transfer function ``requirement`` asks for (by order, or the lowest order meeting it).
+def approximate(requirement: Requirement, settings: Settings, *, min_order: int | None = None) -> Approximation:
+    """The transfer function ``requirement`` asks for (by order, or the lowest order meeting it, at least
+    ``min_order`` when given).
 
     Raises
     ------
@@ -31,7 +32,8 @@ def approximate(requirement: Requirement, settings: Settings) -> Approximation:
                                section_order=r.section_order, max_order=settings.max_order)
     return design_by_requirement(r.response, r.family, r.passband_hz, r.stopband_hz, r.passband_ripple_db,
                                  r.stopband_attenuation_db, excess=r.excess, group_delay=r.group_delay,
-                                 section_order=r.section_order, max_order=settings.max_order)
+                                 section_order=r.section_order, max_order=settings.max_order,
+                                 min_order=min_order)
 
 
 def compare(requirement: Requirement, settings: Settings, *, overshoot_limit_pct: float | None = None,

@@ -34,9 +34,11 @@ STAGE_ANALYSIS_UNITS = 400_000
 #: units, measured (about 25 us of CPU per stage and trial here).
 VERIFICATION_UNITS_PER_STAGE = 400
 #: Cost of one verification of a design (the full search), per stage: units.
-VERIFICATION_UNITS_PER_DESIGN_STAGE = 600_000
-#: Cost of one SVG figure: units.
-FIGURE_UNITS = 3_000_000
+VERIFICATION_UNITS_PER_DESIGN_STAGE = 200_000
+#: Cost of one SVG figure (a response's or a tolerance run's, with the response's passband detail): units.
+#: Measured with ``tests/bench/bench_figures.py`` (CPU time of one drawing, after the first): medians of
+#: 145-220 ms, upper quartiles up to 240 ms, on a loaded 2-core machine; about 220 ms here.
+FIGURE_UNITS = 3_500_000
 
 
 def check_limit(name: str, asked: float, settings: Settings, *, field: str, what: str) -> None:
@@ -102,14 +104,34 @@ def check_design(shape: CircuitShape, settings: Settings, *, verifications: int 
     _refuse(analysis_units(shape, verifications), settings, field=field, what="analysing this design")
 
 
-def check_response(shape: CircuitShape | None, points: int, time_points: int, settings: Settings, *,
-                   figure: bool = False) -> None:
-    """A response of a circuit (or, with ``shape`` None, of a transfer function) fits the budget."""
+#: Cost of one design of the design loop (transfer function, part search, analysis, verification) and of
+#: its reselect step, per stage: units (measured at most about 55 ms per stage each here, on every third
+#: requirement of ``tests/realization/requirement_cases.py``).
+DESIGN_ATTEMPT_UNITS_PER_STAGE = 900_000
+RESELECT_UNITS_PER_STAGE = 900_000
+
+
+def design_attempts(stages: int, settings: Settings, most: int) -> int:
+    """How many designs of ``stages`` stages the design loop may make (1 to ``most``) within
+    ``ROLLOFF_MAX_WORK``: the first (already admitted by :func:`check_design`) and as many more as the
+    budget left after it holds."""
+    per = (DESIGN_ATTEMPT_UNITS_PER_STAGE + RESELECT_UNITS_PER_STAGE) * max(1, stages)
+    return max(1, min(most, int(settings.max_work // per)))
+
+
+def response_units(shape: CircuitShape | None, points: int, time_points: int, *, figure: bool = False) -> float:
+    """Work units of a response of a circuit (or, with ``shape`` None, of a transfer function)."""
     units = 0.0
     if shape is not None:
         units += analysis_units(shape, 1) + points * shape.point_weight() * 4
-    units += time_points * 50 + (FIGURE_UNITS if figure else 0)
-    _refuse(units, settings, field="frequencies", what="this response")
+    return units + time_points * 50 + (FIGURE_UNITS if figure else 0)
+
+
+def check_response(shape: CircuitShape | None, points: int, time_points: int, settings: Settings, *,
+                   figure: bool = False) -> None:
+    """A response of a circuit (or, with ``shape`` None, of a transfer function) fits the budget."""
+    _refuse(response_units(shape, points, time_points, figure=figure), settings, field="frequencies",
+            what="this response")
 
 
 def check_tolerance(shape: CircuitShape, trials: int, points: int, sensitivity_points: int, settings: Settings, *,
@@ -122,7 +144,7 @@ def check_tolerance(shape: CircuitShape, trials: int, points: int, sensitivity_p
         per_trial += VERIFICATION_UNITS_PER_STAGE * sum(max(1, k) for k in shape.opamps_per_stage)
         if shape.loaded:
             per_trial += (UNKNOWNS_PER_STAGE * shape.stages) ** 3 * 20
-    fixed = analysis_units(shape, 1) + (FIGURE_UNITS if figure else 0)
+    fixed = analysis_units(shape, 2 if figure else 1) + (FIGURE_UNITS if figure else 0)  # a figure: nominal verdict
     # sensitivity and worst case: two circuit evaluations per part and frequency
     parts = shape.stages * 6
     fixed += sensitivity_points * parts * 2 * shape.point_weight() * 50
@@ -130,3 +152,75 @@ def check_tolerance(shape: CircuitShape, trials: int, points: int, sensitivity_p
     fits = max(0, int((settings.max_work - fixed) // per_trial)) if per_trial else trials
     _refuse(units, settings, field="trials", what=f"a Monte Carlo run of {trials:,} trials at {points} points",
             fits=f"use at most {fits:,} trials at {points} points")
+
+
+#: Noise analysis: units per frequency point per unit of the circuit's point weight (one adjoint solve of the
+#: stages), and per noise source and point (its transfer and density); measured through the workflow (about
+#: 25 ms of CPU for four stages on 2,500 points here).
+NOISE_POINT_FACTOR = 10
+NOISE_SOURCE_UNITS = 4
+#: Headroom: each op-amp output (and the filter's) is one AC solve on the grid plus the peak refinement (two
+#: zooms of 41 points), after preparing the circuit's stages for that output (about 5 ms of CPU each).
+HEADROOM_POINT_FACTOR = 8
+HEADROOM_REFINE_POINTS = 82
+HEADROOM_UNITS_PER_OUTPUT = 80_000
+#: A supply: the bias network, the coupling capacitor search, DC solves and the passband check, per stage: units.
+SUPPLY_UNITS_PER_STAGE = 200_000
+
+
+@dataclass(frozen=True)
+class LevelsWork:
+    """The noise, headroom and supply work of one request on a design's circuit.
+
+    Attributes
+    ----------
+    noise_points : int
+        Frequencies of the noise analysis (shown and integration grid together); 0 for none.
+    noise_sources : int
+        Noise sources of the circuit (resistors, three per noisy op-amp).
+    headroom_points : int
+        Frequencies of the level analysis; 0 for none.
+    opamps : int
+        Op-amp outputs analysed (the mid-rail buffer included).
+    supply : bool
+        A supply's bias network and DC operating point are computed.
+    """
+
+    noise_points: int = 0
+    noise_sources: int = 0
+    headroom_points: int = 0
+    opamps: int = 0
+    supply: bool = False
+
+
+#: A loaded circuit (solved whole) costs about this many units per unknown of its MNA system per frequency point
+#: of a noise analysis, and per point and op-amp output of the level analysis (measured here: its solves are
+#: small dense systems, far below the whole-circuit AC weight of :meth:`CircuitShape.point_weight`).
+NOISE_LOADED_UNITS_PER_UNKNOWN = 40
+HEADROOM_LOADED_UNITS_PER_UNKNOWN = 10
+
+
+def levels_units(shape: CircuitShape, work: LevelsWork) -> float:
+    """Work units of the noise, headroom and supply analyses of ``shape``."""
+    unknowns = UNKNOWNS_PER_STAGE * shape.stages
+    if shape.loaded:
+        noise_point = NOISE_LOADED_UNITS_PER_UNKNOWN * unknowns
+        level_point = HEADROOM_LOADED_UNITS_PER_UNKNOWN * unknowns
+    else:
+        noise_point = NOISE_POINT_FACTOR * shape.point_weight()
+        level_point = HEADROOM_POINT_FACTOR * shape.point_weight()
+    units = work.noise_points * (noise_point + work.noise_sources * NOISE_SOURCE_UNITS)
+    if work.headroom_points:
+        outputs = work.opamps + 1
+        units += outputs * (HEADROOM_UNITS_PER_OUTPUT + (work.headroom_points + HEADROOM_REFINE_POINTS) * level_point)
+    if work.supply:
+        units += SUPPLY_UNITS_PER_STAGE * max(1, shape.stages)
+    return units
+
+
+def check_levels(shape: CircuitShape, work: LevelsWork, settings: Settings, *, field: str,
+                 base_units: float = 0.0) -> None:
+    """The noise, headroom and supply analyses (on top of ``base_units`` already counted) fit the budget;
+    the problem names ``field`` (e.g. ``noise.points_per_decade``)."""
+    units = base_units + levels_units(shape, work)
+    _refuse(units, settings, field=field, what="the noise, headroom and supply analyses of this design")

@@ -25,6 +25,7 @@ from service.realization.analysis import StagePlan
 from service.realization.conditioning import check_plans
 from service.realization.design import check_realizes, check_strategy, get_topology
 from service.workflows import limits as L
+from service.workflows.electrical import SupplySettings
 from service.workflows.errors import DocumentError
 from service.workflows.reading import Fields, join
 from service.workflows.requirement import Requirement
@@ -48,8 +49,7 @@ OPAMP_KEYS = ("ref", "role", *OPAMP_FIGURES, "part_id")
 _OPAMP_RANGES = {
     "gbw_hz": L.GBW_RANGE_HZ, "slew_v_per_us": L.SLEW_RANGE_V_PER_US, "a0_db": L.A0_RANGE_DB,
     "output_swing_v": L.VOLTAGE_RANGE_V, "supply_v": L.VOLTAGE_RANGE_V, "rout_ohm": L.ROUT_RANGE_OHM,
-    "en_nv_rthz": (0.0, 1e6), "in_pa_rthz": (0.0, 1e9), "en_corner_hz": (0.0, 1e9), "in_corner_hz": (0.0, 1e9),
-    "vos_v": (-1.0, 1.0), "ib_a": (-1e-3, 1e-3), "rail_headroom_v": (0.0, 100.0),
+    **L.OPAMP_FIGURE_RANGES,
 }
 _OPAMP_UNITS = {"gbw_hz": "Hz", "en_corner_hz": "Hz", "in_corner_hz": "Hz", "output_swing_v": "V", "supply_v": "V",
                 "vos_v": "V", "rail_headroom_v": "V", "rout_ohm": "ohm"}
@@ -91,6 +91,8 @@ class DesignSettings:
         Reserve the transfer function was designed with (dB), requirement designs.
     gain : float
         Overall passband gain asked for (V/V).
+    supply : SupplySettings or None
+        The board's rails (None: ground-referenced, rails not stated).
     """
 
     gbw_error: float = 0.01
@@ -104,9 +106,10 @@ class DesignSettings:
     passband_margin_db: float | None = None
     stopband_margin_db: float | None = None
     gain: float = 1.0
+    supply: SupplySettings | None = None
 
     KEYS = ("gbw_error", "output_amplitude_v", "stage_peak_margin_db", "section_order", "exact", "impedance_ohm",
-            "ranges", "series", "passband_margin_db", "stopband_margin_db", "gain")
+            "ranges", "series", "passband_margin_db", "stopband_margin_db", "gain", "supply")
 
     def to_json(self) -> dict:
         return {
@@ -116,6 +119,7 @@ class DesignSettings:
             "ranges": {k: [r.low, r.high] for k, r in self.ranges.items()},
             "series": dict(self.series), "passband_margin_db": self.passband_margin_db,
             "stopband_margin_db": self.stopband_margin_db, "gain": self.gain,
+            "supply": None if self.supply is None else self.supply.to_json(),
         }
 
     @classmethod
@@ -154,6 +158,7 @@ class DesignSettings:
             passband_margin_db=f.number("passband_margin_db", low=0.0, high=3.0),
             stopband_margin_db=f.number("stopband_margin_db", low=0.0, high=60.0),
             gain=f.number("gain", low=1e-3, high=1e4, default=1.0),
+            supply=SupplySettings.from_json(f.raw("supply"), f.at("supply")) if f.has("supply") else None,
         )
 
 

@@ -53,8 +53,10 @@ def segments_criteria(segments: tuple[MaskSegment, ...], path: str = "mask") -> 
     return Criteria(tuple(limits))
 
 
-def mask_criteria(mask: Mask, *, finite_opamps: bool, path: str = "mask") -> Criteria:
-    """The criteria of a mask given as a requirement or as segments."""
+def mask_criteria(mask: Mask, *, finite_opamps: bool, opamp_gbw_hz: float | None = None,
+                  path: str = "mask") -> Criteria:
+    """The criteria of a mask given as a requirement (with the circuit's op-amps: see
+    :meth:`Requirement.criteria`) or as segments."""
     if isinstance(mask, Requirement):
-        return mask.criteria(finite_opamps=finite_opamps)
+        return mask.criteria(finite_opamps=finite_opamps, opamp_gbw_hz=opamp_gbw_hz)
     return segments_criteria(mask, path)

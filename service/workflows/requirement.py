@@ -41,6 +41,10 @@ from service.workflows.reading import Fields, join
 
 #: Default upper end of an open passband, as a multiple of its edge.
 OPEN_PASSBAND_FACTOR = 10.0
+#: With real op-amps, an open passband (default upper end) is held to its ripple at least up to the slowest
+#: op-amp's GBW divided by this: a common-practice bandwidth rule (a single-pole op-amp used at a twentieth of
+#: its GBW keeps most of its loop gain), our own choice of factor, no published source.
+OPAMP_BANDWIDTH_FACTOR = 20.0
 
 #: The keys of a requirement object (JSON), in the order they are written.
 FIELDS = ("response", "family", "order", "cutoff_hz", "cutoff_at", "passband_hz", "stopband_hz",
@@ -50,9 +54,11 @@ FIELDS = ("response", "family", "order", "cutoff_hz", "cutoff_at", "passband_hz"
 REFERENCE_GAIN_RULE = ("loss is measured in dB below the largest gain over the passband segments (DC included "
                        "where a passband starts at 0 Hz)")
 OPEN_BAND_RULE = (f"an open passband is checked up to passband_upper_hz (default {OPEN_PASSBAND_FACTOR:g} x its "
-                  "edge); with real op-amps and the default, a roll-off exceeding the ripple from some frequency "
-                  "up to that limit ends the passband there (reported as ended_hz, not a failure); stopbands are "
-                  "checked up to infinity")
+                  "edge); with real op-amps and the default, the op-amps' roll-off may end it (reported as ended_hz, "
+                  "with a warning, not a failure) where the loss exceeds the ripple from some frequency up to that "
+                  "limit, but not below the slowest op-amp's GBW / "
+                  f"{OPAMP_BANDWIDTH_FACTOR:g}: up to there the ripple must hold; stopbands are checked up to "
+                  "infinity")
 
 Edge = float | tuple[float, float]
 
@@ -205,14 +211,18 @@ class Requirement:
             return None
         return self.passband_upper_hz if self.passband_upper_hz is not None else OPEN_PASSBAND_FACTOR * edge
 
-    def criteria(self, *, finite_opamps: bool) -> Criteria:
+    def criteria(self, *, finite_opamps: bool, opamp_gbw_hz: float | None = None) -> Criteria:
         """What verifying against this requirement checks (needs a requirement by specification).
 
         Parameters
         ----------
         finite_opamps : bool
             The circuit has op-amps with a finite gain-bandwidth: an open
-            passband with the default upper end may end with their roll-off.
+            passband with the default upper end may end with their roll-off
+            (:data:`OPEN_BAND_RULE`).
+        opamp_gbw_hz : float, optional
+            The slowest op-amp's GBW (Hz): the roll-off may not end the passband below
+            ``opamp_gbw_hz / OPAMP_BANDWIDTH_FACTOR``.
         """
         if not self.by_specification:
             raise RequirementError("a requirement by order states no passband and stopband to verify",
@@ -221,18 +231,20 @@ class Requirement:
         fp, fs, inf = self.passband_hz, self.stopband_hz, math.inf
         rolloff = finite_opamps and self.passband_upper_hz is None
         upper = self.open_passband_upper_hz
+        held = 0.0 if not (rolloff and opamp_gbw_hz) else float(opamp_gbw_hz) / OPAMP_BANDWIDTH_FACTOR
         pb, sb = Band.PASSBAND, Band.STOPBAND
         if self.response is ResponseType.LOWPASS:
             limits = [LossLimit(pb, 0.0, fp, rip), LossLimit(sb, fs, inf, att, open_end=True)]
         elif self.response is ResponseType.HIGHPASS:
             limits = [LossLimit(sb, 0.0, fs, att),
-                      LossLimit(pb, fp, upper, rip, open_end=True, ends_with_rolloff=rolloff)]
+                      LossLimit(pb, fp, upper, rip, open_end=True, ends_with_rolloff=rolloff, rolloff_from_hz=held)]
         elif self.response is ResponseType.BANDPASS:
             limits = [LossLimit(sb, 0.0, fs[0], att), LossLimit(pb, fp[0], fp[1], rip),
                       LossLimit(sb, fs[1], inf, att, open_end=True)]
         else:
             limits = [LossLimit(pb, 0.0, fp[0], rip), LossLimit(sb, fs[0], fs[1], att),
-                      LossLimit(pb, fp[1], upper, rip, open_end=True, ends_with_rolloff=rolloff)]
+                      LossLimit(pb, fp[1], upper, rip, open_end=True, ends_with_rolloff=rolloff,
+                                rolloff_from_hz=held)]
         delay = None
         if self.group_delay is not None:
             delay = DelayLimit(self.group_delay.frequency_hz, self.group_delay.max_deviation_pct)

@@ -18,9 +18,10 @@ from service.response import FrequencyGrid, resolve_frequencies
 from service.tolerance import EVERYTHING, Outputs, ToleranceResult, run_tolerance
 from service.workflows import costs
 from service.workflows.document import DesignDocument
+from service.workflows.figures import tolerance_figure_grid, with_tolerance_figure
 from service.workflows.masks import Mask, mask_criteria
 from service.workflows.responding import DEFAULT_POINTS, default_grid
-from service.workflows.verdicts import finite_opamps
+from service.workflows.verdicts import design_criteria, finite_opamps, slowest_gbw_hz
 
 
 @dataclass(frozen=True)
@@ -47,11 +48,12 @@ class ToleranceRequest:
 
     def outputs(self) -> Outputs:
         """What the reply (``json``, ``csv`` or ``svg``) shows, so what the run computes: everything for
-        ``json``; the percentile table for ``csv``; the magnitude envelope and the yield for ``svg``."""
+        ``json``; the percentile table for ``csv``; for ``svg`` the magnitude envelope, the yield and the
+        per-trial figures (the figure notes the passband ripple's median and largest value)."""
         if self.reply == "csv":
             return Outputs(figures=False, yield_=False, sensitivity=False)
         if self.reply == "svg":
-            return Outputs(phase=False, figures=False, sensitivity=False)
+            return Outputs(phase=False, sensitivity=False)
         return EVERYTHING
 
 
@@ -69,13 +71,15 @@ def tolerance(request: ToleranceRequest, settings: Settings, *, path: str = "des
     finite = finite_opamps(plans)
     criteria = None
     if request.mask is not None:
-        criteria = mask_criteria(request.mask, finite_opamps=finite)
+        criteria = mask_criteria(request.mask, finite_opamps=finite, opamp_gbw_hz=slowest_gbw_hz(plans))
     elif doc.requirement is not None and doc.requirement.by_specification:
-        criteria = doc.requirement.criteria(finite_opamps=finite)
+        criteria = design_criteria(doc.requirement, plans)
     grid = request.frequencies
     if grid is None:
         roots = [2 * np.pi * p.section.f0_hz for p in plans]
         grid = default_grid(np.array(roots), DEFAULT_POINTS)
+        if request.figure:
+            grid = tolerance_figure_grid(grid, criteria, doc.requirement, settings.max_frequency_points)
     points = len(resolve_frequencies(grid, settings.max_frequency_points))
     sens = len(request.sensitivity_frequencies_hz) or (2 * len(criteria.limits) if criteria else 0)
     shape = costs.CircuitShape(tuple(len(p.opamps) for p in plans),
@@ -83,7 +87,7 @@ def tolerance(request: ToleranceRequest, settings: Settings, *, path: str = "des
     outputs = request.outputs()
     costs.check_tolerance(shape, request.trials, points, sens, settings,
                           verified=criteria is not None and outputs.yield_, figure=request.figure)
-    return run_tolerance(
+    result = run_tolerance(
         plans, draw_order=doc.draw_order(), response=None if doc.response is None else doc.response.value,
         trials=request.trials, seed=request.seed, distribution=request.distribution,
         temperature=request.temperature, tempco_ppm_per_c=request.tempco_ppm_per_c, gbw_spread=request.gbw_spread,
@@ -91,3 +95,4 @@ def tolerance(request: ToleranceRequest, settings: Settings, *, path: str = "des
         include_trials=request.include_trials, memory_limit_bytes=settings.memory_limit_bytes,
         max_trials=settings.max_trials, max_frequency_points=settings.max_frequency_points,
         outputs=outputs)
+    return with_tolerance_figure(result, doc, plans, criteria) if request.figure else result

@@ -33,6 +33,17 @@ def finite_opamps(plans: list[StagePlan]) -> bool:
     return any(u.gbw_hz is not None for p in plans for u in p.opamps)
 
 
+def slowest_gbw_hz(plans: list[StagePlan]) -> float | None:
+    """The smallest GBW (Hz) of the design's op-amps (None: all ideal)."""
+    gbws = [u.gbw_hz for p in plans for u in p.opamps if u.gbw_hz is not None]
+    return min(gbws) if gbws else None
+
+
+def design_criteria(requirement: Requirement, plans: list[StagePlan]) -> Criteria:
+    """What the circuit of ``plans`` is verified against: ``requirement`` with its op-amps' open-band rule."""
+    return requirement.criteria(finite_opamps=finite_opamps(plans), opamp_gbw_hz=slowest_gbw_hz(plans))
+
+
 def circuit_roots(plans: list[StagePlan], values: dict | None = None, *, ideal: bool = False) -> RootSet:
     """Zeros, poles and gain of the whole filter: :func:`service.realization.analysis.design_roots`."""
     return design_roots(plans, values, ideal=ideal)
@@ -88,7 +99,7 @@ class DesignVerdict:
 def verify_design(plans: list[StagePlan], requirement: Requirement) -> DesignVerdict:
     """Verify the circuit of ``plans`` against ``requirement`` (by specification) and explain each miss."""
     finite = finite_opamps(plans)
-    criteria = requirement.criteria(finite_opamps=finite)
+    criteria = design_criteria(requirement, plans)
     roots = circuit_roots(plans)
     verdict = verify(roots, criteria).verdict()
     if verdict.meets:
@@ -170,7 +181,7 @@ def _unstable_stages(verdict: Verdict, plans: list[StagePlan], stable_when_ideal
         gbw = plan.opamps[0].gbw_hz if plan.opamps else None
         why = (f" with the op-amp's {format_quantity(gbw, 'Hz')} gain-bandwidth" if gbw and stable_when_ideal else "")
         yield group + 1, (f"stage {group + 1} ({plan.topology.name}, f0 {_hz(plan.section.f0_hz)}, Q "
-                          f"{plan.section.q if plan.section.q is not None else '-'}): poles at {f} lie in the right "
+                          f"{'-' if plan.section.q is None else format(plan.section.q, '.4g')}): poles at {f} lie in the right "
                           f"half-plane{why}: the stage oscillates; no response figure of this circuit meets anything")
 
 

@@ -283,6 +283,10 @@ def _number_fields(doc: dict | None) -> list[tuple[str, str, dict, str, str, str
         ("designs", ds, dict(by_order, parts={"resistors": {"tolerance": 0.01}}), "parts.resistors.tolerance", "q"),
         ("designs", ds, dict(by_order, parts={"stock": [{"kind": "resistor", "value": 1000, "tolerance": 0.01}]}),
          "parts.stock[0].value", "q"),
+        ("designs", ds, dict(by_order, supply={"v_pos": 5}), "supply.v_pos", "q"),
+        ("designs", ds, dict(by_order, supply={"v_pos": 5, "v_neg": -5}), "supply.v_neg", "q"),
+        ("designs", ds, dict(by_order, opamp={"gbw_hz": 1e6, "en_nv_rthz": 8}), "opamp.en_nv_rthz", "q"),
+        ("designs", ds, dict(by_order, opamp={"gbw_hz": 1e6, "vos_v": 1e-3}), "opamp.vos_v", "q"),
         ("responses", rs, {"poles": [[-1000, 0]], "gain": 1000}, "gain", "q"),
         ("responses", rs, {"filter": GOOD_FILTER, "frequencies": {"start_hz": 10, "stop_hz": 1e5, "points": 101}},
          "frequencies.stop_hz", "q"),
@@ -299,6 +303,15 @@ def _number_fields(doc: dict | None) -> list[tuple[str, str, dict, str, str, str
             ("evaluate", ev, doc, "stages[0].section.q", "q"),
             ("evaluate", ev, _set(doc, "stages[0].opamps[0].gbw_hz", 1e7), "stages[0].opamps[0].gbw_hz", "q"),
             ("responses", rs, {"design": doc}, "design.stages[0].components[1].value", "q"),
+            ("responses", rs, {"design": doc, "noise": {"band_hz": [10, 1000]}}, "noise.band_hz[0]", "q"),
+            ("responses", rs, {"design": doc, "noise": {"temperature_k": 300}}, "noise.temperature_k", "q"),
+            ("responses", rs, {"design": doc, "noise": {"full_scale_v": 1}}, "noise.full_scale_v", "q"),
+            ("responses", rs, {"design": doc, "noise": {"points_per_decade": 100}}, "noise.points_per_decade",
+             "int"),
+            ("responses", rs, {"design": doc, "noise": {"opamp": {"in_pa_rthz": 1}}}, "noise.opamp.in_pa_rthz",
+             "q"),
+            ("responses", rs, {"design": doc, "headroom": {"input_peak_v": 0.1}}, "headroom.input_peak_v", "q"),
+            ("responses", rs, {"design": doc, "headroom": {"output_peak_v": 0.1}}, "headroom.output_peak_v", "q"),
             ("tolerance", tl, {"design": doc, "trials": 100}, "trials", "int"),
             ("tolerance", tl, {"design": doc, "trials": 100, "seed": 1}, "seed", "int"),
             ("tolerance", tl, {"design": doc, "trials": 100, "gbw_spread": 0.1}, "gbw_spread", "q"),
@@ -399,14 +412,14 @@ def document_cases(doc: dict | None) -> list[Case]:
     return out
 
 
-def pending_cases(doc: dict | None) -> list[Case]:
-    """Inputs answered 500 whose fix is owned elsewhere (see :data:`PENDING`)."""
+def former_server_error_cases(doc: dict | None) -> list[Case]:
+    """Inputs that once answered 500: each must be a 4xx naming the field, or (``success_ok``) a design."""
     ds, ev, tl = "/v1/designs", "/v1/designs/evaluate", "/v1/tolerance"
     out = [
-        Case("pending: 3rd-order Bessel lowpass on sallen_key", "POST", ds,
+        Case("was 500: 3rd-order Bessel lowpass on sallen_key", "POST", ds,
              {"response": "lowpass", "family": "bessel", "order": 3, "cutoff_hz": 1000, "topology": "sallen_key"},
              field="topology", route=ds, success_ok=True),
-        Case("pending: 5th-order Butterworth highpass on sallen_key", "POST", ds,
+        Case("was 500: 5th-order Butterworth highpass on sallen_key", "POST", ds,
              {"response": "highpass", "family": "butterworth", "order": 5, "cutoff_hz": 1000,
               "topology": "sallen_key"}, field="topology", route=ds, success_ok=True),
     ]
@@ -417,14 +430,14 @@ def pending_cases(doc: dict | None) -> list[Case]:
         d["stages"][0]["section"].update({"order": 1, "q": None})
 
     out += [
-        Case("pending: evaluate settings.ranges 5", "POST", ev, _set(doc, "settings", {"ranges": 5}),
+        Case("was 500: evaluate settings.ranges 5", "POST", ev, _set(doc, "settings", {"ranges": 5}),
              field="settings.ranges", route=ev),
-        Case("pending: evaluate first-order section on sallen_key", "POST", ev, _edit(doc, first_order),
+        Case("was 500: evaluate first-order section on sallen_key", "POST", ev, _edit(doc, first_order),
              field="stages[0]", route=ev),
-        Case("pending: tolerance with a partial requirement", "POST", tl,
+        Case("was 500: tolerance with a partial requirement", "POST", tl,
              {"design": _set(doc, "requirement", {"response": "lowpass", "passband_hz": 1000}), "trials": 50},
              field="design.requirement", route=tl),
-        Case("pending: tolerance with a non-numeric requirement", "POST", tl,
+        Case("was 500: tolerance with a non-numeric requirement", "POST", tl,
              {"design": _set(doc, "requirement", {"response": "lowpass", "passband_hz": "abc", "stopband_hz": 3000,
                                                   "passband_ripple_db": 0.5, "stopband_attenuation_db": 40}),
               "trials": 50}, field="design.requirement", route=tl),
@@ -433,18 +446,11 @@ def pending_cases(doc: dict | None) -> list[Case]:
 
 
 #: Cases whose fix is owned elsewhere -> what must change. Run and reported, not gating, while
-#: ENFORCE_PENDING is False: switch it on once those fixes are merged (then they gate like the rest).
-PENDING: dict[str, str] = {
-    "pending: 3rd-order Bessel lowpass on sallen_key": "realization: realize the first-order section another way or 422",
-    "pending: 5th-order Butterworth highpass on sallen_key": "realization: as above (q compared with None today)",
-    "pending: evaluate settings.ranges 5": "design document reading: settings.ranges must be an object (422)",
-    "pending: evaluate first-order section on sallen_key": "design document reading: a first-order section on a "
-                                                           "second-order topology is a 422 naming the stage",
-    "pending: tolerance with a partial requirement": "tolerance: a requirement missing fields is a 422 (today it is "
-                                                     "ignored or a 500)",
-    "pending: tolerance with a non-numeric requirement": "tolerance: requirement values are checked (422)",
-}
-ENFORCE_PENDING = False
+#: ENFORCE_PENDING is False. Empty now: the six inputs once listed here (odd orders on sallen_key,
+#: settings.ranges 5, a first-order section on a second-order topology, a partial or non-numeric
+#: requirement on /v1/tolerance) are fixed and gate with the rest (:func:`former_server_error_cases`).
+PENDING: dict[str, str] = {}
+ENFORCE_PENDING = True
 
 
 @dataclass
@@ -650,7 +656,7 @@ def cases(design_document: dict | None) -> list[Case]:
     out += wrong_unit_cases(design_document)
     out += query_cases()
     out += document_cases(design_document)
-    out += pending_cases(design_document)
+    out += former_server_error_cases(design_document)
     return out
 
 

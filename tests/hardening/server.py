@@ -17,6 +17,8 @@ import tempfile
 import time
 from pathlib import Path
 
+from tests.ports import free_port as _free_port
+
 ROOT = Path(__file__).resolve().parents[2]
 
 
@@ -24,22 +26,9 @@ def free_port() -> int:
     """A TCP port free on 127.0.0.1 at the time of the call.
 
     ``ROLLOFF_TEST_PORTS=first-last`` confines it to a range (a shared machine's allotment);
-    otherwise the system picks one.
+    otherwise the system picks one (tests/ports.py).
     """
-    span = os.environ.get("ROLLOFF_TEST_PORTS", "")
-    candidates = [0]
-    if span:
-        first, last = (int(x) for x in span.split("-"))
-        candidates = list(range(first, last + 1))
-        random.shuffle(candidates)
-    for port in candidates:
-        with socket.socket() as s:
-            try:
-                s.bind(("127.0.0.1", port))
-            except OSError:
-                continue
-            return s.getsockname()[1]
-    raise RuntimeError(f"no free port in {span}")
+    return _free_port()
 
 
 def request(port: int, method: str, path: str, body: bytes | None = None,

@@ -111,8 +111,17 @@ def _limits(btype, edges, rng):
             LossLimit(pb, hi * s, hi * s * 10, 1.0, open_end=True)]
 
 
+def _padded(rs: RootSet, extra: int = 3) -> RootSet:
+    """The same transfer function with ``extra`` absent roots (NaN slots) among its zeros and poles, as a
+    cascade of stages with different root counts has them."""
+    nan = np.full((rs.trials, extra), np.nan + 0j)
+    return RootSet(np.hstack([nan[:, :1], rs.zeros, nan]), np.hstack([rs.poles, nan]), rs.log_gain,
+                   np.concatenate([rs.pole_group, np.zeros(extra, dtype=int)]))
+
+
+@pytest.mark.parametrize("padded", [False, True], ids=["plain", "nan-padded"])
 @pytest.mark.parametrize("seed", range(40))
-def test_worst_margins_match_a_dense_independent_check(seed):
+def test_worst_margins_match_a_dense_independent_check(seed, padded):
     # source: scipy.signal (reference library) -- freqs_zpk sampled densely and polished
     rng = np.random.default_rng(seed)
     z, p, k, btype, edges = _random_case(rng)
@@ -126,7 +135,8 @@ def test_worst_margins_match_a_dense_independent_check(seed):
                                  lim.limit_db - d if lim.band is Band.PASSBAND else lim.limit_db + d,
                                  open_end=lim.open_end))
     want = _reference_margins(z, p, k, shifted)
-    v = verify(RootSet.from_zpk(z, p, k), Criteria(tuple(shifted))).verdict()
+    roots = RootSet.from_zpk(z, p, k)
+    v = verify(_padded(roots) if padded else roots, Criteria(tuple(shifted))).verdict()
     got = [s.margin_db for s in v.segments]
     assert v.proved
     np.testing.assert_allclose(got, want, atol=2e-6)
@@ -192,6 +202,15 @@ def test_open_passband_ends_with_an_opamp_rolloff_only_when_allowed():
     ref = _extreme(z, np.concatenate([p, [-TWO_PI * 1e5]]), k * TWO_PI * 1e5, 1100, end, True)
     g_end = _gain_db(z, np.concatenate([p, [-TWO_PI * 1e5]]), k * TWO_PI * 1e5, [end])[0]
     assert ref - g_end == pytest.approx(0.6, abs=1e-6)
+    # the roll-off may not end the band below rolloff_from_hz: there the ripple must hold, and it does not
+    held = Criteria((LossLimit(Band.PASSBAND, 1100, 30000, 0.6, open_end=True, ends_with_rolloff=True,
+                               rolloff_from_hz=2 * end),))
+    v_held = verify(rs, held).verdict()
+    assert v_held.status == "misses" and v_held.segments[0].ended_hz is None
+    assert v_held.worst_margin_db == pytest.approx(v_strict.worst_margin_db, abs=1e-6)
+    later = Criteria((LossLimit(Band.PASSBAND, 1100, 30000, 0.6, open_end=True, ends_with_rolloff=True,
+                                rolloff_from_hz=0.5 * end),))
+    assert verify(rs, later).verdict().segments[0].ended_hz == pytest.approx(end, rel=1e-9)
 
 
 def test_group_delay_deviation_of_a_bessel_lowpass():

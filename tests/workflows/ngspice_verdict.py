@@ -101,7 +101,11 @@ def ngspice_margins(netlist: str, criteria: Criteria, top_hz: float) -> tuple[li
                 ((fz, hz),) = run_ngspice_sweeps(netlist, [f"lin 401 {float(ff[k]):.17g} {float(ff[k + 1]):.17g}"])
                 gz = _gain_db(hz)
                 ok = np.flatnonzero((ref - gz) <= lim.limit_db)
-                b, gb = (float(fz[ok[-1]]), float(gz[ok[-1]])) if ok.size else (float(ff[k]), float(gg[k]))
+                b_end, gb = (float(fz[ok[-1]]), float(gz[ok[-1]])) if ok.size else (float(ff[k]), float(gg[k]))
+                if b_end < lim.rolloff_from_hz:     # a roll-off may not end the band that early
+                    ends.append(b)
+                    continue
+                b = b_end
                 spans[i] = (a, b)
                 keep = ff < b
                 samples[i] = (np.append(ff[keep], b), np.append(gg[keep], gb))

@@ -19,6 +19,7 @@ from service.realization import OpAmpSpec, PartsPolicy
 from service.workflows import DesignRequest, Requirement, ResponseRequest, ToleranceRequest, design, evaluate_json
 from service.workflows import respond, tolerance
 from service.workflows.document import DesignDocument
+from service.workflows.verdicts import design_criteria
 from tests.workflows.ngspice_verdict import ngspice_margins
 
 FAMILIES = ("butterworth", "chebyshev1", "chebyshev2", "elliptic", "bessel", "legendre", "linkwitz_riley")
@@ -84,8 +85,7 @@ def test_verdict_equals_ngspice_and_every_endpoint_agrees(req, series, gbw):
     outcome = _design(req, series, gbw)
     doc = outcome.as_dict()
     verdict = outcome.verdict.verdict
-    finite = gbw is not None
-    criteria = req.criteria(finite_opamps=finite)
+    criteria = design_criteria(req, outcome.plans)
     if verdict.stable:
         top = max([p.section.f0_hz for p in outcome.plans] + [gbw or 0.0])
         margins, ends = ngspice_margins(doc["netlist"], criteria, top)

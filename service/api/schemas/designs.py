@@ -6,13 +6,14 @@ import marshmallow as ma
 
 from service.api.fields import PART_REF, Quantity, StrictInteger
 from service.api.schemas.common import ReplySchema, StrictSchema, one_of
+from service.api.schemas.electrical import SUPPLY_DESCRIPTION, DesignNoiseSchema, SupplyReportSchema, SupplySchema
 from service.api.schemas.filters import (FREQ_RANGE, FilterSchema, FrequencyOrPair, GroupDelayLimitSchema,
                                          SectionSchema, requirement_from)
 from service.api.schemas.verdicts import VerdictSchema
 from service.approximation import CutoffAt, Excess, Family, ResponseType, SectionOrder
 from service.components import SERIES
 from service.realization import TOPOLOGIES, OpAmpSpec, PartsPolicy
-from service.workflows import DesignRequest
+from service.workflows import DesignRequest, SupplySettings
 from service.workflows import limits as L
 from service.workflows.document import (COMPONENT_KEYS, DOCUMENT_DERIVED, DOCUMENT_KEYS, OPAMP_KEYS, STAGE_DERIVED,
                                         STAGE_KEYS, DesignSettings)
@@ -124,13 +125,14 @@ OPAMP_FIGURES = {
     "supply_v": (L.VOLTAGE_RANGE_V, "V", "Total supply (V), for the swing when output_swing_v is not given."),
     "rout_ohm": (L.ROUT_RANGE_OHM, "ohm", "Open-loop output resistance (Ω), default 0; above 0 the stages load "
                                          "each other and the whole circuit is solved at once (costlier)."),
-    "en_nv_rthz": ((0.0, 1e6), None, "Input voltage noise density (nV/√Hz)."),
-    "in_pa_rthz": ((0.0, 1e9), None, "Input current noise density (pA/√Hz)."),
-    "en_corner_hz": ((0.0, 1e9), "Hz", "1/f corner of the voltage noise (Hz)."),
-    "in_corner_hz": ((0.0, 1e9), "Hz", "1/f corner of the current noise (Hz)."),
-    "vos_v": ((-1.0, 1.0), "V", "Input offset voltage (V)."),
-    "ib_a": ((-1e-3, 1e-3), None, "Input bias current (A)."),
-    "rail_headroom_v": ((0.0, 100.0), "V", "How close to each rail the output swings (V)."),
+    "en_nv_rthz": (L.OPAMP_FIGURE_RANGES["en_nv_rthz"], None, "Input voltage noise density (nV/√Hz)."),
+    "in_pa_rthz": (L.OPAMP_FIGURE_RANGES["in_pa_rthz"], None, "Input current noise density (pA/√Hz)."),
+    "en_corner_hz": (L.OPAMP_FIGURE_RANGES["en_corner_hz"], "Hz", "1/f corner of the voltage noise (Hz)."),
+    "in_corner_hz": (L.OPAMP_FIGURE_RANGES["in_corner_hz"], "Hz", "1/f corner of the current noise (Hz)."),
+    "vos_v": (L.OPAMP_FIGURE_RANGES["vos_v"], "V", "Input offset voltage (V)."),
+    "ib_a": (L.OPAMP_FIGURE_RANGES["ib_a"], None, "Input bias current (A)."),
+    "rail_headroom_v": (L.OPAMP_FIGURE_RANGES["rail_headroom_v"], "V",
+                        "How close to each rail the output swings (V)."),
 }
 
 
@@ -188,6 +190,7 @@ class DesignRequestSchema(FilterSchema):
                     description="`csv`: the BOM as a table; `spice`: the netlist as text; `svg`: the schematic.")
     stage = StrictInteger(validate=ma.validate.Range(min=1), metadata={
         "description": "With `format: svg`: draw only this stage (numbered from 1); default the whole filter."})
+    supply = ma.fields.Nested(SupplySchema, metadata={"description": SUPPLY_DESCRIPTION})
 
     @ma.validates_schema
     def _margins(self, data, **kwargs):
@@ -209,7 +212,8 @@ class DesignRequestSchema(FilterSchema):
             exact=data["exact"], gain=data["gain"], impedance_ohm=data.get("impedance_ohm"),
             stage_peak_margin_db=data["stage_peak_margin_db"], output_amplitude_v=data["output_amplitude_v"],
             gbw_error=data["gbw_error"], passband_margin_db=data.get("passband_margin_db"),
-            stopband_margin_db=data.get("stopband_margin_db"), stock_entries=len(stock)),
+            stopband_margin_db=data.get("stopband_margin_db"), stock_entries=len(stock),
+            supply=None if data.get("supply") is None else SupplySettings.from_json(data["supply"], "supply")),
             "format": data["format"], "stage": data.get("stage")}
 
 
@@ -390,6 +394,7 @@ class SettingsObjectSchema(StrictSchema):
     passband_margin_db = ma.fields.Float(allow_none=True, validate=ma.validate.Range(min=0, max=3))
     stopband_margin_db = ma.fields.Float(allow_none=True, validate=ma.validate.Range(min=0, max=60))
     gain = ma.fields.Float(allow_none=True, validate=ma.validate.Range(min=1e-3, max=1e4))
+    supply = ma.fields.Nested(SupplySchema, allow_none=True, metadata={"description": SUPPLY_DESCRIPTION})
 
 
 _IGNORED = {"description": "Ignored on input (recomputed)."}
@@ -425,6 +430,20 @@ class DesignDocumentSchema(StrictSchema):
     cost = ma.fields.Raw(allow_none=True, metadata=_IGNORED)
 
 
+class DesignStepSchema(ma.Schema):
+    action = one_of(["design", "reselect", "margin", "order"], description=(
+        "`design`: the first design; `reselect`: other part choices of the stages furthest off, verified "
+        "whole; `margin`: the reserve of the band that missed widened; `order`: one more order."))
+    detail = ma.fields.String(metadata={"description": "What changed, with values."})
+    order = ma.fields.Integer(metadata={"description": "Order of the transfer function after the step."})
+    passband_margin_db = ma.fields.Float(metadata={"description": "Passband reserve the step designed with (dB)."})
+    stopband_margin_db = ma.fields.Float(metadata={"description": "Stopband reserve the step designed with (dB)."})
+    status = ma.fields.String(allow_none=True, metadata={
+        "description": "The verdict after the step: meets, misses, unstable or unproved (null: the step could "
+                       "not be made, or no requirement to verify)."})
+    worst_margin_db = ma.fields.Float(allow_none=True, metadata={"description": "Worst margin after the step (dB)."})
+
+
 class DesignSchema(ReplySchema):
     """The design document: stages, requirement, settings, BOM, netlist, summary, verdict and warnings."""
 
@@ -442,6 +461,17 @@ class DesignSchema(ReplySchema):
     verdict = ma.fields.Nested(VerdictSchema, allow_none=True, metadata={
         "description": "The circuit verified against the requirement as asked, on the whole band, with its "
                        "op-amp models (null for designs by order)."})
+    steps = ma.fields.List(ma.fields.Nested(DesignStepSchema), metadata={
+        "description": "What the design loop did, in order: the first design, then (only when it missed) other "
+                       "part choices, wider reserves and one more order, each with the verdict after it. The "
+                       "reply is the first design that meets, else the one with the largest worst margin. "
+                       "Empty for an evaluated document."})
     warnings = ma.fields.List(ma.fields.Nested(WarningSchema))
     overall_gain = ma.fields.Float(allow_none=True)
     output_peak_gain_db = ma.fields.Float(allow_none=True)
+    supply = ma.fields.Nested(SupplyReportSchema, allow_none=True, metadata={
+        "description": "With `settings.supply`: the operating point of every op-amp output, the output offsets "
+                       "and the parts the supply adds; null otherwise."})
+    noise = ma.fields.Nested(DesignNoiseSchema, allow_none=True, metadata={
+        "description": "When an op-amp has noise figures: the output noise over the netlist's `.noise` sweep and "
+                       "its largest contributions; null otherwise."})

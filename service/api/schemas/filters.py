@@ -42,7 +42,10 @@ class FrequencyOrPair(ma.fields.Field):
 
     def openapi_properties(self) -> dict:
         single = dict(self._single.openapi_properties(), minimum=1e-3, maximum=1e10)
-        return {"oneOf": [single, {"type": "array", "items": single, "minItems": 2, "maxItems": 2}]}
+        forms = [single, {"type": "array", "items": single, "minItems": 2, "maxItems": 2}]
+        if self.allow_none:
+            forms.append({"type": "null"})
+        return {"oneOf": forms}
 
 
 class GroupDelayLimitSchema(StrictSchema):

@@ -7,14 +7,19 @@ import marshmallow as ma
 from service.api.fields import Quantity, StrictInteger
 from service.api.schemas.common import ReplySchema, StrictSchema, one_of
 from service.api.schemas.designs import DesignDocumentSchema
+from service.api.schemas.electrical import (HeadroomRequestSchema, NoiseRequestSchema, ResponseHeadroomSchema,
+                                            ResponseNoiseSchema)
 from service.api.schemas.filters import (
-    BAND_RESPONSES, FREQ_RANGE, FilterSchema, FrequencyOrPair, SectionSchema, _ATTEN, _RIPPLE, _check_pair,
+    BAND_RESPONSES, FREQ_RANGE, FilterSchema, FrequencyOrPair, GroupDelayLimitSchema, SectionSchema, _ATTEN, _RIPPLE,
+    _check_pair,
     requirement_from,
 )
 from service.api.schemas.verdicts import VerdictSchema
-from service.approximation import CutoffAt, Family, ResponseType, Section, SectionKind
+from service.approximation import (CutoffAt, Excess, Family, GroupDelayLimit, ResponseType, Section, SectionKind,
+                                   SectionOrder)
 from service.response import FrequencyGrid, TimeGrid
-from service.workflows import DesignDocument, MaskSegment, Requirement, ResponseRequest, Zpk
+from service.workflows import (DesignDocument, HeadroomRequest, MaskSegment, NoiseRequest, Requirement,
+                               ResponseRequest, Zpk)
 
 MAX_LIST = 10_000
 _FREQ0 = ma.validate.Range(min=0, max=1e10)
@@ -87,14 +92,28 @@ class MaskSegmentSchema(StrictSchema):
             raise ma.ValidationError("a segment with max_loss_db needs a finite stop_hz", "stop_hz")
 
 
+_AS_SENT = "Accepted (may be null) so that a design document's `requirement` can be sent as it is; not used."
+
+
 class RequirementMaskSchema(StrictSchema):
+    """A requirement by band edges, verified like a design's (the `requirement` object of a design document is
+    accepted as it is)."""
+
     response = one_of(ResponseType, required=True, description="Response type of the requirement.")
     passband_hz = FrequencyOrPair(required=True)
     stopband_hz = FrequencyOrPair(required=True)
     passband_ripple_db = ma.fields.Float(required=True, validate=_RIPPLE)
     stopband_attenuation_db = ma.fields.Float(required=True, validate=_ATTEN)
-    passband_upper_hz = Quantity(unit="Hz", validate=FREQ_RANGE, metadata={
+    passband_upper_hz = Quantity(unit="Hz", allow_none=True, validate=FREQ_RANGE, metadata={
         "description": "Highpass and bandstop: where the open passband's check ends (Hz); default 10 x its edge."})
+    group_delay = ma.fields.Nested(GroupDelayLimitSchema, allow_none=True, metadata={
+        "description": "Bessel lowpass requirements: the delay limit, verified too."})
+    family = one_of(Family, allow_none=True, description="The family, for the delay limit's rule. " + _AS_SENT)
+    order = StrictInteger(allow_none=True, validate=ma.validate.Range(min=1, max=20), metadata={"description": _AS_SENT})
+    cutoff_hz = FrequencyOrPair(allow_none=True, metadata={"description": _AS_SENT})
+    cutoff_at = one_of(CutoffAt, allow_none=True, description=_AS_SENT)
+    excess = one_of(Excess, allow_none=True, description=_AS_SENT)
+    section_order = one_of(SectionOrder, allow_none=True, description=_AS_SENT)
 
     @ma.validates_schema
     def _pairs(self, data, **kwargs):
@@ -109,7 +128,11 @@ def mask_from(spec: dict | None):
     if spec is None:
         return None
     if "requirement" in spec:
-        return Requirement(**spec["requirement"])
+        given = {k: v for k, v in spec["requirement"].items()
+                 if v is not None and k not in ("order", "cutoff_hz", "cutoff_at", "excess", "section_order")}
+        if given.get("group_delay") is not None:
+            given["group_delay"] = GroupDelayLimit(**given["group_delay"])
+        return Requirement(**given)
     return tuple(MaskSegment(seg["start_hz"], seg.get("stop_hz"), seg.get("max_loss_db"), seg.get("min_loss_db"))
                  for seg in spec["segments"])
 
@@ -176,6 +199,12 @@ class ResponseRequestSchema(StrictSchema):
         "`csv`: a row per frequency (or per time point with `table: time`); `svg`: magnitude and phase, group "
         "delay and step response, with the mask."))
     table = one_of(["frequency", "time"], load_default="frequency", description="Rows of the CSV table.")
+    noise = ma.fields.Nested(NoiseRequestSchema, metadata={
+        "description": "Design documents: output noise density on the grid, integrated noise over `band_hz`, "
+                       "per-part and per-stage contributions ranked, and SNR and dynamic range."})
+    headroom = ma.fields.Nested(HeadroomRequestSchema, metadata={
+        "description": "Design documents: every op-amp output's peak level over frequency against its range, at "
+                       "`input_peak_v` or `output_peak_v`, with a warning where a stage clips before the output."})
 
     @ma.validates_schema
     def _exactly_one_system(self, data, **kwargs):
@@ -206,7 +235,9 @@ class ResponseRequestSchema(StrictSchema):
             system=system, frequencies=frequencies_from(data.get("frequencies")),
             time=TimeGrid(time.get("stop_s"), time.get("points")) if time else None,
             mask=mask_from(data.get("mask")), passband_hz=data.get("passband_hz"),
-            attenuation_at_hz=tuple(data.get("attenuation_at_hz") or ()), figure=data["format"] == "svg"),
+            attenuation_at_hz=tuple(data.get("attenuation_at_hz") or ()), figure=data["format"] == "svg",
+            noise=None if "noise" not in data else NoiseRequest.from_json(data["noise"], "noise"),
+            headroom=None if "headroom" not in data else HeadroomRequest.from_json(data["headroom"], "headroom")),
             "format": data["format"], "table": data["table"]}
 
 
@@ -284,6 +315,10 @@ class ResponseSchema(ReplySchema):
     mask_result = ma.fields.Nested(VerdictSchema, allow_none=True, metadata={
         "description": "With a mask: the verdict of the one verifier (the same as a design's)."})
     notes = ma.fields.List(ma.fields.String())
+    noise = ma.fields.Nested(ResponseNoiseSchema, allow_none=True, metadata={
+        "description": "With `noise` (design documents): the noise section; null otherwise."})
+    headroom = ma.fields.Nested(ResponseHeadroomSchema, allow_none=True, metadata={
+        "description": "With `headroom` (design documents): the level of every op-amp output; null otherwise."})
 
 
 #: Schemas referenced by name from custom fields (registered as OpenAPI components by the app).

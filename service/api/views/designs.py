@@ -62,8 +62,21 @@ values (circuit engine), not from the design formulas.
 of one stage with `stage` (numbered from 1): parts with ref and value, op-amps,
 each stage framed with its section.
 
-Mains-interference notches must never be connected to the mains: follow local
-electrical codes and licensed practice for anything mains-connected.
+`supply` {v_pos, v_neg, mid_rail, input_coupling} puts the filter on the board's
+rails: on a single rail (v_neg 0) the stages are referred to a mid-rail bias
+network (a buffered divider, or the divider alone) and the input is coupled as
+`input_coupling` says (or as the response needs); those parts join the BOM and the
+netlist, and `supply` in the reply gives every op-amp output's DC operating point
+against its range and the output offset (the op-amps' `vos_v`, `ib_a`) per stage
+and at the output. The supply is kept in `settings`, so evaluation and
+/v1/responses rebuild the same circuit. When the op-amp has noise figures
+(`en_nv_rthz`, `in_pa_rthz`, 1/f corners), `noise` summarizes the output noise over
+the netlist's sweep, and the netlist carries `.noise` (output and input named in a
+comment) and the op-amps' noise generators.
+
+Mains-interference notches must never be connected to the mains, and a supply
+derived from the mains or above 60 V DC can hurt someone: follow local electrical
+codes and licensed practice for anything mains-connected or high-voltage.
 
 Example (Larkspur Fluidics PM-7 accelerometer anti-aliasing filter, PM-7 stock:
 E96 1 % thin-film resistors, E12 C0G capacitors 100 pF-100 nF).

@@ -36,7 +36,27 @@ cannot hide a failure. The mask is checked by the same verifier as the designs'
 verdict (`mask_result`: on the whole band, from the poles and zeros, with
 stability and the open-band rule).
 
-`format=csv`: a row per frequency (or per time point with `table: time`);
+For a `design`, on the supply of its `settings` (a single rail's bias network
+included), two more sections:
+
+- `noise` {band_hz, temperature_k, full_scale_v | input_peak_v, points_per_decade,
+  opamp}: the output noise density (V/√Hz) on the grid and input-referred, the RMS
+  noise integrated over `band_hz` (default the whole grid; a band outside it is a
+  422), every part's, source's and stage's share ranked, and, given a level, the
+  signal-to-noise ratio; the dynamic range where the op-amps' output ranges are
+  known. Resistors give 4kTR, op-amps their `en_nv_rthz`, `in_pa_rthz` and 1/f
+  corners (`opamp` sets them for op-amps that give none). `netlist` is the circuit
+  with `.noise v(out) VIN` over the band: ngspice's `onoise_total` reproduces it.
+- `headroom` {input_peak_v | output_peak_v}: every op-amp output's level over
+  frequency against its range (swing, rails less `rail_headroom_v`), the input at
+  which each clips, and warnings naming the stage, level, limit and frequency where
+  a stage clips, or clips before the output does. An input beyond the rails is a 422.
+
+A transfer function has no circuit: `noise` or `headroom` with `filter`, `zeros` +
+`poles` or `sections` is a 422 naming the field.
+
+`format=csv`: a row per frequency (or per time point with `table: time`), with the
+noise densities and op-amp levels as columns when asked;
 `format=svg`: magnitude and phase, group delay and step response, with the mask.
 At most ROLLOFF_MAX_FREQUENCY_POINTS frequencies and ROLLOFF_MAX_TIME_POINTS time points.
 
