@@ -9,7 +9,7 @@ a requirement every trial is verified against for the yield (1 dB to 800 Hz,
 Run:
   python tests/bench/bench_tolerance.py [--trials 10000] [--repeat 5] [--big 0] [--mask] [--spice-trials 500]
   python tests/bench/bench_tolerance.py --http [--rounds 5] [--requests 3] [--spice-trials 10000] [--mask]
-  python tests/bench/bench_tolerance.py --profile [--mask]
+  python tests/bench/bench_tolerance.py --profile [--mask] [--max-work 1000000000] [--tree OTHER_CHECKOUT]
   python tests/bench/bench_tolerance.py --compare BEFORE [--after HEAD] [--rounds 8] [--repeat 5]
   python tests/bench/bench_tolerance.py --quick      # a short run of every mode's code path (1,000 trials)
 
@@ -35,7 +35,11 @@ variable for the server (printed when set).
 
 ``--profile``: cProfile of one in-process ``run_tolerance`` and of one whole
 request through the Flask test client (body parsing, document reading,
-computation, encoding), top entries by cumulative and by own time.
+computation, encoding), top entries by cumulative and by own CPU time; ``--max-work``
+sets the app's work limit (the 10,000-trial reference request is above the
+default one).  ``--tree PATH`` profiles another checkout's ``service`` (for
+example ``git archive main service tests`` extracted in a folder: the profile
+before a change).
 
 ``--compare BEFORE`` times two commits in one run: both are extracted with
 ``git archive`` (the AFTER tree whole, the BEFORE tree the same except
@@ -406,11 +410,11 @@ def http_bench(trials: int, rounds: int, requests: int, spice_trials: int, maske
 
 # ---------------------------------------------------------------- profile
 
-def profile(trials: int, masked: bool, top: int = 30) -> None:
+def profile(trials: int, masked: bool, max_work: str | None = None, top: int = 30) -> None:
     from service import create_app
     run = InProcess(masked)
     body = json.dumps(request_body(run.doc, trials, 1, masked))
-    app = create_app()
+    app = create_app({"max_work": int(max_work)} if max_work else None)
     client = app.test_client()
 
     def request():
@@ -421,12 +425,13 @@ def profile(trials: int, masked: bool, top: int = 30) -> None:
 
     for name, fn in (("run_tolerance, in-process", lambda: run(trials)), ("POST /v1/tolerance, test client", request)):
         fn()
-        pr = cProfile.Profile()
-        t0 = time.perf_counter()
+        pr = cProfile.Profile(time.process_time)         # CPU time: the figures hold on a loaded machine
+        t0, c0 = time.perf_counter(), time.process_time()
         pr.enable()
         fn()
         pr.disable()
-        print(f"== {name}: {time.perf_counter() - t0:.3f} s under the profiler ({load()})")
+        print(f"== {name}: {time.process_time() - c0:.3f} s CPU ({time.perf_counter() - t0:.3f} s wall) under the "
+              f"profiler, whose times are CPU seconds ({load()})")
         for key in ("cumulative", "tottime"):
             s = io.StringIO()
             pstats.Stats(pr, stream=s).strip_dirs().sort_stats(key).print_stats(top)
@@ -445,7 +450,7 @@ def main() -> None:
     ap.add_argument("--rounds", type=int, default=5)
     ap.add_argument("--requests", type=int, default=3, help="requests per round (--http)")
     ap.add_argument("--port", type=int, default=None)
-    ap.add_argument("--max-work", default=None, help="ROLLOFF_MAX_WORK of the server (--http)")
+    ap.add_argument("--max-work", default=None, help="ROLLOFF_MAX_WORK of the server (--http) or the app (--profile)")
     ap.add_argument("--profile", action="store_true")
     ap.add_argument("--quick", action="store_true", help="short runs of every mode")
     ap.add_argument("--child", type=int, default=0)
@@ -467,7 +472,7 @@ def main() -> None:
         a.trials, a.repeat, a.rounds, a.requests = 1000, 2, 2, 2
         a.spice_trials = a.spice_trials or 100
     if a.profile:
-        profile(a.trials, a.mask)
+        profile(a.trials, a.mask, a.max_work)
         return
     if a.http:
         http_bench(a.trials, a.rounds, a.requests, a.spice_trials or a.trials, a.mask, a.port, a.max_work)
