@@ -104,7 +104,7 @@ def _trial_roots(roots, t: int) -> tuple[np.ndarray, np.ndarray, float]:
 
 
 def rank(parts: list[VariedPart], stage_s: dict, mag_s: np.ndarray, f_hz: np.ndarray) -> list[dict]:
-    """Sensitivity rows, largest contribution to the spread first.
+    """Sensitivity rows, largest contribution to the spread first (equal ones by stage, then ref: :func:`_ranked`).
 
     Returns
     -------
@@ -121,9 +121,38 @@ def rank(parts: list[VariedPart], stage_s: dict, mag_s: np.ndarray, f_hz: np.nda
         rows.append({"ref": p.ref, "kind": p.kind, "stage": p.stage + 1, "tolerance": p.tolerance,
                      "f0": sf, "q": sq, "magnitude_db_per_pct": mag, "contribution_db": c_db,
                      "contribution_f0_q": c_fq})
-    rows.sort(key=lambda r: (-(r["contribution_db"] if r["contribution_db"] is not None else r["contribution_f0_q"]),
-                             r["ref"]))
-    return rows
+    return _ranked(rows)
+
+
+#: Contributions within this relative difference are equal: the central differences are accurate to about
+#: 1e-8 and their rounding moves the last digits, so nearer contributions are listed by stage, then ref.
+TIE_RELATIVE = 1e-6
+
+
+def _contribution(row: dict) -> float:
+    return row["contribution_db"] if row["contribution_db"] is not None else row["contribution_f0_q"]
+
+
+def _natural_ref(ref: str) -> tuple:
+    """``"C10"`` after ``"C9"``: the letters, then the number."""
+    head = ref.rstrip("0123456789")
+    tail = ref[len(head):]
+    return (head, int(tail) if tail else -1, ref)
+
+
+def _ranked(rows: list[dict]) -> list[dict]:
+    """``rows`` by contribution, largest first; runs equal within :data:`TIE_RELATIVE` of the run's largest by
+    stage, then ref, so the order does not depend on the rounding of equal sensitivities (e.g. the -1/2 of
+    every R and C of a unity-gain Sallen-Key stage)."""
+    rows = sorted(rows, key=lambda r: (-_contribution(r), _natural_ref(r["ref"])))
+    out: list[dict] = []
+    run: list[dict] = []
+    for r in rows:
+        if run and _contribution(r) < _contribution(run[0]) * (1.0 - TIE_RELATIVE):
+            out += sorted(run, key=lambda x: (x["stage"], _natural_ref(x["ref"])))
+            run = []
+        run.append(r)
+    return out + sorted(run, key=lambda x: (x["stage"], _natural_ref(x["ref"])))
 
 
 def _key(f: float) -> str:
