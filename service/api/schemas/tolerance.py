@@ -53,18 +53,46 @@ class ToleranceRequestSchema(StrictSchema):
             tempco_ppm_per_c=data.get("tempco_ppm_per_c"), gbw_spread=data.get("gbw_spread"),
             frequencies=frequencies_from(data.get("frequencies")), mask=mask_from(data.get("mask")),
             sensitivity_frequencies_hz=tuple(data.get("sensitivity_frequencies_hz") or ()),
-            include_trials=data["include_trials"], figure=data["format"] == "svg"),
+            include_trials=data["include_trials"], reply=data["format"]),
             "format": data["format"]}
 
 
+class FloatList(ma.fields.List):
+    """A list of numbers in the reply, documented as ``List(Float)``.
+
+    The computation hands over plain Python floats already (``ndarray.tolist``),
+    so the reply is encoded without a per-number Python call; anything else is
+    serialized item by item as a ``List(Float)``.
+    """
+
+    def __init__(self, **kwargs):
+        super().__init__(ma.fields.Float(), **kwargs)
+
+    def _serialize(self, value, attr, obj, **kwargs):
+        if type(value) is list and all(type(v) is float for v in value[:1]):
+            return value
+        return super()._serialize(value, attr, obj, **kwargs)
+
+
+class PercentileRows(ma.fields.Dict):
+    """``{percentile name: [number per frequency]}``, documented as ``Dict(String, List(Float))``."""
+
+    def __init__(self, **kwargs):
+        super().__init__(keys=ma.fields.String(), values=FloatList(), **kwargs)
+
+    def _serialize(self, value, attr, obj, **kwargs):
+        if type(value) is dict and all(type(v) is list for v in value.values()):
+            return {k: self.value_field._serialize(v, None, None) for k, v in value.items()}
+        return super()._serialize(value, attr, obj, **kwargs)
+
+
 class ToleranceSchema(ReplySchema):
-    frequency_hz = ma.fields.List(ma.fields.Float())
-    magnitude_db_percentiles = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.List(ma.fields.Float()),
-                                              metadata={"description": "min, p0.135, p2.5, p50, p97.5, p99.865, max "
+    frequency_hz = FloatList()
+    magnitude_db_percentiles = PercentileRows(metadata={"description": "min, p0.135, p2.5, p50, p97.5, p99.865, max "
                                                                        "of the magnitude (dB), each over frequency."})
-    phase_deg_percentiles = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.List(ma.fields.Float()))
-    group_delay_s_percentiles = ma.fields.Dict(keys=ma.fields.String(), values=ma.fields.List(ma.fields.Float()))
-    nominal_magnitude_db = ma.fields.List(ma.fields.Float())
+    phase_deg_percentiles = PercentileRows()
+    group_delay_s_percentiles = PercentileRows()
+    nominal_magnitude_db = FloatList()
     metrics = ma.fields.Dict(metadata={"description": "Per metric: mean, std and percentiles (−3 dB frequency, "
                                                       "passband ripple, stopband attenuation, each stage's f0 and Q)."})
     yield_ = ma.fields.Dict(attribute="yield", data_key="yield", allow_none=True, metadata={
