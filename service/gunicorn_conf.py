@@ -27,6 +27,7 @@ import os
 import sys
 
 from service.config import load_or_exit
+from service.malloc import limit_arenas
 
 # An invalid ROLLOFF_* value stops the master here: one line on stderr, exit status 2, no traceback.
 _settings = load_or_exit()
@@ -52,6 +53,10 @@ limit_request_line = 8190
 # forked workers on a 2-core machine made a 201-point response ~6x slower (median 166 ms against 25 ms,
 # measured here). gunicorn sets these in the master before it preloads the app (so before numpy loads).
 raw_env = ["OPENBLAS_NUM_THREADS=1", "OMP_NUM_THREADS=1", "MKL_NUM_THREADS=1"]
+# Memory: one malloc arena per computing thread (service/malloc.py), set before the app is preloaded;
+# without the cap a worker's resident memory grew by one heavy request's arrays per thread used.
+MALLOC_ARENAS = _settings.compute_slots
+limit_arenas(MALLOC_ARENAS)
 
 
 def prepare_metrics_dir(path: str) -> None:

@@ -107,6 +107,11 @@ def _refine_for_slack(part: Partition, nominal: RootSet, inverse: RootSet | None
                 r = np.concatenate([roots.zeros[0], roots.poles[0]])
                 m[rows] = _curvature_table(r, a[rows], b[rows], EPSILON_GRID[:1])[:, 0]
         need = m * (b - a) ** 2 / 8.0 > slack
+        if np.isinf(m[need]).any():
+            # a root on an interval (a transmission zero on the axis, the zeros at infinity of an all-pole
+            # response at the end of an open stopband): one half keeps it whatever the cutting, its slack
+            # stays infinite and no trial could be proved on this partition
+            return None
         need &= (b - a) > 1e-12 * b
         if not need.any():
             return s, inv, a, b

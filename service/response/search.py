@@ -27,6 +27,8 @@ from service.response.criteria import (DELAY_PRECISION_PCT, DELAY_TOLERANCE_PCT,
 POINTS_PER_DECADE = 16
 #: A segment that starts at 0 Hz gets its first log point this far below the lowest root frequency.
 DC_DECADES = 2.0
+#: A root whose imaginary part is below this fraction of its magnitude is real (rounding of the root finder).
+REAL_ROOT_IMAG = 1e-9
 #: Rounds of cutting before the search gives up (each round cuts every undecided interval).
 MAX_ROUNDS = 90
 #: A stopband open to infinity is searched in frequency up to this multiple of the largest root magnitude,
@@ -115,7 +117,10 @@ def _critical(roots: RootSet) -> np.ndarray:
     """Magnitudes and imaginary parts of a trial's roots (rad/s): where the response changes shape."""
     r = np.concatenate([roots.zeros.ravel(), roots.poles.ravel()])
     r = r[np.isfinite(r)]
-    vals = np.concatenate([np.abs(r), np.abs(r.imag)])
+    mag, im = np.abs(r), np.abs(r.imag)
+    # an imaginary part at rounding level (a real root's) marks no frequency: kept, it would start a
+    # passband's search some twenty decades below every root (only the partition's work, not its bounds)
+    vals = np.concatenate([mag, im[im > REAL_ROOT_IMAG * mag]])
     return np.unique(vals[vals > 0])
 
 

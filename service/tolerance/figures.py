@@ -55,8 +55,11 @@ def columns(selected: np.ndarray) -> slice | np.ndarray:
 
 
 def positive_columns(grids: Grids) -> slice | np.ndarray:
-    """The metric points above 0 Hz (the grid is sorted: at most a leading DC point is left out)."""
-    return columns(grids.positive)
+    """The metric points above 0 Hz (the grid is sorted: at most a leading DC point is left out); read once per grid."""
+    cached = grids.__dict__.get("_positive_columns")
+    if cached is None:
+        cached = grids.__dict__["_positive_columns"] = columns(grids.positive)
+    return cached
 
 
 def reference_gain(g: np.ndarray, grids: Grids) -> np.ndarray:
@@ -88,15 +91,15 @@ def f3db(g: np.ndarray, ref: np.ndarray, grids: Grids) -> np.ndarray:
     tc, m = gp.shape
     rows = np.arange(tc)
     idx = np.arange(m)[None, :]
-    any_below = below.any(axis=1)
 
     def first(sel):
-        k = np.where(sel.any(axis=1), np.argmax(sel, axis=1), -1)
-        return k
+        """Column of each row's first True, -1 when none (one pass: argmax, then the found entry read back)."""
+        k = np.argmax(sel, axis=1)
+        return np.where(sel[rows, k], k, -1)
 
     def last(sel):
-        k = np.where(sel.any(axis=1), m - 1 - np.argmax(sel[:, ::-1], axis=1), -1)
-        return k
+        k = m - 1 - np.argmax(sel[:, ::-1], axis=1)
+        return np.where(sel[rows, k], k, -1)
 
     def cross(a, b, ok):
         a = np.clip(a, 0, m - 1)
@@ -106,18 +109,18 @@ def f3db(g: np.ndarray, ref: np.ndarray, grids: Grids) -> np.ndarray:
 
     rt = grids.response
     if rt is ResponseType.LOWPASS:
-        k = first(below)
-        return cross(k - 1, k, any_below & (k > 0))
+        k = first(below)                                      # -1 when no point is below the level
+        return cross(k - 1, k, k > 0)
     if rt is ResponseType.HIGHPASS:
         k = last(below)
-        return cross(k, k + 1, any_below & (k >= 0) & (k < m - 1))
+        return cross(k, k + 1, (k >= 0) & (k < m - 1))
     if rt is ResponseType.BANDPASS:
         kp = np.argmax(gp, axis=1)[:, None]
         lo = last(below & (idx < kp))
         hi = first(below & (idx > kp))
         return np.stack([cross(lo, lo + 1, lo >= 0), cross(hi - 1, hi, hi > 0)], axis=1)
     k0, k1 = first(below), last(below)
-    ok = any_below & (k0 > 0) & (k1 < m - 1)
+    ok = (k0 > 0) & (k1 < m - 1)                              # k0 > 0 implies a point below, so k1 >= 0
     return np.stack([cross(k0 - 1, k0, ok), cross(k1, k1 + 1, ok)], axis=1)
 
 

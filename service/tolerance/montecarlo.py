@@ -9,8 +9,9 @@ are reduced per chunk and never depend on the chunking (``chunk_trials``, or
 the default of :func:`tile_trials`, bounded by the memory limit).
 
 Magnitude, phase and group delay on the caller's grid are kept per trial as
-float32 in frequency-major stores (F_b, T), sorted in place per frequency for
-the percentiles (:mod:`service.tolerance.statistics`).  When the stores of all
+float32 in frequency-major stores (F_b, T); the percentiles read the order
+statistics they need from them by selection, not by sorting
+(:func:`service.tolerance.statistics.row_percentiles`).  When the stores of all
 frequencies would exceed the store budget the caller's grid is split into
 frequency blocks, each swept over all trials again; the per-trial figures are
 then read in a first sweep of the metric grid alone.  The split depends on
@@ -40,11 +41,12 @@ from service.deadline import check as check_deadline
 from service.tolerance import figures as fig
 from service.tolerance.grids import Grids
 from service.tolerance.sampling import Samples
-from service.tolerance.statistics import sorted_percentiles
+from service.tolerance.statistics import row_percentiles
 
-#: Default trials per chunk for up to REFERENCE_COLUMNS evaluated frequencies (speed only, never the numbers).
+#: Largest default chunk (trials processed at once; speed only, never the numbers).
 TILE_TRIALS = 1024
-REFERENCE_COLUMNS = 1024
+#: Working set of one chunk's complex response: the chunk's arrays stay in cache (measured fastest here).
+TILE_BYTES = 3 * 2**20
 MIN_TILE_TRIALS = 64
 #: Bytes of working memory per trial and evaluated frequency while a chunk is processed (measured, rounded up).
 WORK_BYTES_PER_POINT = 64
@@ -55,9 +57,10 @@ STORE_BUDGET_BYTES = 160 * 2**20
 
 
 def tile_trials(columns: int) -> int:
-    """Default chunk (trials processed at once) for ``columns`` evaluated frequencies."""
+    """Default chunk (trials processed at once) for ``columns`` evaluated frequencies: a power of two whose
+    complex response (16 bytes a point) fits :data:`TILE_BYTES`, within [MIN_TILE_TRIALS, TILE_TRIALS]."""
     t = TILE_TRIALS
-    while t > MIN_TILE_TRIALS and t * columns > TILE_TRIALS * REFERENCE_COLUMNS:
+    while t > MIN_TILE_TRIALS and 16 * t * columns > TILE_BYTES:
         t //= 2
     return t
 
@@ -79,7 +82,7 @@ class Sweep:
     magnitude_db: np.ndarray     # (7, F) percentiles
     phase_deg: np.ndarray        # (7, F)
     group_delay_s: np.ndarray    # (7, F)
-    figures: TrialFigures
+    figures: TrialFigures | None
     blocks: int
     tile: int
 
@@ -124,13 +127,15 @@ SMALL_ANGLE = 1e-2
 
 
 def _phase_delay(hc: np.ndarray, hs: np.ndarray, f: np.ndarray, fs: np.ndarray, nominal: np.ndarray,
-                 phase_nominal: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Phase (degrees, float32) and group delay (s, float64), each (Tc, Fb); see the module notes."""
+                 phase_nominal: np.ndarray, ph_out: np.ndarray, gd_out: np.ndarray) -> None:
+    """Phase (degrees) and group delay (s) of a chunk (Tc, Fb) into float32 ``ph_out``, ``gd_out`` (Tc, Fb);
+    see the module notes.  The delay is computed in float64 and rounded once, on the way out."""
     q32 = np.multiply(hc, np.conj(nominal)[None, :], out=np.empty(hc.shape, dtype=np.complex64))
     ph = np.angle(q32)                           # the product in float64, rounded to complex64 on output
     del q32
     ph += phase_nominal.astype(np.float32)[None, :]
-    ph *= np.float32(180.0 / np.pi)
+    np.multiply(ph, np.float32(180.0 / np.pi), out=ph_out)
+    del ph
     q = np.conjugate(hc)
     np.multiply(hs, q, out=q)                    # H(f(1+d)) conj(H(f))
     x, y = q.real, q.imag
@@ -139,13 +144,12 @@ def _phase_delay(hc: np.ndarray, hs: np.ndarray, f: np.ndarray, fs: np.ndarray, 
     if not (gd.max() <= SMALL_ANGLE and gd.min() >= -SMALL_ANGLE and x.min() > 0):
         big = (np.abs(gd) > SMALL_ANGLE) | (x <= 0) | np.isnan(gd)
         gd[big] = np.arctan2(y[big], x[big])
-    gd *= (-1.0 / (2.0 * np.pi * (fs - f)))[None, :]
-    return ph, gd
+    np.multiply(gd, (-1.0 / (2.0 * np.pi * (fs - f)))[None, :], out=gd_out, casting="same_kind")
 
 
 def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, nominal: np.ndarray,
                 phase_nominal_rad: np.ndarray, *, memory_limit_bytes: int, chunk_trials: int | None = None,
-                store_budget_bytes: int | None = None) -> Sweep:
+                store_budget_bytes: int | None = None, phase: bool = True, figures: bool = True) -> Sweep:
     """Sweep every trial; percentiles on the caller's grid and per-trial figures.
 
     Parameters
@@ -169,6 +173,12 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
         Trials processed at once (at least :data:`MIN_TILE_TRIALS`); None:
         :func:`tile_trials`.  Either is bounded by the memory limit; the
         numbers never depend on it.
+    phase : bool
+        Compute the phase and group-delay percentiles (else they are NaN).
+    figures : bool
+        Compute the per-trial figures (else ``Sweep.figures`` is None).  The
+        engine evaluates the same frequencies either way, so the percentiles
+        are the same bits whatever is asked.
 
     Returns
     -------
@@ -186,11 +196,12 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
     chunk = tile if chunk_trials is None else max(MIN_TILE_TRIALS, int(chunk_trials))
     chunk = min(chunk, max(MIN_TILE_TRIALS, memory_limit_bytes // 2 // (WORK_BYTES_PER_POINT * columns)))
     engine_limit = max(2**20, memory_limit_bytes // 4)
-    figs = _Figures(trials, grids)
-    out = {k: np.empty((7, nf)) for k in ("mag", "ph", "gd")}
+    figs = _Figures(trials, grids) if figures else None
+    out = {k: np.full((7, nf), np.nan) for k in ("mag", "ph", "gd")}
+    keys = ("mag", "ph", "gd") if phase else ("mag",)
 
     nx = grids.extra_hz.size
-    if not single:
+    if not single and figures:
         engine = _Engine(circuit, samples, grids.evaluation_hz(shifted=False), engine_limit)
         for t0 in range(0, trials, chunk):
             check_deadline("tolerance.montecarlo")
@@ -207,30 +218,32 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
         else:
             cols = np.concatenate([f[c0:c1], fs[c0:c1]])
         engine = _Engine(circuit, samples, cols, engine_limit)
-        stores = [np.empty((w, trials), dtype=np.float32) for _ in range(3)]
+        stores = [np.empty((w, trials), dtype=np.float32) for _ in keys]
         for t0 in range(0, trials, chunk):
             check_deadline("tolerance.montecarlo")
             t1 = min(trials, t0 + chunk)
             sl = slice(t0, t1)
             h = engine(t0, t1)
             if single:
-                g = fig.gain_db(h[:, :nf + nx])
-                figs.add(sl, g[:, grids.order])
-                mag = g[:, :nf]
                 hc, hs = h[:, :nf], h[:, nf + nx:]
+                if figs is not None:
+                    g = fig.gain_db(h[:, :nf + nx])
+                    figs.add(sl, g[:, grids.order])
+                    mag = g[:, :nf]
+                else:
+                    mag = fig.gain_db(hc)                # element by element: the same bits as above
             else:
                 hc, hs = h[:, :w], h[:, w:]
                 mag = fig.gain_db(hc)
-            ph, gd = _phase_delay(hc, hs, f[c0:c1], fs[c0:c1], nominal[c0:c1], phase_nominal_rad[c0:c1])
             stores[0][:, sl] = mag.T
-            stores[1][:, sl] = ph.T
-            stores[2][:, sl] = gd.T
-            del h, hc, hs, mag, ph, gd
-        for key, st in zip(("mag", "ph", "gd"), stores):
-            st.sort(axis=1)
-            out[key][:, c0:c1] = sorted_percentiles(st)
+            if phase:
+                _phase_delay(hc, hs, f[c0:c1], fs[c0:c1], nominal[c0:c1], phase_nominal_rad[c0:c1],
+                             stores[1][:, sl].T, stores[2][:, sl].T)
+            del h, hc, hs, mag
+        for key, st in zip(keys, stores):
+            out[key][:, c0:c1] = row_percentiles(st)
         del stores, engine
-    return Sweep(out["mag"], out["ph"], out["gd"], figs.result(), nblocks, tile)
+    return Sweep(out["mag"], out["ph"], out["gd"], None if figs is None else figs.result(), nblocks, tile)
 
 
 __all__ = ["monte_carlo", "Sweep", "TrialFigures", "tile_trials", "TILE_TRIALS"]

@@ -17,8 +17,14 @@ def _finite(x):
     return x if math.isfinite(x) else None
 
 
+def _floats(values) -> list[float]:
+    """Python floats of a 1-D array, converted in C (``ndarray.tolist``), not one by one."""
+    return np.asarray(values, dtype=np.float64).tolist()
+
+
 def _named(rows: np.ndarray) -> dict[str, list[float]]:
-    return {name: [float(v) for v in rows[i]] for i, name in enumerate(PERCENTILE_NAMES)}
+    rows = np.asarray(rows, dtype=np.float64)
+    return {name: rows[i].tolist() for i, name in enumerate(PERCENTILE_NAMES)}
 
 
 @dataclass
@@ -84,11 +90,11 @@ class ToleranceResult:
     def as_dict(self) -> dict:
         """The JSON reply (plain Python values; None for a figure a trial set lacks)."""
         return {
-            "frequency_hz": [float(x) for x in self.frequency_hz],
+            "frequency_hz": _floats(self.frequency_hz),
             "magnitude_db_percentiles": _named(self.magnitude_db),
             "phase_deg_percentiles": _named(self.phase_deg),
             "group_delay_s_percentiles": _named(self.group_delay_s),
-            "nominal_magnitude_db": [float(x) for x in self.nominal_magnitude_db],
+            "nominal_magnitude_db": _floats(self.nominal_magnitude_db),
             "metrics": self.metrics,
             "yield": self.yield_,
             "sensitivity": self.sensitivity,

@@ -8,6 +8,7 @@ part values and op-amp models, judged exactly as a design is.
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 from typing import Sequence
 
 import numpy as np
@@ -41,16 +42,45 @@ TRIAL_PRECISION_DB = 1e-3
 NOMINAL_POINTS = 2000
 
 
+@dataclass(frozen=True)
+class Outputs:
+    """The parts of the result a run computes (every part by default; a part not asked for is not computed).
+
+    Attributes
+    ----------
+    phase : bool
+        Phase and group-delay percentiles (else NaN).
+    figures : bool
+        Per-trial figures (3 dB frequency, ripple, edge losses, stage f0 and Q), their summaries in
+        ``metrics`` and the included trials (else empty).
+    yield_ : bool
+        The yield, every trial verified against the criteria (else None).
+    sensitivity : bool
+        Sensitivities, and with ``figures`` the worst case (else empty).
+    """
+
+    phase: bool = True
+    figures: bool = True
+    yield_: bool = True
+    sensitivity: bool = True
+
+
+#: Everything: the JSON reply.
+EVERYTHING = Outputs()
+
+
 def _int(value, name: str, lo: int) -> int:
     if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < lo:
         raise ToleranceError(f"{name} must be an integer >= {lo}, got {value!r}", field=name)
     return int(value)
 
 
-def _response_type(response: str | None, f: np.ndarray, g: np.ndarray) -> ResponseType:
+def _response_type(response: str | None, circuit, dense: np.ndarray) -> ResponseType:
+    """The given response type, or the one the nominal response on ``dense`` (Hz) shows (evaluated only then)."""
     try:
         return ResponseType(response)
     except ValueError:
+        g = fig.gain_db(ac_response(circuit, dense, output="out"))[0]
         return infer_response_type(float(g[0]), float(g[-1]), float(np.max(g)))
 
 
@@ -62,7 +92,7 @@ def run_tolerance(plans: list[StagePlan], *, draw_order: Sequence[str] = (), res
                   include_trials: int = 0, memory_limit_bytes: int = DEFAULT_MEMORY_LIMIT_BYTES,
                   max_trials: int = DEFAULT_MAX_TRIALS, max_frequency_points: int = 10_000,
                   chunk_trials: int | None = None, store_budget_bytes: int | None = None,
-                  precision_db: float = TRIAL_PRECISION_DB) -> ToleranceResult:
+                  precision_db: float = TRIAL_PRECISION_DB, outputs: Outputs = EVERYTHING) -> ToleranceResult:
     """Monte Carlo analysis, sensitivities, worst case and yield of a design.
 
     Parameters
@@ -115,6 +145,9 @@ def run_tolerance(plans: list[StagePlan], *, draw_order: Sequence[str] = (), res
     precision_db : float
         How closely each trial's worst margin is located (dB); the pass/fail of
         a trial is proved to the verifier's tolerance whatever this is.
+    outputs : Outputs
+        The parts to compute (default all); the parts computed are the same
+        numbers whatever else is asked.
 
     Returns
     -------
@@ -154,8 +187,7 @@ def run_tolerance(plans: list[StagePlan], *, draw_order: Sequence[str] = (), res
     pos = f[f > 0]
     lo, hi = (pos.min(), pos.max()) if pos.size else (1.0, 1e6)
     dense = np.unique(np.concatenate([np.geomspace(lo, hi, NOMINAL_POINTS), f]))
-    g_dense = fig.gain_db(ac_response(circuit, dense, output="out"))[0]
-    response = _response_type(response, dense, g_dense)
+    response = _response_type(response, circuit, dense)
     if sensitivity_frequencies_hz is None or len(sensitivity_frequencies_hz) == 0:
         sens_f = np.array(sorted({e for s in (criteria.limits if criteria else ()) for e in (s.start_hz, s.stop_hz)
                                   if math.isfinite(e) and e > 0}))
@@ -180,33 +212,21 @@ def run_tolerance(plans: list[StagePlan], *, draw_order: Sequence[str] = (), res
     phase_nom = np.unwrap(np.angle(nominal))
 
     sweep = monte_carlo(circuit, samples, trials, grids, nominal, phase_nom, memory_limit_bytes=memory_limit_bytes,
-                        chunk_trials=chunk_trials, store_budget_bytes=store_budget_bytes)
+                        chunk_trials=chunk_trials, store_budget_bytes=store_budget_bytes, phase=outputs.phase,
+                        figures=outputs.figures)
     tf = sweep.figures
 
     # metrics
     metrics: dict = {}
-    if tf.f3db_hz.ndim == 1:
-        metrics["f3db_hz"] = summary(tf.f3db_hz)
-    else:
-        metrics["f3db_low_hz"] = summary(tf.f3db_hz[:, 0])
-        metrics["f3db_high_hz"] = summary(tf.f3db_hz[:, 1])
-    metrics["passband_ripple_db"] = summary(tf.ripple_db) if tf.ripple_db is not None else None
-    edge_loss = tf.reference_gain_db[:, None] - tf.edge_gain_db          # (T, E)
-    metrics["attenuation_db"] = {_key(e.frequency_hz): summary(edge_loss[:, j])
-                                 for j, e in enumerate(grids.edges) if e.band == "stopband"}
     stage_figs = []
-    for k, plan in enumerate(plans):
-        vals = {c.role: samples.values[c.ref] for c in plan.components}
-        a = plan.topology.achieved(plan.section, plan.strategy, vals)
-        entry = {"f0_hz": summary(a["f0_hz"])}
-        entry["q"] = summary(a["q"]) if plan.section.order == 2 else None
-        stage_figs.append((a["f0_hz"], a["q"] if plan.section.order == 2 else None))
-        metrics.setdefault("stages", []).append(entry)
+    edge_loss = None
+    if tf is not None:
+        metrics, stage_figs, edge_loss = _metrics(plans, samples, grids, tf)
 
     # yield: every trial verified on the whole band, as a design is
     yld = None
     verdicts = None
-    if criteria is not None:
+    if criteria is not None and outputs.yield_:
         roots = design_roots(plans, samples.values)
         verdicts = verify(roots, criteria, precision_db=precision_db, nominal=design_roots(plans),
                           located_trials=include_trials)
@@ -243,20 +263,21 @@ def run_tolerance(plans: list[StagePlan], *, draw_order: Sequence[str] = (), res
                "verdict": "each trial verified on the whole band like a design (stability, every segment, delay)"}
 
     # sensitivity and worst case (nominal values, 25 degC)
+    sens, wc = [], []
     edge_f = np.array([e.frequency_hz for e in grids.edges])
-    all_f = np.unique(np.concatenate([sens_f, edge_f]))
-    mag_all = magnitude_sensitivity(circuit, parts, all_f, max(2**20, memory_limit_bytes // 4))
-    mag_sens = mag_all[:, np.searchsorted(all_f, sens_f)] if sens_f.size else mag_all[:, :0]
-    sens = rank(parts, stage_sensitivity(plans, parts), mag_sens, sens_f)
-    wc = []
-    if grids.edges:
+    if outputs.sensitivity:
+        all_f = np.unique(np.concatenate([sens_f, edge_f]))
+        mag_all = magnitude_sensitivity(circuit, parts, all_f, max(2**20, memory_limit_bytes // 4))
+        mag_sens = mag_all[:, np.searchsorted(all_f, sens_f)] if sens_f.size else mag_all[:, :0]
+        sens = rank(parts, stage_sensitivity(plans, parts), mag_sens, sens_f)
+    if outputs.sensitivity and tf is not None and grids.edges:
         nominal_edge_loss = ref_nom - g_nom[0, [e.column for e in grids.edges]]
         wc = worst_case(circuit, parts, grids, mag_all[:, np.searchsorted(all_f, edge_f)], nominal_edge_loss,
                         edge_loss, max(2**20, memory_limit_bytes // 4))
 
     # the first trials, one by one
     rows = []
-    for i in range(include_trials):
+    for i in range(include_trials if tf is not None else 0):
         r = {"trial": i, "values": {p.ref if p.kind != "opamp" else p.key: float(samples.values[p.key][i])
                                     for p in parts}}
         r["temperature_c"] = None if samples.temperature_c is None else float(samples.temperature_c[i])
@@ -298,9 +319,32 @@ def run_tolerance(plans: list[StagePlan], *, draw_order: Sequence[str] = (), res
         temperature=temp_out, trial_count=trials, criteria=criteria, notes=notes)
 
 
+def _metrics(plans, samples, grids, tf) -> tuple[dict, list, np.ndarray]:
+    """Summaries of the per-trial figures; each stage's closed-form f0 and Q per trial; losses at the edges (T, E)."""
+    metrics: dict = {}
+    if tf.f3db_hz.ndim == 1:
+        metrics["f3db_hz"] = summary(tf.f3db_hz)
+    else:
+        metrics["f3db_low_hz"] = summary(tf.f3db_hz[:, 0])
+        metrics["f3db_high_hz"] = summary(tf.f3db_hz[:, 1])
+    metrics["passband_ripple_db"] = summary(tf.ripple_db) if tf.ripple_db is not None else None
+    edge_loss = tf.reference_gain_db[:, None] - tf.edge_gain_db          # (T, E)
+    metrics["attenuation_db"] = {_key(e.frequency_hz): summary(edge_loss[:, j])
+                                 for j, e in enumerate(grids.edges) if e.band == "stopband"}
+    stage_figs = []
+    for k, plan in enumerate(plans):
+        vals = {c.role: samples.values[c.ref] for c in plan.components}
+        a = plan.topology.achieved(plan.section, plan.strategy, vals)
+        entry = {"f0_hz": summary(a["f0_hz"])}
+        entry["q"] = summary(a["q"]) if plan.section.order == 2 else None
+        stage_figs.append((a["f0_hz"], a["q"] if plan.section.order == 2 else None))
+        metrics.setdefault("stages", []).append(entry)
+    return metrics, stage_figs, edge_loss
+
+
 def _finite_or_none(x) -> float | None:
     x = float(x)
     return x if math.isfinite(x) else None
 
 
-__all__ = ["run_tolerance", "DEFAULT_TRIALS", "DEFAULT_MAX_TRIALS", "MAX_INCLUDED_TRIALS"]
+__all__ = ["run_tolerance", "Outputs", "EVERYTHING", "DEFAULT_TRIALS", "DEFAULT_MAX_TRIALS", "MAX_INCLUDED_TRIALS"]

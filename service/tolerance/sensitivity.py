@@ -7,7 +7,8 @@ central differences with the circuit engine,
 (truncation error O(h^2), ~1e-8):
 
 - each stage's f0 and Q from the poles of the stage circuit alone with ideal
-  op-amps (:func:`service.circuit.transfer_function_zpk`, read back by
+  op-amps (:func:`service.circuit.roots.transfer_roots`, the nominal and all
+  perturbed values of the stage in one batch, read back by
   :func:`service.realization.fit.fit_section`);
 - the magnitude of the whole filter (its given op-amp models) in dB per
   percent change of the part, ``(|H|dB(+h) - |H|dB(-h)) / (2 h * 100)``, at
@@ -32,7 +33,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from service.circuit import Circuit, ac_response, transfer_function_zpk
+from service.circuit import Circuit, ac_response
+from service.circuit.roots import transfer_roots
 from service.deadline import check as check_deadline
 from service.realization.analysis import stage_circuit
 from service.realization.fit import fit_section
@@ -66,30 +68,43 @@ def magnitude_sensitivity(circuit: Circuit, parts: list[VariedPart], f_hz: np.nd
 
 
 def stage_sensitivity(plans, parts: list[VariedPart]) -> dict[str, tuple[float, float | None]]:
-    """``{ref: (S^f0, S^Q)}`` of every passive part on its own stage (ideal op-amps; S^Q None for first order)."""
+    """``{ref: (S^f0, S^Q)}`` of every passive part on its own stage (ideal op-amps; S^Q None for first order).
+
+    Each stage's circuit is built once; its nominal and its ``2 n`` perturbed value sets are one batch of
+    trials whose poles and zeros come from one call of :func:`service.circuit.roots.transfer_roots`.
+    """
     out = {}
     for k, plan in enumerate(plans):
-        base = stage_circuit(plan, None)
-        z, p, g = transfer_function_zpk(base)
-        nom = fit_section(plan.section, z, p, g)
-        for part in parts:
-            if part.stage != k or part.kind == "opamp":
-                continue
-            check_deadline("tolerance.sensitivity")
-            ys = []
-            for sgn in (1.0, -1.0):
-                c = base.with_values({part.key: part.nominal * (1.0 + sgn * REL_STEP)})
-                ys.append(fit_section(plan.section, *transfer_function_zpk(c)))
-            sf = (ys[0]["f0_hz"] - ys[1]["f0_hz"]) / (2.0 * REL_STEP * nom["f0_hz"])
+        mine = [p for p in parts if p.stage == k and p.kind != "opamp"]
+        if not mine:
+            continue
+        check_deadline("tolerance.sensitivity")
+        n = len(mine)
+        factors = np.ones((2 * n + 1, n))
+        idx = np.arange(n)
+        factors[1 + 2 * idx, idx] = 1.0 + REL_STEP
+        factors[2 + 2 * idx, idx] = 1.0 - REL_STEP
+        roots = transfer_roots(stage_circuit(plan, None).with_values(_batch(mine, factors)))
+        fits = [fit_section(plan.section, *_trial_roots(roots, t)) for t in range(2 * n + 1)]
+        nom = fits[0]
+        for i, part in enumerate(mine):
+            up, down = fits[1 + 2 * i], fits[2 + 2 * i]
+            sf = (up["f0_hz"] - down["f0_hz"]) / (2.0 * REL_STEP * nom["f0_hz"])
             sq = None
             if plan.section.order == 2 and nom.get("q"):
-                sq = (ys[0]["q"] - ys[1]["q"]) / (2.0 * REL_STEP * nom["q"])
+                sq = (up["q"] - down["q"]) / (2.0 * REL_STEP * nom["q"])
             out[part.ref] = (float(sf), None if sq is None else float(sq))
     return out
 
 
+def _trial_roots(roots, t: int) -> tuple[np.ndarray, np.ndarray, float]:
+    """Finite zeros, poles (rad/s) and the gain magnitude of trial ``t`` of a RootSet."""
+    z, p = roots.zeros[t], roots.poles[t]
+    return z[np.isfinite(z)], p[np.isfinite(p)], float(np.exp(roots.log_gain[t]))
+
+
 def rank(parts: list[VariedPart], stage_s: dict, mag_s: np.ndarray, f_hz: np.ndarray) -> list[dict]:
-    """Sensitivity rows, largest contribution to the spread first.
+    """Sensitivity rows, largest contribution to the spread first (equal ones by stage, then ref: :func:`_ranked`).
 
     Returns
     -------
@@ -106,9 +121,38 @@ def rank(parts: list[VariedPart], stage_s: dict, mag_s: np.ndarray, f_hz: np.nda
         rows.append({"ref": p.ref, "kind": p.kind, "stage": p.stage + 1, "tolerance": p.tolerance,
                      "f0": sf, "q": sq, "magnitude_db_per_pct": mag, "contribution_db": c_db,
                      "contribution_f0_q": c_fq})
-    rows.sort(key=lambda r: (-(r["contribution_db"] if r["contribution_db"] is not None else r["contribution_f0_q"]),
-                             r["ref"]))
-    return rows
+    return _ranked(rows)
+
+
+#: Contributions within this relative difference are equal: the central differences are accurate to about
+#: 1e-8 and their rounding moves the last digits, so nearer contributions are listed by stage, then ref.
+TIE_RELATIVE = 1e-6
+
+
+def _contribution(row: dict) -> float:
+    return row["contribution_db"] if row["contribution_db"] is not None else row["contribution_f0_q"]
+
+
+def _natural_ref(ref: str) -> tuple:
+    """``"C10"`` after ``"C9"``: the letters, then the number."""
+    head = ref.rstrip("0123456789")
+    tail = ref[len(head):]
+    return (head, int(tail) if tail else -1, ref)
+
+
+def _ranked(rows: list[dict]) -> list[dict]:
+    """``rows`` by contribution, largest first; runs equal within :data:`TIE_RELATIVE` of the run's largest by
+    stage, then ref, so the order does not depend on the rounding of equal sensitivities (e.g. the -1/2 of
+    every R and C of a unity-gain Sallen-Key stage)."""
+    rows = sorted(rows, key=lambda r: (-_contribution(r), _natural_ref(r["ref"])))
+    out: list[dict] = []
+    run: list[dict] = []
+    for r in rows:
+        if run and _contribution(r) < _contribution(run[0]) * (1.0 - TIE_RELATIVE):
+            out += sorted(run, key=lambda x: (x["stage"], _natural_ref(x["ref"])))
+            run = []
+        run.append(r)
+    return out + sorted(run, key=lambda x: (x["stage"], _natural_ref(x["ref"])))
 
 
 def _key(f: float) -> str:

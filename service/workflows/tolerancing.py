@@ -15,7 +15,7 @@ import numpy as np
 
 from service.config import Settings
 from service.response import FrequencyGrid, resolve_frequencies
-from service.tolerance import ToleranceResult, run_tolerance
+from service.tolerance import EVERYTHING, Outputs, ToleranceResult, run_tolerance
 from service.workflows import costs
 from service.workflows.document import DesignDocument
 from service.workflows.figures import tolerance_figure_grid, with_tolerance_figure
@@ -39,7 +39,22 @@ class ToleranceRequest:
     mask: Mask | None = None
     sensitivity_frequencies_hz: tuple[float, ...] = ()
     include_trials: int = 0
-    figure: bool = False
+    reply: str = "json"
+
+    @property
+    def figure(self) -> bool:
+        """The reply is the SVG figure (its drawing is part of the cost)."""
+        return self.reply == "svg"
+
+    def outputs(self) -> Outputs:
+        """What the reply (``json``, ``csv`` or ``svg``) shows, so what the run computes: everything for
+        ``json``; the percentile table for ``csv``; for ``svg`` the magnitude envelope, the yield and the
+        per-trial figures (the figure notes the passband ripple's median and largest value)."""
+        if self.reply == "csv":
+            return Outputs(figures=False, yield_=False, sensitivity=False)
+        if self.reply == "svg":
+            return Outputs(phase=False, sensitivity=False)
+        return EVERYTHING
 
 
 def tolerance(request: ToleranceRequest, settings: Settings, *, path: str = "design") -> ToleranceResult:
@@ -69,13 +84,15 @@ def tolerance(request: ToleranceRequest, settings: Settings, *, path: str = "des
     sens = len(request.sensitivity_frequencies_hz) or (2 * len(criteria.limits) if criteria else 0)
     shape = costs.CircuitShape(tuple(len(p.opamps) for p in plans),
                                loaded=any((u.rout_ohm or 0.0) > 0 for p in plans for u in p.opamps))
-    costs.check_tolerance(shape, request.trials, points, sens, settings, verified=criteria is not None,
-                          figure=request.figure)
+    outputs = request.outputs()
+    costs.check_tolerance(shape, request.trials, points, sens, settings,
+                          verified=criteria is not None and outputs.yield_, figure=request.figure)
     result = run_tolerance(
         plans, draw_order=doc.draw_order(), response=None if doc.response is None else doc.response.value,
         trials=request.trials, seed=request.seed, distribution=request.distribution,
         temperature=request.temperature, tempco_ppm_per_c=request.tempco_ppm_per_c, gbw_spread=request.gbw_spread,
         frequencies_hz=grid, criteria=criteria, sensitivity_frequencies_hz=request.sensitivity_frequencies_hz,
         include_trials=request.include_trials, memory_limit_bytes=settings.memory_limit_bytes,
-        max_trials=settings.max_trials, max_frequency_points=settings.max_frequency_points)
+        max_trials=settings.max_trials, max_frequency_points=settings.max_frequency_points,
+        outputs=outputs)
     return with_tolerance_figure(result, doc, plans, criteria) if request.figure else result

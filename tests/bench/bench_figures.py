@@ -59,7 +59,7 @@ def _results():
     notch_req = Requirement.from_json(NOTCH)
     notch = respond(ResponseRequest(notch_req, frequencies=FrequencyGrid(5.0, 500.0, 801, "log"), mask=notch_req,
                                     figure=True), settings)
-    mc = tolerance(ToleranceRequest(document, trials=500, seed=1, figure=True), settings)
+    mc = tolerance(ToleranceRequest(document, trials=500, seed=1, reply="svg"), settings)
     drawings = [("response figure, anti-alias design (3 stages, 501 points)", design.svg),
                 ("response figure, 50/60 Hz bandstop (801 points)", notch.svg),
                 ("tolerance figure, anti-alias design (500 trials)", mc.svg)]
@@ -71,7 +71,7 @@ def _results():
 
     plans = document.plans()
     criteria = design_criteria(document.requirement, plans)
-    bare = respond(ResponseRequest(document, mask=mask), settings)
+    bare = respond(ResponseRequest(document, mask=mask), settings).result     # its ResponseResult
     from service.realization import cascade_circuit
     from service.response import CircuitSystem
 

@@ -16,7 +16,7 @@ def load() -> str:
 
 def extract_trees(before: str, after: str, tmp: str,
                   packages: tuple[str, ...] = ("service/circuit", "service/tolerance")) -> tuple[str, str]:
-    """``git archive`` AFTER whole into tmp/after and again into tmp/before with ``packages`` of BEFORE.
+    """``git archive`` AFTER whole into tmp/after and again into tmp/before with ``packages`` (folders or files) of BEFORE.
 
     Returns
     -------
@@ -29,6 +29,10 @@ def extract_trees(before: str, after: str, tmp: str,
         subprocess.run(f"git -C {ROOT} archive {after} service tests | tar -x -C {path}", shell=True, check=True)
         trees[name] = path
     for pkg in packages:
-        shutil.rmtree(os.path.join(trees["before"], pkg))
+        path = os.path.join(trees["before"], pkg)
+        if os.path.isdir(path):
+            shutil.rmtree(path)
+        elif os.path.exists(path):
+            os.remove(path)
         subprocess.run(f"git -C {ROOT} archive {before} {pkg} | tar -x -C {trees['before']}", shell=True, check=True)
     return trees["before"], trees["after"]

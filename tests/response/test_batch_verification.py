@@ -49,3 +49,23 @@ def test_batch_verdicts_equal_the_full_search(name):
     # elsewhere it is a proved lower bound
     assert np.all(batch.margin_db[~located & batch.stable[:, None]] <= full.margin_db[~located & batch.stable[:, None]]
                   + 1e-9)
+
+
+def test_rounding_level_imaginary_parts_start_no_search_decades_below_the_roots():
+    # A real pole found with an imaginary part at rounding level (1e-9 rad/s on a 6.3e4 rad/s pole) marks no
+    # frequency: the passband search starts DC_DECADES below the roots either way, and the verdict is the same.
+    # source: scipy.signal.buttap (reference library) for the 5th-order Butterworth poles
+    from scipy import signal
+
+    from service.response.search import DC_DECADES, _critical, _segment_points
+    from service.circuit.roots import RootSet
+
+    _, p, _ = signal.buttap(5)
+    w0 = 2 * np.pi * 1e4
+    poles = p * w0
+    noisy = poles + 1e-9j * (np.abs(poles.imag) < 1e-6)
+    for ps in (poles, noisy):
+        crit = _critical(RootSet.from_zpk([], ps, w0 ** 5))
+        assert crit.min() >= 0.3 * w0
+        pts = _segment_points(0.0, w0, crit)
+        assert pts[1] >= 0.99 * crit.min() * 10 ** -DC_DECADES and pts.size < 60

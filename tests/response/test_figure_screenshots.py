@@ -52,7 +52,7 @@ def test_response_screenshot(document):
 
 def test_tolerance_screenshot(document):
     result = tolerance(ToleranceRequest(document, trials=500, seed=1, temperature={"min_c": -20, "max_c": 70},
-                                        figure=True), Settings())
+                                        reply="svg"), Settings())
     assert result.yield_ is not None
     path = save_png(tolerance_figure(result), "pm7-anti-alias-tolerance")
     assert _png_size(path)[0] == int(WIDTH_IN * DPI)

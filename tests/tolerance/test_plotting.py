@@ -25,7 +25,7 @@ MASK = (MaskSegment(0.0, 300.0, max_loss_db=0.5), MaskSegment(10e3, 50e3, min_lo
 
 @pytest.fixture(scope="module")
 def run():
-    return tolerance(ToleranceRequest(DOC, trials=400, seed=3, mask=MASK, figure=True), SETTINGS)
+    return tolerance(ToleranceRequest(DOC, trials=400, seed=3, mask=MASK, reply="svg"), SETTINGS)
 
 
 def _axes(fig, gid):
@@ -104,7 +104,7 @@ def test_passband_detail_covers_the_envelope_in_the_passband(run):
 
 def test_without_a_mask_no_yield_and_no_markers():
     doc = DesignDocument.from_json({k: v for k, v in EVALUATE_EXAMPLE.items() if k != "requirement"})
-    result = tolerance(ToleranceRequest(doc, trials=100, seed=1, figure=True), SETTINGS)
+    result = tolerance(ToleranceRequest(doc, trials=100, seed=1, reply="svg"), SETTINGS)
     g = groups(tree(result.svg()))
     assert texts(g["title-yield"]) == ["No requirement or mask: yield not computed"]
     assert "title-requirement" not in g and not [k for k in g if "-worst-" in k]

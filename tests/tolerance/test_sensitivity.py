@@ -70,7 +70,8 @@ def test_magnitude_sensitivity_ranking_and_units(butter8_sk, lowpass_mask):
     keys = [repr(PASSBAND_EDGE_HZ), repr(10 ** 3.4)]
     assert all(list(x["magnitude_db_per_pct"]) == keys for x in rows)
     contrib = [x["contribution_db"] for x in rows]
-    assert contrib == sorted(contrib, reverse=True)
+    # largest first, to the sensitivities' accuracy (equal ones within 1e-6 are listed by stage, then ref)
+    assert all(b <= a * (1 + 1e-6) for a, b in zip(contrib, contrib[1:]))
     # scaling every R by (1 + e) and every C by (1 - e) leaves the response unchanged: the magnitude
     # sensitivities of all R sum to those of all C at every frequency (same dimensional argument)
     for k in keys:
@@ -105,3 +106,30 @@ def test_worst_case_bounds_the_uniform_monte_carlo(butter8_sk):
     pred = sum(abs(x["magnitude_db_per_pct"][k]) * x["tolerance"] * 100 for x in r.sensitivity)
     up = [w for w in wc if w["frequency_hz"] == 10 ** 3.4 and w["direction"] == "max_loss"][0]
     assert up["loss_db"] - up["nominal_loss_db"] == pytest.approx(pred, rel=0.15)
+
+
+def test_equal_contributions_listed_by_stage_then_ref(butter8_sk):
+    # source: Schaumann & Van Valkenburg, Design of Analog Filters, 2001, sec. 3.1 / Huelsman, Active and
+    # Passive Analog Filter Design, 1993, ch. 5: in a unity-gain Sallen-Key lowpass every R and C has
+    # S^f0 = -1/2 and |S^Q| <= 1/2 (from memory), so without a mask every capacitor (5 %) contributes
+    # 0.5 x 0.05 and every resistor (1 %) 0.5 x 0.01: two runs of ties, whatever their rounding
+    rows = run_tolerance(butter8_sk, trials=10, frequencies_hz=GRID).sensitivity
+    assert [x["contribution_f0_q"] for x in rows] == pytest.approx([0.025] * 8 + [0.005] * 8, rel=1e-6)
+    caps, res = rows[:8], rows[8:]
+    for run in (caps, res):
+        assert [(x["stage"], int(x["ref"][1:])) for x in run] == sorted((x["stage"], int(x["ref"][1:])) for x in run)
+    assert {x["kind"] for x in caps} == {"capacitor"} and {x["kind"] for x in res} == {"resistor"}
+
+
+def test_ranking_does_not_depend_on_rounding_of_equal_contributions():
+    # common practice (no source): values equal to the method's accuracy are one rank, listed by stage and ref
+    from service.tolerance.sensitivity import _ranked
+
+    def row(ref, stage, c):
+        return {"ref": ref, "stage": stage, "contribution_db": None, "contribution_f0_q": c}
+
+    a = [row("C2", 1, 0.025 * (1 + 3e-12)), row("C10", 2, 0.025), row("C1", 1, 0.025 * (1 - 2e-12)),
+         row("R1", 1, 0.005)]
+    b = [row("C2", 1, 0.025 * (1 - 5e-12)), row("C10", 2, 0.025 * (1 + 4e-12)), row("C1", 1, 0.025),
+         row("R1", 1, 0.005)]
+    assert [r["ref"] for r in _ranked(a)] == [r["ref"] for r in _ranked(b)] == ["C1", "C2", "C10", "R1"]

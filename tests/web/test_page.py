@@ -370,12 +370,13 @@ def test_yield_target_is_sent_only_when_set(page, service):
     assert "yield" not in bodies[0]
     bodies.clear()
     statuses.clear()
-    page.fill("#yield-target", "90")
+    # a target the PM-7 stock grades can reach (90 % cannot: the service answers 422 naming the limiting parts)
+    page.fill("#yield-target", "20")
     page.click("#design-button")
     page.wait_for_selector(COMPLETE, timeout=TIMEOUT_MS)
-    assert bodies[0]["yield"] == {"target": 0.9, "trials": 500, "seed": 1}
+    assert bodies[0]["yield"] == {"target": 0.2, "trials": 500, "seed": 1}
     if statuses[0] == 422:
         # a service that does not take the field yet: the page designs without it and says so
         assert "yield" not in bodies[1] and statuses[1] == 200
         assert "does not take a yield target" in page.inner_text("#status")
-    assert page.inner_text("#yield-target-verdict").startswith("Target 90.0 %")
+    assert page.inner_text("#yield-target-verdict").startswith("Target 20.0 %")

@@ -54,7 +54,7 @@ class ToleranceRequestSchema(StrictSchema):
             tempco_ppm_per_c=data.get("tempco_ppm_per_c"), gbw_spread=data.get("gbw_spread"),
             frequencies=frequencies_from(data.get("frequencies")), mask=mask_from(data.get("mask")),
             sensitivity_frequencies_hz=tuple(data.get("sensitivity_frequencies_hz") or ()),
-            include_trials=data["include_trials"], figure=data["format"] == "svg"),
+            include_trials=data["include_trials"], reply=data["format"]),
             "format": data["format"]}
 
 

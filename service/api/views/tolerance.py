@@ -74,8 +74,8 @@ class Tolerance(MethodView):
     def post(self, _query, args):
         request = args["request"]
         fmt = representation().produce
-        if fmt == "svg" and not request.figure:
-            request = replace(request, figure=True)
+        if request.reply != fmt:            # the run computes what the negotiated representation shows
+            request = replace(request, reply=fmt)
         result = tolerance(request, current_app.config["ROLLOFF_SETTINGS"])
         metrics.count_trials(request.trials)
         if fmt == "csv":
