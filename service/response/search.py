@@ -292,17 +292,20 @@ class Partition:
 
 
 def verify_losses(roots: RootSet, criteria: Criteria, live: np.ndarray, out, precision: float,
-                  tol: float, max_rounds: int, *, partition: list | None = None) -> None:
+                  tol: float, max_rounds: int, *, partition: list | None = None,
+                  critical_trial: int | None = None) -> None:
     """The branch-and-bound of the loss segments for the stable trials ``live`` (nepers inside).
 
     Writes into ``out`` (a :class:`service.response.verification.BatchVerdict`).  With a list as
     ``partition`` (one live trial), appends the final :class:`Partition` of the margins' search.
+    The initial partition's break points come from the roots of trial ``critical_trial`` (default
+    ``live[0]``), so that the trials of one run, searched in chunks, start from the same points.
     """
     limits = criteria.limits
     S = len(limits)
     T = live.size
     sub = RootSet(roots.zeros[live], roots.poles[live], roots.log_gain[live], roots.pole_group)
-    critical = _critical(sub.trial(0))
+    critical = _critical(roots.trial(int(live[0] if critical_trial is None else critical_trial)))
     spans, _ = _spans(limits, critical)
     response = _Response(sub, tails=any(len(p) > 1 for p in spans))
     passbands = np.array([lim.band is Band.PASSBAND for lim in limits])

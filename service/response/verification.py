@@ -265,6 +265,9 @@ class BatchVerdict:
 
 #: Fewest trials for which the perturbation bound is tried before the full search.
 BATCH_MIN_TRIALS = 16
+#: Trials searched together by the full search (bounds its memory: a few hundred intervals of some twenty
+#: roots per trial, a dozen temporaries of complex (intervals x roots) arrays; 64 trials stay near 20 MiB and in cache best).
+SEARCH_CHUNK_TRIALS = 64
 
 
 def _empty_batch(roots: RootSet, criteria: Criteria) -> "BatchVerdict":
@@ -330,7 +333,11 @@ def verify(roots: RootSet, criteria: Criteria, *, precision_db: float = PRECISIO
             out.checked_to_hz[proven] = np.array([lim.stop_hz for lim in criteria.limits])
     live = np.flatnonzero(full)
     if live.size and criteria.limits:
-        verify_losses(roots, criteria, live, out, precision, tol, max_rounds)
+        # in chunks of trials: the search's arrays grow with (intervals x roots) per trial, and a
+        # failing board cannot be proved by the perturbation bound, so thousands may reach here
+        for start in range(0, live.size, SEARCH_CHUNK_TRIALS):
+            verify_losses(roots, criteria, live[start:start + SEARCH_CHUNK_TRIALS], out, precision, tol,
+                          max_rounds, critical_trial=int(live[0]))
         out.located[live] = out.unresolved_db[live] == 0.0
     if criteria.delay is not None:
         verify_delay(roots, criteria.delay, np.flatnonzero(stable), out, max_rounds)

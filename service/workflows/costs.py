@@ -19,20 +19,25 @@ from service.errors import LimitExceeded
 
 #: Work units per second of CPU (measured proxy; see the module notes).
 UNITS_PER_SECOND = 16_000_000
-#: Per-trial, per-point cost apart from the circuit (percentile stores, per-trial figures), in stage units.
-PER_TRIAL_POINT_WEIGHT = 2
+#: Per-trial, per-point cost apart from the circuit (percentile stores, per-trial figures), in stage units
+#: (halved once the percentiles came from selection and the reply from whole-array encoding).
+PER_TRIAL_POINT_WEIGHT = 1
 #: Frequencies every Monte Carlo trial is evaluated at whatever the caller's grid (metric grid, verification).
 METRIC_GRID_POINTS = 400
 #: A stage of n op-amps costs about n^2 units per trial and point; a loaded circuit (op-amps with output
 #: resistance, solved whole) costs about (unknowns)^3 / LOADED_DIVISOR per trial and point.
 LOADED_DIVISOR = 8
+#: Units per trial and point of one stage by topology, where more than (op-amps)^2: measured by Monte Carlo
+#: of one to thirteen stages (CPU per trial and point x UNITS_PER_SECOND: multiple-feedback 2.2,
+#: Delyiannis-Friend notch 2.5-3.6, twin-T notch 1.3, Sallen-Key 0.3-0.9), with about a third to spare.
+TOPOLOGY_POINT_UNITS = {"multiple_feedback": 3.0, "delyiannis_friend_notch": 4.5, "twin_t_notch": 2.0}
 #: Unknowns of the MNA system per stage (a generous average over the topologies).
 UNKNOWNS_PER_STAGE = 9
 #: Fixed cost of analysing one stage (poles, zeros, op-amp requirement search): units.
 STAGE_ANALYSIS_UNITS = 400_000
 #: Cost of verifying one Monte Carlo trial, per stage (its roots and the bounds on the nominal's partition):
 #: units, measured (about 25 us of CPU per stage and trial here).
-VERIFICATION_UNITS_PER_STAGE = 400
+VERIFICATION_UNITS_PER_STAGE = 900
 #: Cost of one verification of a design (the full search), per stage: units.
 VERIFICATION_UNITS_PER_DESIGN_STAGE = 200_000
 #: Cost of one SVG figure (a response's or a tolerance run's, with the response's passband detail): units.
@@ -65,21 +70,34 @@ def grid_points(grid, settings: Settings, *, field: str = "frequencies") -> int:
 
 @dataclass(frozen=True)
 class CircuitShape:
-    """What a design's circuit costs to evaluate: its stages, op-amps per stage, and whether it is loaded."""
+    """What a design's circuit costs to evaluate: its stages, op-amps per stage, each stage's topology
+    (when known), and whether it is loaded (op-amps with output resistance: solved whole)."""
 
     opamps_per_stage: tuple[int, ...]
     loaded: bool = False
+    #: Topology name per stage (empty: not known yet, weighed by op-amps alone).
+    topologies: tuple[str, ...] = ()
+
+    @classmethod
+    def of(cls, plans) -> "CircuitShape":
+        """The shape of a realized design (a sequence of StagePlan)."""
+        return cls(tuple(len(p.opamps) for p in plans),
+                   loaded=any((u.rout_ohm or 0.0) > 0 for p in plans for u in p.opamps),
+                   topologies=tuple(str(getattr(p.topology, "name", p.topology)) for p in plans))
 
     @property
     def stages(self) -> int:
         return len(self.opamps_per_stage)
 
     def point_weight(self) -> float:
-        """Units per trial and frequency point."""
+        """Units per trial and frequency point: per stage the larger of (op-amps)^2 and its topology's
+        measured weight (:data:`TOPOLOGY_POINT_UNITS`)."""
         if self.loaded:
             n = UNKNOWNS_PER_STAGE * self.stages
             return n ** 3 / LOADED_DIVISOR
-        return float(sum(max(1, k) ** 2 for k in self.opamps_per_stage))
+        names = self.topologies or ("",) * self.stages
+        return float(sum(max(max(1, k) ** 2, TOPOLOGY_POINT_UNITS.get(t, 1.0))
+                         for k, t in zip(self.opamps_per_stage, names)))
 
 
 def _refuse(units: float, settings: Settings, *, field: str, what: str, fits: str = "") -> None:

@@ -189,8 +189,7 @@ def _stopbands(requirement: Requirement | None) -> list[tuple[float, float]]:
 
 
 def _shape(plans: list[StagePlan]) -> costs.CircuitShape:
-    return costs.CircuitShape(tuple(len(p.opamps) for p in plans),
-                              loaded=any((u.rout_ohm or 0.0) > 0 for p in plans for u in p.opamps))
+    return costs.CircuitShape.of(plans)
 
 
 def check_representable(design: Design) -> None:

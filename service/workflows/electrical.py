@@ -585,8 +585,7 @@ def check_response_levels(plans: Sequence[StagePlan], supply: SupplySettings | N
         if not (supply.v_neg <= bias - headroom.input_peak_v and bias + headroom.input_peak_v <= supply.v_pos):
             raise InvalidLevel(f"an input of {headroom.input_peak_v:.4g} V peak about {bias:g} V swings beyond the "
                                f"rails [{supply.v_neg:g}, {supply.v_pos:g}] V", field="headroom.input_peak_v")
-    shape = costs.CircuitShape(tuple(len(p.opamps) for p in plans),
-                               loaded=any((u.rout_ohm or 0.0) > 0 for p in plans for u in p.opamps))
+    shape = costs.CircuitShape.of(plans)
     peak_points = points + analysis_grid([p.section for p in plans]).size
     noise_points = 0
     if noise is not None:
@@ -770,8 +769,7 @@ def on_board(design: Design, settings, config: Settings | None = None) -> tuple[
         return design, None
     config = config or Settings()
     lo, hi = _decades(plans)
-    shape = costs.CircuitShape(tuple(len(p.opamps) for p in plans),
-                               loaded=any((u.rout_ohm or 0.0) > 0 for p in plans for u in p.opamps))
+    shape = costs.CircuitShape.of(plans)
     grid = analysis_grid([p.section for p in plans])
     costs.check_levels(shape, costs.LevelsWork(
         noise_points=integration_grid((lo, hi), DESIGN_NOISE_POINTS_PER_DECADE).size + 1 if noisy else 0,

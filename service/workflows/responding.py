@@ -178,8 +178,7 @@ def respond(request: ResponseRequest, settings: Settings, *, path: str = "design
     time_points = (request.time.points or 0) if request.time is not None else 0
     shape = None
     if plans is not None:
-        shape = costs.CircuitShape(tuple(len(p.opamps) for p in plans),
-                                   loaded=any((u.rout_ohm or 0.0) > 0 for p in plans for u in p.opamps))
+        shape = costs.CircuitShape.of(plans)
     costs.check_response(shape, points, time_points, settings, figure=request.figure)
     asks_levels = request.noise is not None or request.headroom is not None
     if asks_levels:

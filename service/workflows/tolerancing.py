@@ -82,8 +82,7 @@ def tolerance(request: ToleranceRequest, settings: Settings, *, path: str = "des
             grid = tolerance_figure_grid(grid, criteria, doc.requirement, settings.max_frequency_points)
     points = len(resolve_frequencies(grid, settings.max_frequency_points))
     sens = len(request.sensitivity_frequencies_hz) or (2 * len(criteria.limits) if criteria else 0)
-    shape = costs.CircuitShape(tuple(len(p.opamps) for p in plans),
-                               loaded=any((u.rout_ohm or 0.0) > 0 for p in plans for u in p.opamps))
+    shape = costs.CircuitShape.of(plans)
     outputs = request.outputs()
     costs.check_tolerance(shape, request.trials, points, sens, settings,
                           verified=criteria is not None and outputs.yield_, figure=request.figure)

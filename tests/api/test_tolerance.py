@@ -87,7 +87,7 @@ def test_work_budget_weighs_multi_opamp_stages_and_says_what_fits():
     notch = {"response": "bandstop", "family": "butterworth", "order": 1, "cutoff_hz": [55, 65],
              "topology": "state_variable"}
     assert CircuitShape((4,)).point_weight() == 16        # one stage of four op-amps weighs 4^2 per point
-    c = create_app({"max_work": 8_000_000}).test_client()
+    c = create_app({"max_work": 6_000_000}).test_client()
     doc = c.post("/v1/designs", json=notch).get_json()
     body = problem(c.post(URL, json={"design": doc, "trials": 1000, "frequencies": [10, 55, 60, 65, 100]}), 422)
     fits = int(re.search(r"at most ([\d,]+) trials", body["detail"]).group(1).replace(",", ""))

@@ -34,6 +34,7 @@ import copy
 import json
 import os
 import random
+import re
 import select
 import signal
 import sys
@@ -320,7 +321,13 @@ def _documents(client, rng: random.Random, sp: Space, n: int) -> list[dict]:
               {"response": "bandstop", "family": "elliptic", "order": sp.lim("max_order"), "cutoff_hz": [900, 1100],
                "passband_ripple_db": 0.1, "stopband_attenuation_db": 80, "topology": "state_variable"},
               {"response": "bandpass", "family": "chebyshev1", "order": sp.lim("max_order"),
-               "cutoff_hz": [35e3, 45e3], "passband_ripple_db": 0.1}]
+               "cutoff_hz": [35e3, 45e3], "passband_ripple_db": 0.1},
+              # by requirement, with a finite op-amp and tolerances: /v1/tolerance verifies every board
+              # (most fail the 0.1 dB ripple, so the perturbation bound proves none and all take the full search)
+              {"response": "lowpass", "family": "elliptic", "passband_hz": "10kHz", "stopband_hz": "25.6kHz",
+               "passband_ripple_db": 0.1, "stopband_attenuation_db": 80, "opamp": {"gbw_hz": "20MHz"},
+               "parts": {"resistors": {"series": "E96", "tolerance": 0.01},
+                         "capacitors": {"series": "E12", "tolerance": 0.02, "dielectric": "C0G"}}}]
     tries = 0
     while len(docs) < n and tries < 6 * n:
         body = wanted.pop(0) if wanted else dict(_filter(rng, sp, by_order=True), topology=rng.choice(TOPOLOGIES))
@@ -375,6 +382,15 @@ def main() -> int:
         for i in range(args.random):
             path, body = propose(endpoint, rng, sp)
             run(f"random {i + 1}", path, body)
+        if endpoint == "tolerance":
+            # every document with a requirement at the most trials the budget allows (what the 422 says fits)
+            for doc in (d for d in sp.docs if d.get("requirement")):
+                body = {"design": doc, "trials": sp.lim("max_trials"), "seed": 1}
+                said = client.post("/v1/tolerance", json=body).get_json().get("detail", "")
+                fits = re.search(r"at most ([\d,]+) trials", said)
+                if fits:
+                    body["trials"] = int(fits.group(1).replace(",", ""))
+                run("at its limit", "/v1/tolerance", body)
         for i in range(args.adversarial):
             pool = sorted([o for o in outcomes if o.allowed], key=lambda o: o.score, reverse=True)[:3]
             if not pool:
