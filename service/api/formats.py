@@ -172,6 +172,33 @@ def round_figure(x: float, digits: int = FIGURE_DIGITS) -> float:
     return float(f"{x:.{digits}g}")
 
 
+def round_figure_list(values: list) -> list:
+    """A list of floats, each rounded as :func:`round_figure` does (the same float64 bits), vectorized.
+
+    Each value ``x`` is scaled by an exact power of ten ``10^k`` (``|k| <= 22``) to six integer digits,
+    rounded to an integer and scaled back with one correctly rounded division or product -- the float64
+    nearest the decimal, as the text route gives.  Values whose scaled fraction lies within 1e-6 of a half
+    (where the scaling's own rounding could tip the integer), outside that range of ``k``, zero or
+    non-finite take the text route one by one.
+    """
+    x = np.asarray(values, dtype=np.float64)
+    ax = np.abs(x)
+    usable = np.isfinite(ax) & (ax > 0)
+    e = np.floor(np.log10(np.where(usable, ax, 1.0))).astype(np.int64)
+    k = FIGURE_DIGITS - 1 - e
+    up = 10.0 ** np.clip(k, 0, 22)
+    down = 10.0 ** np.clip(-k, 0, 22)
+    y = x * up / down
+    r = np.round(y)
+    out = r / up * down
+    with np.errstate(invalid="ignore"):
+        risky = ~usable | (np.abs(k) > 22) | (np.abs(np.abs(y - np.trunc(y)) - 0.5) < 1e-6) | ~np.isfinite(out)
+    result = out.tolist()
+    for i in np.flatnonzero(risky).tolist():
+        result[i] = round_figure(values[i])
+    return result
+
+
 def _exact_trie(paths: Iterable[str]) -> dict:
     trie: dict = {}
     for path in paths:
@@ -199,6 +226,8 @@ def _rounded(node: Any, trie: Any) -> Any:
         return {k: _rounded(v, trie.get(k, trie.get("*"))) for k, v in node.items()}
     if isinstance(node, list):
         sub = trie.get("*") if trie else None
+        if sub is None and len(node) > 8 and all(type(v) is float for v in node):
+            return round_figure_list(node)
         return [_rounded(v, sub) for v in node]
     return node
 

@@ -6,7 +6,7 @@ import math
 
 import pytest
 
-from service.api.formats import FIGURE_DIGITS, round_figure, round_figures
+from service.api.formats import FIGURE_DIGITS, round_figure, round_figure_list, round_figures
 from service.api.schemas.designs import DesignRequestSchema, DesignSchema
 from service.api.schemas.compare import CompareRequestSchema
 from service.api.schemas.filters import (REQUIREMENT_KEYS, ApproximationRequestSchema, ApproximationSchema,
@@ -115,3 +115,21 @@ def test_percentiles_are_rounded_then_float64():
     assert round_figure(1e-12 / 3) == 3.33333e-13 and round_figure(0.0) == 0.0
     assert math.isnan(round_figure(float("nan"))) and round_figure(float("inf")) == math.inf
     assert round_figures([{"x": 1 / 7}], exact=("*.x",)) == [{"x": 1 / 7}]
+
+
+def test_a_list_of_floats_is_rounded_to_the_same_bits_as_one_by_one():
+    # source: Python's own decimal formatting ('%.6g', correctly rounded) through round_figure, the reference
+    # of the vectorized route: every magnitude, exact halves, float32 values widened, zeros and non-finite
+    import numpy as np
+
+    rng = np.random.default_rng(7)
+    x = np.concatenate([rng.standard_normal(20000) * 10.0 ** rng.uniform(-300, 300, 20000),
+                        rng.standard_normal(20000) * 10.0 ** rng.uniform(-25, 25, 20000),
+                        np.round(rng.uniform(-1e4, 1e4, 5000), 3), np.round(rng.uniform(0, 1, 5000), 7) + 5e-7,
+                        rng.standard_normal(5000).astype(np.float32).astype(float),
+                        [0.0, -0.0, 1.5, 2.5e-5, 123456.5, 1234565.0, 5e-324, 1.7976931348623157e308,
+                         float("inf"), -float("inf")]]).tolist()
+    fast = round_figure_list(x)
+    slow = [round_figure(v) for v in x]
+    assert all(a == b or (math.isnan(a) and math.isnan(b)) for a, b in zip(fast, slow))
+    assert round_figures({"p": x[:100]}) == {"p": slow[:100]}
