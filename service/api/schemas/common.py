@@ -10,6 +10,25 @@ import marshmallow as ma
 from service.api.formats import round_figures
 from service.version import SERVICE_VERSION
 
+
+class FloatList(ma.fields.List):
+    """A reply's list of numbers, documented as ``List(Float)``.
+
+    The computation hands over plain Python floats (``ndarray.tolist``), which pass through without a
+    call per number (the reply's figures are then rounded in one pass, :func:`round_figures`); an
+    array becomes its list; anything else is serialized item by item as ``List(Float)``.
+    """
+
+    def __init__(self, **kwargs):
+        super().__init__(ma.fields.Float(), **kwargs)
+
+    def _serialize(self, value, attr, obj, **kwargs):
+        if type(value) is list and all(type(v) is float for v in value):
+            return value
+        if hasattr(value, "tolist") and getattr(value, "dtype", None) is not None and value.dtype.kind == "f":
+            return value.tolist()
+        return super()._serialize(value, attr, obj, **kwargs)
+
 #: Named enumerations of the domain: OpenAPI component name -> values (registered by the app).
 ENUMS: dict[str, list[str]] = {}
 #: Enum class name -> component name, where the class name would clash with a name a client generator

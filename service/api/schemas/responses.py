@@ -5,7 +5,7 @@ from __future__ import annotations
 import marshmallow as ma
 
 from service.api.fields import Quantity, StrictInteger
-from service.api.schemas.common import NumberOrPair, ReplySchema, StrictSchema, one_of
+from service.api.schemas.common import FloatList, NumberOrPair, ReplySchema, StrictSchema, one_of
 from service.api.schemas.designs import DesignDocumentSchema
 from service.api.schemas.electrical import (HeadroomRequestSchema, NoiseRequestSchema, ResponseHeadroomSchema,
                                             ResponseNoiseSchema)
@@ -243,8 +243,8 @@ class ResponseRequestSchema(StrictSchema):
 
 
 class TimeResponseSchema(ma.Schema):
-    time_s = ma.fields.List(ma.fields.Float())
-    value = ma.fields.List(ma.fields.Float())
+    time_s = FloatList()
+    value = FloatList()
     dirac_weight = ma.fields.Float(allow_none=True, metadata={
         "description": "Impulse response: weight of the Dirac delta at t = 0 (the transfer function's value at "
                        "infinite frequency, nonzero for highpass and notch kinds); 0 for the step."})
@@ -280,10 +280,10 @@ class ResponseSchema(ReplySchema):
              "mask_result.group_delay.limit_pct")
 
     response_type = ma.fields.String()
-    frequency_hz = ma.fields.List(ma.fields.Float())
-    magnitude_db = ma.fields.List(ma.fields.Float())
-    phase_deg = ma.fields.List(ma.fields.Float(), metadata={"description": "Unwrapped (degrees)."})
-    group_delay_s = ma.fields.List(ma.fields.Float())
+    frequency_hz = FloatList()
+    magnitude_db = FloatList()
+    phase_deg = FloatList(metadata={"description": "Unwrapped (degrees)."})
+    group_delay_s = FloatList()
     step = ma.fields.Nested(TimeResponseSchema, allow_none=True)
     impulse = ma.fields.Nested(TimeResponseSchema, allow_none=True)
     metrics = ma.fields.Nested(MetricsSchema)

@@ -5,7 +5,7 @@ from __future__ import annotations
 import marshmallow as ma
 
 from service.api.fields import Quantity, StrictInteger
-from service.api.schemas.common import ReplySchema, Scalar, StrictSchema, one_of
+from service.api.schemas.common import FloatList, ReplySchema, Scalar, StrictSchema, one_of
 from service.api.schemas.designs import DesignDocumentSchema
 from service.api.schemas.montecarlo import DISTRIBUTIONS, DistributionField, TemperatureSchema  # noqa: F401
 from service.api.schemas.yields import CriterionFailuresSchema, WorstTrialSchema  # noqa: F401
@@ -85,13 +85,13 @@ class DistributionSummarySchema(_PercentileKeys):
 class PercentileCurvesSchema(_PercentileKeys):
     """One figure's percentiles over the trials, each a list over frequency."""
 
-    min = ma.fields.List(ma.fields.Float())
-    p0_135 = ma.fields.List(ma.fields.Float(), data_key="p0.135")
-    p2_5 = ma.fields.List(ma.fields.Float(), data_key="p2.5")
-    p50 = ma.fields.List(ma.fields.Float())
-    p97_5 = ma.fields.List(ma.fields.Float(), data_key="p97.5")
-    p99_865 = ma.fields.List(ma.fields.Float(), data_key="p99.865")
-    max = ma.fields.List(ma.fields.Float())
+    min = FloatList()
+    p0_135 = FloatList(data_key="p0.135")
+    p2_5 = FloatList(data_key="p2.5")
+    p50 = FloatList()
+    p97_5 = FloatList(data_key="p97.5")
+    p99_865 = FloatList(data_key="p99.865")
+    max = FloatList()
 
 
 class StageDistributionSchema(ma.Schema):
@@ -220,12 +220,12 @@ class ToleranceSchema(ReplySchema):
              "yield.failures_by_criterion.*.stop_hz", "yield.failures_by_criterion.*.limit_db",
              "yield.failures_by_criterion.*.limit_pct")
 
-    frequency_hz = ma.fields.List(ma.fields.Float())
+    frequency_hz = FloatList()
     magnitude_db_percentiles = ma.fields.Nested(PercentileCurvesSchema, metadata={
         "description": "min, p0.135, p2.5, p50, p97.5, p99.865, max of the magnitude (dB), each over frequency."})
     phase_deg_percentiles = ma.fields.Nested(PercentileCurvesSchema)
     group_delay_s_percentiles = ma.fields.Nested(PercentileCurvesSchema)
-    nominal_magnitude_db = ma.fields.List(ma.fields.Float())
+    nominal_magnitude_db = FloatList()
     metrics = ma.fields.Nested(ToleranceMetricsSchema, metadata={
         "description": "Per metric: mean, std and percentiles (−3 dB frequency, passband ripple, stopband "
                        "attenuation, each stage's f0 and Q)."})
