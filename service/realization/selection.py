@@ -71,7 +71,7 @@ CAP_CANDIDATES_KEPT = 16
 #: Partial choices kept at each step of the beam search, per capacitor choice.
 BEAM_WIDTH = 32
 #: Partial choices kept besides those, per capacitor choice, by a one-step look-ahead (:func:`_beam`).
-BEAM_LOOKAHEAD_WIDTH = 32
+BEAM_LOOKAHEAD_WIDTH = 16
 #: Allowed values tried for each part around its continuous best value.
 BEAM_OPTIONS = 4
 #: Decades beyond the allowed range a dependent part may go when no candidate keeps every part in range.
