@@ -61,24 +61,26 @@ class Fields:
     def raw(self, key: str) -> Any:
         return self.data.get(key)
 
+    def _given(self, key: str, required: bool) -> tuple[str, Any]:
+        """``(field path, value)`` of ``key``; the value is None when absent, which ``required`` refuses."""
+        field = self.at(key)
+        value = self.data.get(key)
+        if value is None and required:
+            raise self.error(f"{field} is required", field=field)
+        return field, value
+
     def number(self, key: str, *, required: bool = False, low: float | None = None, high: float | None = None,
                positive: bool = False, unit: str | None = None, default: float | None = None) -> float | None:
         """A finite number (or an SI string in ``unit``) within ``[low, high]`` (and > 0 when ``positive``)."""
-        field = self.at(key)
-        value = self.data.get(key)
+        field, value = self._given(key, required)
         if value is None:
-            if required:
-                raise self.error(f"{field} is required", field=field)
             return default
         return number(value, field, low=low, high=high, positive=positive, unit=unit, error=self.error)
 
     def integer(self, key: str, *, required: bool = False, low: int | None = None, high: int | None = None,
                 default: int | None = None) -> int | None:
-        field = self.at(key)
-        value = self.data.get(key)
+        field, value = self._given(key, required)
         if value is None:
-            if required:
-                raise self.error(f"{field} is required", field=field)
             return default
         if isinstance(value, bool) or not isinstance(value, int):
             if isinstance(value, float) and value.is_integer() and abs(value) < 2 ** 53:
@@ -91,11 +93,8 @@ class Fields:
 
     def string(self, key: str, *, required: bool = False, max_length: int = 128,
                default: str | None = None) -> str | None:
-        field = self.at(key)
-        value = self.data.get(key)
+        field, value = self._given(key, required)
         if value is None:
-            if required:
-                raise self.error(f"{field} is required", field=field)
             return default
         if not isinstance(value, str) or not value or len(value) > max_length:
             raise self.error(f"{field} must be a non-empty string of at most {max_length} characters",
@@ -112,11 +111,8 @@ class Fields:
         return value
 
     def enum(self, key: str, kind: type[E], *, required: bool = False, default: E | None = None) -> E | None:
-        field = self.at(key)
-        value = self.data.get(key)
+        field, value = self._given(key, required)
         if value is None:
-            if required:
-                raise self.error(f"{field} is required", field=field)
             return default
         try:
             return kind(value)
@@ -125,11 +121,8 @@ class Fields:
                              field=field) from None
 
     def array(self, key: str, *, required: bool = False, max_items: int = 64) -> list | None:
-        field = self.at(key)
-        value = self.data.get(key)
+        field, value = self._given(key, required)
         if value is None:
-            if required:
-                raise self.error(f"{field} is required", field=field)
             return None
         if not isinstance(value, (list, tuple)):
             raise self.error(f"{field} must be an array", field=field)
