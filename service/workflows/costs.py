@@ -35,8 +35,9 @@ TOPOLOGY_POINT_UNITS = {"multiple_feedback": 3.0, "delyiannis_friend_notch": 4.5
 UNKNOWNS_PER_STAGE = 9
 #: Fixed cost of analysing one stage (poles, zeros, op-amp requirement search): units.
 STAGE_ANALYSIS_UNITS = 400_000
-#: Cost of verifying one Monte Carlo trial, per stage (its roots and the bounds on the nominal's partition):
-#: units, measured (about 25 us of CPU per stage and trial here).
+#: Cost of verifying one Monte Carlo trial, per stage (its roots, then the perturbation bound or, for a board
+#: it cannot prove -- every failing board --, the full search): units, measured (about 56 us of CPU per stage
+#: and board here when every board fails, bench_limits' verified documents at their limit).
 VERIFICATION_UNITS_PER_STAGE = 900
 #: Cost of one verification of a design (the full search), per stage: units.
 VERIFICATION_UNITS_PER_DESIGN_STAGE = 200_000
