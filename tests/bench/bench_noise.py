@@ -23,7 +23,6 @@ from __future__ import annotations
 import os
 import statistics
 import sys
-import time
 
 sys.path.insert(0, os.path.abspath(os.path.join(os.path.dirname(__file__), "..", "..")))
 
@@ -35,7 +34,7 @@ from service.realization import design_filter  # noqa: E402
 from service.realization.supply import filter_circuit, supply_report  # noqa: E402
 from service.response.headroom import analyze_headroom  # noqa: E402
 from service.response.noise import analyze_noise  # noqa: E402
-from tests.bench.benchlib import load  # noqa: E402
+from tests.bench.benchlib import load, measure as _measure, report  # noqa: E402
 
 QUICK = "--quick" in sys.argv
 OPAMP = {"gbw_hz": 10e6, "en_nv_rthz": 10.0, "in_pa_rthz": 1.0, "en_corner_hz": 100.0, "in_corner_hz": 200.0,
@@ -43,31 +42,7 @@ OPAMP = {"gbw_hz": 10e6, "en_nv_rthz": 10.0, "in_pa_rthz": 1.0, "en_corner_hz": 
 
 
 def measure(fn, repeats: int) -> tuple[list[float], list[float]]:
-    """Wall and CPU milliseconds of ``repeats`` calls (after one warming call)."""
-    if QUICK:
-        repeats = max(5, repeats // 3)
-    fn()
-    wall, cpu = [], []
-    for _ in range(repeats):
-        t0, c0 = time.perf_counter(), time.process_time()
-        fn()
-        c1, t1 = time.process_time(), time.perf_counter()
-        wall.append((t1 - t0) * 1e3)
-        cpu.append((c1 - c0) * 1e3)
-    return wall, cpu
-
-
-def _stats(ms: list[float]) -> str:
-    q = statistics.quantiles(ms, n=4)
-    return (f"median {statistics.median(ms):8.2f}  IQR {q[0]:7.2f}-{q[2]:7.2f}  "
-            f"min {min(ms):7.2f}  max {max(ms):7.2f}")
-
-
-def report(name: str, times: tuple[list[float], list[float]]) -> None:
-    wall, cpu = times
-    print(f"{name}  (n={len(wall)}, ms)")
-    print(f"    wall {_stats(wall)}")
-    print(f"    cpu  {_stats(cpu)}")
+    return _measure(fn, repeats, quick=QUICK, warm=True)
 
 
 def main() -> None:

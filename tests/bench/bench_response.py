@@ -27,9 +27,7 @@ per worker, if it does).
 from __future__ import annotations
 
 import os
-import statistics
 import sys
-import time
 
 sys.path.insert(0, os.path.abspath(os.path.join(os.path.dirname(__file__), "..", "..")))
 
@@ -37,36 +35,14 @@ import numpy as np  # noqa: E402
 
 from service.response import CircuitSystem, FrequencyGrid, analyze, compare_families, table_to_csv  # noqa: E402
 from service.response import zpk as _zpk  # noqa: E402
+from tests.bench.benchlib import measure as _measure, report  # noqa: E402
 from tests.response.circuits import butterworth_qs, sallen_key_lowpass  # noqa: E402
 
 QUICK = "--quick" in sys.argv
 
 
 def measure(fn, repeats: int) -> tuple[list[float], list[float]]:
-    """Wall and CPU milliseconds of ``repeats`` calls."""
-    if QUICK:
-        repeats = max(5, repeats // 3)
-    wall, cpu = [], []
-    for _ in range(repeats):
-        t0, c0 = time.perf_counter(), time.process_time()
-        fn()
-        c1, t1 = time.process_time(), time.perf_counter()
-        wall.append((t1 - t0) * 1e3)
-        cpu.append((c1 - c0) * 1e3)
-    return wall, cpu
-
-
-def _stats(ms: list[float]) -> str:
-    q = statistics.quantiles(ms, n=4)
-    return (f"median {statistics.median(ms):8.2f}  IQR {q[0]:7.2f}-{q[2]:7.2f}  "
-            f"min {min(ms):7.2f}  max {max(ms):7.2f}")
-
-
-def report(name: str, times: tuple[list[float], list[float]]) -> None:
-    wall, cpu = times
-    print(f"{name}  (n={len(wall)}, ms)")
-    print(f"    wall {_stats(wall)}")
-    print(f"    cpu  {_stats(cpu)}")
+    return _measure(fn, repeats, quick=QUICK)
 
 
 def _criteria(response, passband_hz, stopband_hz, ripple_db, attenuation_db):

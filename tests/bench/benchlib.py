@@ -3,8 +3,10 @@
 from __future__ import annotations
 
 import os
+import statistics
 import shutil
 import subprocess
+import time
 
 ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 
@@ -36,3 +38,34 @@ def extract_trees(before: str, after: str, tmp: str,
             os.remove(path)
         subprocess.run(f"git -C {ROOT} archive {before} {pkg} | tar -x -C {trees['before']}", shell=True, check=True)
     return trees["before"], trees["after"]
+
+
+def measure(fn, repeats: int, *, quick: bool = False, warm: bool = False) -> tuple[list[float], list[float]]:
+    """Wall and CPU milliseconds of ``repeats`` calls of ``fn`` (a third of them, at least 5, when
+    ``quick``; after one warming call when ``warm``)."""
+    if quick:
+        repeats = max(5, repeats // 3)
+    if warm:
+        fn()
+    wall, cpu = [], []
+    for _ in range(repeats):
+        t0, c0 = time.perf_counter(), time.process_time()
+        fn()
+        c1, t1 = time.process_time(), time.perf_counter()
+        wall.append((t1 - t0) * 1e3)
+        cpu.append((c1 - c0) * 1e3)
+    return wall, cpu
+
+
+def _stats(ms: list[float]) -> str:
+    q = statistics.quantiles(ms, n=4)
+    return (f"median {statistics.median(ms):8.2f}  IQR {q[0]:7.2f}-{q[2]:7.2f}  "
+            f"min {min(ms):7.2f}  max {max(ms):7.2f}")
+
+
+def report(name: str, times: tuple[list[float], list[float]]) -> None:
+    """Print the median, IQR, min and max of the wall and CPU times of :func:`measure`."""
+    wall, cpu = times
+    print(f"{name}  (n={len(wall)}, ms)")
+    print(f"    wall {_stats(wall)}")
+    print(f"    cpu  {_stats(cpu)}")

@@ -6,6 +6,7 @@ import re
 from types import SimpleNamespace
 
 import numpy as np
+import pytest
 
 from service.approximation import Section, SectionKind, section_polynomials
 from tests.ngspice import run_ngspice_ac
@@ -81,3 +82,24 @@ SECTIONS = {
     (SectionKind.LOWPASS, 1): Section(SectionKind.LOWPASS, 1, 1000.0, None, None, 1.0),
     (SectionKind.HIGHPASS, 1): Section(SectionKind.HIGHPASS, 1, 1000.0, None, None, 1.0),
 }
+
+
+def topology_cases():
+    """One pytest param per (topology, section kind and order, strategy): the first of gains 1, 2, -2
+    the strategy accepts for the section of :data:`SECTIONS`; id ``topology-kindorder-strategy``."""
+    from service.realization import TOPOLOGIES
+
+    for name, topo in sorted(TOPOLOGIES.items()):
+        for (kind, order), sec in SECTIONS.items():
+            if kind not in topo.kinds or order != topo.order:
+                continue
+            for strategy in topo.strategy_names(kind):
+                for gain in (1.0, 2.0, -2.0):
+                    s = type(sec)(sec.kind, sec.order, sec.f0_hz, sec.q, sec.fz_hz, gain)
+                    try:
+                        ok = strategy in topo.strategies(s)
+                    except Exception:
+                        ok = False
+                    if ok:
+                        yield pytest.param(name, strategy, s, id=f"{name}-{kind.value}{order}-{strategy}")
+                        break

@@ -8,29 +8,12 @@ import pytest
 from service.approximation import design_by_order, design_by_requirement
 from service.realization import TOPOLOGIES, design_filter
 from tests.realization.spice_checks import (
-    SECTIONS, achieved_response, ngspice_at, ngspice_sweep, one_section, section_response,
+    achieved_response, ngspice_at, ngspice_sweep, one_section, section_response, topology_cases,
 )
 from tests.ngspice import run_ngspice_ac
 
 
-def _cases():
-    for name, topo in sorted(TOPOLOGIES.items()):
-        for (kind, order), sec in SECTIONS.items():
-            if kind not in topo.kinds or order != topo.order:
-                continue
-            for strategy in topo.strategy_names(kind):
-                for gain in (1.0, 2.0, -2.0):
-                    s = type(sec)(sec.kind, sec.order, sec.f0_hz, sec.q, sec.fz_hz, gain)
-                    try:
-                        ok = strategy in topo.strategies(s)
-                    except Exception:
-                        ok = False
-                    if ok:
-                        yield pytest.param(name, strategy, s, id=f"{name}-{kind.value}{order}-{strategy}")
-                        break
-
-
-CASES = list(_cases())
+CASES = list(topology_cases())
 
 
 def _band(section):

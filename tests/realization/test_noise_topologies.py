@@ -17,7 +17,7 @@ from service.realization import TOPOLOGIES, design_filter
 from service.realization.supply import filter_circuit
 from service.response.noise import analyze_noise
 from tests.ngspice import run_ngspice_noise
-from tests.realization.spice_checks import SECTIONS, one_section
+from tests.realization.spice_checks import one_section, topology_cases
 
 DB_TOL = 0.1
 OPAMPS = {
@@ -27,24 +27,7 @@ OPAMPS = {
 }
 
 
-def _cases():
-    for name, topo in sorted(TOPOLOGIES.items()):
-        for (kind, order), sec in SECTIONS.items():
-            if kind not in topo.kinds or order != topo.order:
-                continue
-            for strategy in topo.strategy_names(kind):
-                for gain in (1.0, 2.0, -2.0):
-                    s = type(sec)(sec.kind, sec.order, sec.f0_hz, sec.q, sec.fz_hz, gain)
-                    try:
-                        ok = strategy in topo.strategies(s)
-                    except Exception:
-                        ok = False
-                    if ok:
-                        yield pytest.param(name, strategy, s, id=f"{name}-{kind.value}{order}-{strategy}")
-                        break
-
-
-CASES = list(_cases())
+CASES = list(topology_cases())
 
 
 def test_every_topology_is_covered():
