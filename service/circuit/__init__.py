@@ -12,7 +12,9 @@ ac_response(circuit, frequency_hz, output="out", *, memory_limit_bytes, method)
     Complex ``V(output)/V(input)``, shape (T, F).
 prepare_ac(circuit, frequency_hz, output="out", *, memory_limit_bytes, method) -> PreparedAc
     The same, prepared once; ``PreparedAc.response(trials=slice(a, b))``
-    evaluates a range of trials (bit for bit the rows of the whole).
+    evaluates a range of trials (bit for bit the rows of the whole);
+    ``PreparedAc.polar(...) -> PolarResponse`` gives ``|H|^2``, the phase and
+    the group delay (closed form) without forming ``H``.
 transfer_function_zpk(circuit, output="out")
     Exact zeros, poles (rad/s) and gain of a single-trial circuit.
 noise_spectra(circuit, frequency_hz, output="out", *, temperature_k, method) -> OutputNoise
@@ -27,7 +29,7 @@ draw_schematic(circuit, stages, *, stage=None) -> str, StageLabel, SchematicErro
     SVG schematic of a circuit's stages, laid out from the netlist graph.
 """
 
-from .ac import PreparedAc, ac_response, prepare_ac
+from .ac import PolarResponse, PreparedAc, ac_response, prepare_ac
 from .dc import DcSolution, dc_contributions, dc_operating_point
 from .errors import CircuitError
 from .netlist import GROUND, Circuit, Element, ElementKind, OpAmpModel, OpAmpSources
@@ -52,6 +54,7 @@ __all__ = [
     "NoiseSource",
     "OutputNoise",
     "noise_spectra",
+    "PolarResponse",
     "PreparedAc",
     "SchematicError",
     "StageLabel",

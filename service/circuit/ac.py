@@ -28,6 +28,7 @@ per (trial, frequency).
 from __future__ import annotations
 
 import copy
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -38,8 +39,8 @@ from .errors import CircuitError
 from .mna import MnaSystem, build_mna
 from .netlist import Circuit
 from .polyeval import GridEvaluator
-from .staged import (bytes_per_trial, coefficient_bytes_per_trial, evaluate_chunk, is_single_rational, plan_blocks,
-                     stage_representations)
+from .staged import (bytes_per_trial, coefficient_bytes_per_trial, evaluate_chunk, evaluate_chunk_polar,
+                     is_single_rational, plan_blocks, stage_representations)
 
 MAX_STAGE_UNKNOWNS = 10
 """Largest stage (unknowns) that ``method="auto"`` solves through polynomial coefficients."""
@@ -53,6 +54,28 @@ stage (beyond the merge degree) needs more than the cache-sized target per trial
 would spend the time in per-stage Python overhead (20-stage cascades measured 40x slower)."""
 
 METHODS = ("auto", "full", "staged")
+
+DELAY_STEP = 1e-5
+"""Relative frequency step of the group delay's central difference where no closed form is at hand."""
+
+
+@dataclass
+class PolarResponse:
+    """The response of a range of trials on the grid in polar form; each array (Tc, F).
+
+    Attributes
+    ----------
+    power : ndarray, float64
+        ``|H|^2`` (V/V squared).
+    phase_rad : ndarray or None
+        Principal value of ``arg H`` (rad, in (-pi, pi]), when asked for; float32 or float64.
+    delay_s : ndarray or None
+        Group delay ``-d arg H / d omega`` (s), when asked for; float32 or float64.
+    """
+
+    power: np.ndarray
+    phase_rad: np.ndarray | None = None
+    delay_s: np.ndarray | None = None
 
 
 def _check_frequency(frequency_hz) -> np.ndarray:
@@ -200,6 +223,69 @@ class PreparedAc:
             check_deadline("circuit.ac.staged")
             b = min(t1, a + step)
             evaluate_chunk(self._reps, self._col, self._ev, slice(a, b), out[a - t0: b - t0])
+        return out
+
+
+    def polar(self, trials: slice | None = None, *, phase: bool = False, delay: bool = False,
+              out: PolarResponse | None = None) -> PolarResponse:
+        """``|H|^2`` and (optionally) the principal phase and the group delay of the trials in ``trials``.
+
+        The staged method with the output one rational function per trial (a cascade: the usual case)
+        computes them from the polynomials and their derivatives without forming ``H``, the delay in
+        closed form (:meth:`.polyeval.GridEvaluator.ratio_polar`).  Otherwise they come from
+        :meth:`response`, and the delay from the central difference of the phase,
+        ``-arg(H(f(1+d)) conj H(f(1-d))) / (4 pi f d)`` with ``d`` = :data:`DELAY_STEP` (relative error
+        about ``d^2/6 |f^2 tau''/tau|``); at 0 Hz the step is from 0 to ``d`` times the lowest positive
+        frequency (the phase is odd in f, so that difference is also second-order accurate).  Each
+        trial's numbers depend on its own values and the grid only.
+
+        Parameters
+        ----------
+        trials : slice, optional
+            Trials to evaluate (step 1; default all).
+        phase, delay : bool
+            Also compute ``phase_rad``, ``delay_s``.
+        out : PolarResponse, optional
+            Arrays (Tc, F) to write into -- ``power`` float64; ``phase_rad`` and ``delay_s`` float32
+            or float64, computed in their dtype, needed only when asked for.  A caller evaluating
+            chunk after chunk reuses its buffers, or hands its float32 stores over directly.
+
+        Returns
+        -------
+        PolarResponse
+            ``out`` when given.
+        """
+        sl = slice(None) if trials is None else trials
+        t0, t1, step = sl.indices(self.trials)
+        if step != 1:
+            raise CircuitError("trials must be a slice with step 1", field="trials")
+        t1 = max(t0, t1)
+        shape = (t1 - t0, self.frequency_hz.size)
+        if out is None:
+            out = PolarResponse(np.empty(shape), np.empty(shape) if phase else None,
+                                np.empty(shape) if delay else None)
+        wanted = (out.power, out.phase_rad if phase else None, out.delay_s if delay else None)
+        if (phase and out.phase_rad is None) or (delay and out.delay_s is None) or any(
+                a is not None and a.shape != shape for a in wanted):
+            raise CircuitError(f"the output arrays must have shape {shape}", field="out")
+        power, ph, d = wanted
+        if self.method == "staged" and not self._chunked:
+            check_deadline("circuit.ac.staged")
+            evaluate_chunk_polar(self._reps, self._col, self._ev, slice(t0, t1), power, ph, d)
+            return out
+        h = self.response(slice(t0, t1))
+        np.multiply(h.real, h.real, out=power)
+        power += h.imag ** 2
+        if ph is not None:
+            ph[...] = np.angle(h)
+        if d is not None:
+            f = self.frequency_hz
+            pos = f[f > 0]
+            up = np.where(f > 0, f * (1.0 + DELAY_STEP), DELAY_STEP * (pos.min() if pos.size else 1.0))
+            down = f * (1.0 - DELAY_STEP)
+            q = np.conjugate(self.on_grid(down).response(slice(t0, t1)))
+            q *= self.on_grid(up).response(slice(t0, t1))
+            d[...] = np.arctan2(q.imag, q.real) * (-1.0 / (2.0 * np.pi * (up - down)))[None, :]
         return out
 
 

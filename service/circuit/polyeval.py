@@ -43,6 +43,7 @@ numpy operations (correctly rounded, the same for every element).
 from __future__ import annotations
 
 import contextlib
+import math
 
 import numpy as np
 
@@ -82,10 +83,25 @@ class GridEvaluator:
 
     def __init__(self, omega: np.ndarray, w_ref: float):
         self.x = np.asarray(omega, dtype=float) / w_ref
+        self.w_ref = float(w_ref)
         self.size = self.x.size
         tiles = max(1, BLOCK_BYTES // (16 * max(1, self.size) * TILE_ROWS))
         self.block = tiles * TILE_ROWS
         self._tables: dict[int, tuple[np.ndarray, np.ndarray]] = {}
+        self._scratch: dict[str, np.ndarray] = {}
+
+    def _buffer(self, name: str, shape: tuple[int, ...]) -> np.ndarray:
+        """A scratch array of ``shape`` (float64, uninitialized), kept between calls.
+
+        The blocks here are a few hundred kB: allocated afresh on every call they would be mapped and unmapped
+        by the C allocator each time (its mmap threshold), a page fault per 4 kB page -- measured to cost
+        more than the arithmetic they hold.  An evaluator serves one thread at a time.
+        """
+        size = math.prod(shape)
+        buf = self._scratch.get(name)
+        if buf is None or buf.size < size:
+            buf = self._scratch[name] = np.empty(size)
+        return buf[:size].reshape(shape)
 
     def _table(self, half: int) -> tuple[np.ndarray, np.ndarray]:
         """Powers of the grid for ``half`` even and odd coefficients: ``v^m`` and ``x v^m``, each (half, F)."""
@@ -114,11 +130,34 @@ class GridEvaluator:
         even = coef[:, 0::2]
         odd = np.zeros((t, half))
         odd[:, : n // 2] = -coef[:, 1::2] if conjugate else coef[:, 1::2]
+        self._products(even, odd, re, im)
+
+    def slopes(self, coef: np.ndarray, d_re: np.ndarray, d_im: np.ndarray) -> None:
+        """Derivatives in ``x`` of the real and imaginary parts of ``p(jx)`` into ``d_re``, ``d_im`` (T, F).
+
+        With ``Re p(jx) = sum_m c_2m (-1)^m x^2m`` and ``Im p(jx) = sum_m c_2m+1 (-1)^m x^(2m+1)``:
+        ``d Re/dx = sum_m -(2m+2) c_2m+2 (-1)^m x^(2m+1)`` (the odd table) and
+        ``d Im/dx = sum_m (2m+1) c_2m+1 (-1)^m x^2m`` (the even table), the same fixed-shape products
+        as :meth:`parts`.
+        """
+        t, n = coef.shape
+        half = (n + 1) // 2
+        m = np.arange(half)
+        d_even = np.zeros((t, half))                  # multiplies the even table: d Im/dx
+        d_even[:, : n // 2] = coef[:, 1::2] * (2 * m[: n // 2] + 1)
+        d_odd = np.zeros((t, half))                   # multiplies the odd table: d Re/dx
+        k = (n - 1) // 2
+        d_odd[:, :k] = coef[:, 2::2] * -(2.0 * m[:k] + 2.0)
+        self._products(d_even, d_odd, d_im, d_re)
+
+    def _products(self, even: np.ndarray, odd: np.ndarray, re: np.ndarray, im: np.ndarray) -> None:
+        """``re = even @ (even table)``, ``im = odd @ (odd table)`` for rows (T, half), in fixed-shape tiles."""
+        t, half = even.shape
         te, to = self._table(half)
         width = max(8, min(PRODUCT_COLUMNS, PRODUCT_WORK // (TILE_ROWS * half)) // 8 * 8)
         ce = np.zeros((TILE_ROWS, half))
         co = np.zeros((TILE_ROWS, half))
-        pad = np.empty((2, TILE_ROWS, self.size))
+        pad = self._buffer("pad", (2, TILE_ROWS, self.size))
         for t0 in range(0, t, TILE_ROWS):
             t1 = min(t, t0 + TILE_ROWS)
             k = t1 - t0
@@ -159,9 +198,9 @@ class GridEvaluator:
             den = den / np.where(zero, 1.0, a)[:, None]
             zero = zero if zero.any() else None
         nb = min(t, self.block)
-        dbuf = np.empty((2, nb, self.size))          # parts in separate planes: the quotient runs contiguous
-        nbuf = None if const else np.empty((nb, 2, self.size))
-        tmp = np.empty((4, nb, self.size))
+        dbuf = self._buffer("den", (2, nb, self.size))   # parts in separate planes: the quotient runs contiguous
+        nbuf = None if const else self._buffer("num", (nb, 2, self.size))
+        tmp = self._buffer("tmp", (4, nb, self.size))
         for t0 in range(0, t, self.block):
             t1 = min(t, t0 + self.block)
             k = t1 - t0
@@ -174,13 +213,159 @@ class GridEvaluator:
         return out
 
 
+    def ratio_polar(self, num: np.ndarray, den: np.ndarray, power: np.ndarray, phase: np.ndarray | None = None,
+                    delay: np.ndarray | None = None) -> None:
+        """``H = N(sigma)/D(sigma)`` on the grid as ``|H|^2``, the principal ``arg H`` and the group delay.
+
+        Parameters
+        ----------
+        num, den : ndarray, shapes (T, n) and (T, d)
+            Coefficients, ascending powers of sigma.
+        power : ndarray, shape (T, F), float64
+            Written: ``|H|^2`` = ``|N|^2 / |D|^2``.
+        phase : ndarray, shape (T, F), optional
+            Written when given: ``arg H`` in (-pi, pi] (rad), computed in the array's own float dtype
+            (float32: numpy's vectorized arctangent, for a float32 store) as ``arg(N conj D)``.
+        delay : ndarray, shape (T, F), optional
+            Written when given: the group delay ``-d arg H / d omega`` (s) in closed form from the
+            polynomials' derivatives, ``(Re(D'/D) - Re(N'/N)) / w_ref`` (:func:`_log_slope`); 0 where
+            ``H`` is identically 0.
+
+        Notes
+        -----
+        No quotient ``N/D`` is formed: the power is one division, the phase one arctangent, the delay
+        four products of numbers already at hand.  Where ``|D|^2`` leaves the safe range of float64 the
+        three come from numpy's complex division, as in :meth:`ratio`.  Each trial's numbers depend on
+        its own coefficients and the grid only.
+        """
+        t = den.shape[0]
+        const = num.shape[1] == 1
+        zero = None
+        if const:
+            a = num[:, 0]
+            zero = a == 0
+            den = den / np.where(zero, 1.0, a)[:, None]
+            zero = zero if zero.any() else None
+        nb = min(t, self.block)
+        dbuf = self._buffer("den", (2, nb, self.size))
+        nbuf = None if const else self._buffer("num", (nb, 2, self.size))
+        tmp = self._buffer("tmp", (4, nb, self.size))
+        slope = None if delay is None else self._buffer("slope", (2, nb, self.size))
+        for t0 in range(0, t, self.block):
+            t1 = min(t, t0 + self.block)
+            k = t1 - t0
+            c, ec = dbuf[0, :k], dbuf[1, :k]                     # conj D = c + j ec
+            self.parts(den[t0:t1], c, ec, conjugate=True)
+            n = None if const else self.planar(num[t0:t1], nbuf[:k])
+            mag2, r, u, v = tmp[0, :k], tmp[1, :k], tmp[2, :k], tmp[3, :k]
+            np.multiply(c, c, out=mag2)
+            np.multiply(ec, ec, out=r)
+            mag2 += r
+            safe = bool(mag2.min() > SAFE_MIN) and bool(mag2.max() < SAFE_MAX)
+            p = power[t0:t1]
+            with contextlib.nullcontext() if safe else np.errstate(all="ignore"):
+                np.divide(1.0, mag2, out=r)                        # 1/|D|^2
+                if const:
+                    p[...] = r
+                else:
+                    np.multiply(n[:, 0], n[:, 0], out=p)
+                    np.multiply(n[:, 1], n[:, 1], out=u)
+                    p += u
+                    p *= r
+                if phase is not None:
+                    ph = phase[t0:t1]
+                    if const:                                      # arg H = arg conj D
+                        np.arctan2(ec, c, out=ph, dtype=ph.dtype)
+                    else:                                          # arg(N conj D)
+                        np.multiply(n[:, 0], c, out=u)
+                        np.multiply(n[:, 1], ec, out=v)
+                        u -= v
+                        np.multiply(n[:, 0], ec, out=v)
+                        v += n[:, 1] * c
+                        np.arctan2(v, u, out=ph, dtype=ph.dtype)
+                if delay is not None:
+                    d_re, d_im = slope[0, :k], slope[1, :k]
+                    self.slopes(den[t0:t1], d_re, d_im)
+                    np.multiply(c, d_im, out=u)                    # Re(D'/D) |D|^2 = c d_im + ec d_re
+                    np.multiply(ec, d_re, out=v)
+                    u += v
+                    u *= r
+                    if not const:
+                        nn = tmp[0, :k]                            # |N|^2 (|D|^2 no longer needed)
+                        np.multiply(n[:, 0], n[:, 0], out=nn)
+                        np.multiply(n[:, 1], n[:, 1], out=v)
+                        nn += v
+                        self.slopes(num[t0:t1], d_re, d_im)
+                        _log_slope(n[:, 0], n[:, 1], d_re, d_im, nn, v, r)
+                        u -= v                                     # Re(D'/D) - Re(N'/N)
+                    np.multiply(u, 1.0 / self.w_ref, out=delay[t0:t1], casting="same_kind")
+            if not safe:
+                self._unsafe_polar(n, c, ec, den[t0:t1], num[t0:t1], p, None if phase is None else phase[t0:t1],
+                                   None if delay is None else delay[t0:t1])
+        if zero is not None:
+            power[zero] = 0.0
+            for arr in (phase, delay):
+                if arr is not None:
+                    arr[zero] = 0.0
+
+    def _unsafe_polar(self, n, c, ec, den, num, power, phase, delay) -> None:
+        """:meth:`ratio_polar` at the points where ``|D|^2`` left the safe range, by complex arithmetic."""
+        mag2 = c * c + ec * ec
+        bad = ~((mag2 > SAFE_MIN) & (mag2 < SAFE_MAX))
+        with np.errstate(all="ignore"):
+            d = c[bad] - 1j * ec[bad]                              # D
+            nv = 1.0 if n is None else (np.broadcast_to(n[:, 0], bad.shape)[bad]
+                                        + 1j * np.broadcast_to(n[:, 1], bad.shape)[bad])
+            h = nv / d
+            power[bad] = h.real ** 2 + h.imag ** 2
+            if phase is not None:
+                phase[bad] = np.angle(h)
+            if delay is not None:
+                d_re, d_im = np.empty(c.shape), np.empty(c.shape)
+                self.slopes(den, d_re, d_im)
+                tau = ((d_im[bad] - 1j * d_re[bad]) / d).real      # Re(D'/D)
+                if n is not None:
+                    self.slopes(num, d_re, d_im)
+                    nz = nv != 0
+                    tau = tau - np.where(nz, ((d_im[bad] - 1j * d_re[bad]) / np.where(nz, nv, 1.0)).real, 0.0)
+                delay[bad] = tau / self.w_ref
+
+
+def _log_slope(p_re: np.ndarray, p_im: np.ndarray, d_re: np.ndarray, d_im: np.ndarray, mag2: np.ndarray,
+               out: np.ndarray, tmp: np.ndarray) -> None:
+    """``Re(P'(sigma)/P(sigma))`` at ``sigma = jx`` into ``out`` (T, F), ``P' = dP/dsigma``.
+
+    ``P(jx) = p_re + j p_im``, ``dP(jx)/dx = d_re + j d_im = j P'(jx)``, ``mag2 = |P|^2``; then
+    ``Re(P'/P) = (p_re d_im - p_im d_re) / |P|^2`` -- with ``P = D`` the group delay of ``1/D`` in
+    units of ``1/w_ref`` (e.g. A. V. Oppenheim, R. W. Schafer, *Discrete-Time Signal Processing*,
+    3rd ed., 2010, sec. 5.1.2, the delay as the derivative of the phase; here in closed form for a
+    polynomial).  ``tmp`` is scratch of the same shape.  0 where ``P = 0`` and its parts' cross
+    product vanishes (a zero on the axis: the phase jumps by pi, a delta the grid cannot hold);
+    numpy's complex division (Smith's algorithm) where ``|P|^2`` leaves the safe range.
+    """
+    np.multiply(p_re, d_im, out=out)
+    np.multiply(p_im, d_re, out=tmp)
+    out -= tmp
+    safe = bool(mag2.min() > SAFE_MIN) and bool(mag2.max() < SAFE_MAX)
+    if safe:
+        out /= mag2
+        return
+    bad = ~((mag2 > SAFE_MIN) & (mag2 < SAFE_MAX))
+    with np.errstate(all="ignore"):
+        np.divide(out, mag2, out=out, where=~bad)
+        p = p_re[bad] + 1j * p_im[bad]
+        q = (d_im[bad] - 1j * d_re[bad]) / np.where(p == 0, 1.0, p)
+    out[bad] = np.where(p == 0, 0.0, q.real)
+
+
 def _by_conjugate(n: np.ndarray | None, c: np.ndarray, ec: np.ndarray, out_re: np.ndarray, out_im: np.ndarray,
-                  tmp: np.ndarray) -> None:
+                  tmp: np.ndarray) -> bool:
     """``N/D`` with ``conj(D) = c + j ec`` (T, F) and ``N`` planar (T, 2, F) or None (``N = 1``); see the module notes.
 
     ``N = 1``: ``(c + j ec)/|D|^2``.  Otherwise ``N conj(D) r`` with
     ``r = 1/|D|^2``, the numerator's parts scaled by ``r`` first:
-    ``(a r c - b r ec) + j (a r ec + b r c)``.
+    ``(a r c - b r ec) + j (a r ec + b r c)``.  ``tmp[0]`` keeps ``|D|^2``; returns whether every
+    ``|D|^2`` was in the safe range.
     """
     mag2, r, ar, br = tmp
     np.multiply(c, c, out=mag2)
@@ -207,6 +392,7 @@ def _by_conjugate(n: np.ndarray | None, c: np.ndarray, ec: np.ndarray, out_re: n
         h = nc / (c[bad] - 1j * ec[bad])
         out_re[bad] = h.real
         out_im[bad] = h.imag
+    return safe
 
 
 def multiply(a: np.ndarray, b: np.ndarray) -> np.ndarray:

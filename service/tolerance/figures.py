@@ -3,7 +3,11 @@
 The definitions are those of :mod:`service.response.metrics` (A. B.
 Williams, F. J. Taylor, *Electronic Filter Design Handbook*, 4th ed., 2006,
 sec. 2.1-2.3), read on the metric grid of :mod:`service.tolerance.grids`
-instead of refined on one exact response:
+instead of refined on one exact response.  They are read from the power
+ratio ``p = |H|^2``: ``10 log10`` is increasing, so the largest gain is the
+gain of the largest ``p`` and a point is below a level in dB exactly when
+its ``p`` is below the level's power (to rounding); the logarithm is taken
+of the few values a figure reports, not of every point.
 
 reference gain
     The largest gain over the requirement's passband points; without one the
@@ -13,10 +17,11 @@ reference gain
 loss
     reference gain minus gain, dB.
 f3db_hz
-    Where the gain crosses the reference minus 10 log10 2 dB, by linear
-    interpolation of dB in log frequency between adjacent metric points
-    (the dense window around the nominal 3 dB point keeps that within
-    ~1e-5 relative); NaN when the trial has no crossing in the grid.
+    Where the gain crosses the reference minus 10 log10 2 dB (half the
+    reference power), by linear interpolation of dB in log frequency between
+    adjacent metric points (the dense window around the nominal 3 dB point
+    keeps that within ~1e-5 relative); NaN when the trial has no crossing in
+    the grid.
 passband_ripple_db
     Largest minus smallest gain over the passband points (needs a requirement).
 
@@ -34,16 +39,28 @@ from service.tolerance.grids import HALF_POWER_DB, Grids
 
 #: Smallest |H| before the logarithm (keeps an exact transmission zero finite, -3000 dB).
 MAGNITUDE_FLOOR = 1e-150
+#: The same floor for the power ratio |H|^2.
+POWER_FLOOR = MAGNITUDE_FLOOR ** 2
+
+
+def power(h: np.ndarray) -> np.ndarray:
+    """``|h|^2`` (float64, same shape) of a complex response."""
+    return h.real ** 2 + h.imag ** 2
+
+
+def db(p: np.ndarray) -> np.ndarray:
+    """``10 log10 p`` in dB of a power ratio (float64, same shape; ``p`` floored at :data:`POWER_FLOOR`)."""
+    a = np.array(p, dtype=float)
+    if a.size and not a.min() >= POWER_FLOOR:          # the floor touches only values below it (or NaN)
+        np.maximum(a, POWER_FLOOR, out=a)
+    np.log10(a, out=a)
+    a *= 10.0
+    return a
 
 
 def gain_db(h: np.ndarray) -> np.ndarray:
-    """``20 log10 |h|`` in dB, float64, same shape (|h| floored at 1e-150)."""
-    a = np.abs(h)
-    if a.size and not a.min() >= MAGNITUDE_FLOOR:      # the floor touches only values below it (or NaN)
-        np.maximum(a, MAGNITUDE_FLOOR, out=a)
-    np.log10(a, out=a)
-    a *= 20.0
-    return a
+    """``20 log10 |h|`` in dB, float64, same shape (|h| floored at 1e-150): ``db(power(h))``."""
+    return db(power(h))
 
 
 def columns(selected: np.ndarray) -> slice | np.ndarray:
@@ -62,16 +79,25 @@ def positive_columns(grids: Grids) -> slice | np.ndarray:
     return cached
 
 
-def reference_gain(g: np.ndarray, grids: Grids) -> np.ndarray:
-    """Reference gain (dB) per trial, shape (Tc,), from the metric-grid gains ``g`` (Tc, M)."""
+def reference_power(p: np.ndarray, grids: Grids) -> np.ndarray:
+    """Reference power ratio per trial, shape (Tc,), from the metric-grid powers ``p`` (Tc, M); NaN when the
+    criteria fix the reference gain instead (see :func:`reference_gain`)."""
     criteria = grids.criteria
     if criteria is not None and criteria.reference_gain_db is not None:
-        return np.full(g.shape[0], float(criteria.reference_gain_db))
+        return np.full(p.shape[0], 10.0 ** (float(criteria.reference_gain_db) / 10.0))
     if grids.passband_columns is not None:
-        return g[:, columns(grids.passband_columns)].max(axis=1)
+        return p[:, columns(grids.passband_columns)].max(axis=1)
     if grids.response in (ResponseType.LOWPASS, ResponseType.BANDSTOP) and grids.metric_hz[0] == 0.0:
-        return g[:, 0].copy()
-    return g.max(axis=1)
+        return p[:, 0].copy()
+    return p.max(axis=1)
+
+
+def reference_gain(p: np.ndarray, grids: Grids) -> np.ndarray:
+    """Reference gain (dB) per trial, shape (Tc,), from the metric-grid powers ``p`` (Tc, M)."""
+    criteria = grids.criteria
+    if criteria is not None and criteria.reference_gain_db is not None:
+        return np.full(p.shape[0], float(criteria.reference_gain_db))
+    return db(reference_power(p, grids))
 
 
 def _interp(fa, fb, ga, gb, level):
@@ -81,14 +107,18 @@ def _interp(fa, fb, ga, gb, level):
     return np.exp(la + t * (lb - la))
 
 
-def f3db(g: np.ndarray, ref: np.ndarray, grids: Grids) -> np.ndarray:
-    """3 dB frequencies (Hz) per trial: (Tc,) for lowpass/highpass, (Tc, 2) for band responses; NaN when absent."""
+def f3db(p: np.ndarray, ref_db: np.ndarray, grids: Grids) -> np.ndarray:
+    """3 dB frequencies (Hz) per trial: (Tc,) for lowpass/highpass, (Tc, 2) for band responses; NaN when absent.
+
+    ``p`` (Tc, M) are the metric-grid powers, ``ref_db`` (Tc,) the reference gains; a point is below the
+    half-power level when ``p < 10^((ref_db - 10 log10 2)/10)``, and the crossing is interpolated in dB.
+    """
     pos = positive_columns(grids)
     f = grids.metric_hz[pos]
-    gp = g[:, pos]
-    level = (ref - HALF_POWER_DB)[:, None]
-    below = gp < level
-    tc, m = gp.shape
+    pp = p[:, pos]
+    level = (ref_db - HALF_POWER_DB)[:, None]
+    below = pp < 10.0 ** (level / 10.0)
+    tc, m = pp.shape
     rows = np.arange(tc)
     idx = np.arange(m)[None, :]
 
@@ -104,7 +134,7 @@ def f3db(g: np.ndarray, ref: np.ndarray, grids: Grids) -> np.ndarray:
     def cross(a, b, ok):
         a = np.clip(a, 0, m - 1)
         b = np.clip(b, 0, m - 1)
-        out = _interp(f[a], f[b], gp[rows, a], gp[rows, b], level[:, 0])
+        out = _interp(f[a], f[b], db(pp[rows, a]), db(pp[rows, b]), level[:, 0])
         return np.where(ok, out, np.nan)
 
     rt = grids.response
@@ -115,7 +145,7 @@ def f3db(g: np.ndarray, ref: np.ndarray, grids: Grids) -> np.ndarray:
         k = last(below)
         return cross(k, k + 1, (k >= 0) & (k < m - 1))
     if rt is ResponseType.BANDPASS:
-        kp = np.argmax(gp, axis=1)[:, None]
+        kp = np.argmax(pp, axis=1)[:, None]
         lo = last(below & (idx < kp))
         hi = first(below & (idx > kp))
         return np.stack([cross(lo, lo + 1, lo >= 0), cross(hi - 1, hi, hi > 0)], axis=1)
@@ -124,12 +154,13 @@ def f3db(g: np.ndarray, ref: np.ndarray, grids: Grids) -> np.ndarray:
     return np.stack([cross(k0 - 1, k0, ok), cross(k1, k1 + 1, ok)], axis=1)
 
 
-def ripple(g: np.ndarray, grids: Grids) -> np.ndarray | None:
-    """Passband ripple (dB) per trial, (Tc,), or None without a passband."""
+def ripple(p: np.ndarray, grids: Grids) -> np.ndarray | None:
+    """Passband ripple (dB) per trial, (Tc,), from the metric-grid powers ``p`` (Tc, M); None without a passband."""
     if grids.passband_columns is None:
         return None
-    gp = g[:, columns(grids.passband_columns)]
-    return gp.max(axis=1) - gp.min(axis=1)
+    pp = p[:, columns(grids.passband_columns)]
+    return db(pp.max(axis=1)) - db(pp.min(axis=1))
 
 
-__all__ = ["gain_db", "reference_gain", "f3db", "ripple", "columns", "MAGNITUDE_FLOOR"]
+__all__ = ["power", "db", "gain_db", "reference_power", "reference_gain", "f3db", "ripple", "columns",
+           "MAGNITUDE_FLOOR", "POWER_FLOOR"]

@@ -3,30 +3,35 @@
 The circuit with every trial's values is prepared once
 (:func:`service.circuit.prepare_ac`: structure and per-trial polynomial
 coefficients) for each set of evaluated frequencies, and evaluated a chunk of
-trials at a time.  The engine computes each trial element by element, so
-trial ``i`` gives the same bits whatever chunk it is evaluated in; results
-are reduced per chunk and never depend on the chunking (``chunk_trials``, or
-the default of :func:`tile_trials`, bounded by the memory limit).
+trials at a time (:meth:`service.circuit.PreparedAc.parts`: ``|H|^2``, the
+parts of ``H`` and the group delay in closed form).  The engine computes each
+trial element by element, so trial ``i`` gives the same bits whatever chunk
+it is evaluated in; results are reduced per chunk and never depend on the
+chunking (``chunk_trials``, or the default of :func:`tile_trials`, bounded by
+the memory limit).
 
-Magnitude, phase and group delay on the caller's grid are kept per trial as
-float32 in frequency-major stores (F_b, T); the percentiles read the order
-statistics they need from them by selection, not by sorting
-(:func:`service.tolerance.statistics.row_percentiles`).  When the stores of all
-frequencies would exceed the store budget the caller's grid is split into
-frequency blocks, each swept over all trials again; the per-trial figures are
-then read in a first sweep of the metric grid alone.  The split depends on
-the request (trials x frequencies) and the fixed store budget only, never on
-``memory_limit_bytes``: the engine's numbers depend in the last bits on the
-set of frequencies of a call (its scaling frequency).
+Per trial and caller frequency three float32 values are kept, in trial-major
+stores (T, F_b) filled a chunk of rows at a time: ``log10 |H|^2``, the phase
+relative to the nominal response (rad) and the group delay (s).  Each
+reported figure is an increasing function of its stored value -- ``10 x`` dB;
+``(x + nominal unwrapped phase) 180/pi`` degrees; the delay itself -- so the
+percentiles select the order statistics of the stores
+(:func:`service.tolerance.statistics.column_percentiles`, by selection, not
+sorting) and map only those: no per-point logarithm in float64, no scaling
+pass.  When the stores of all frequencies would exceed the store budget the
+caller's grid is split into frequency blocks, each swept over all trials
+again; the per-trial figures are then read in a first sweep of the metric
+grid alone.  The split depends on the request (trials x frequencies) and the
+fixed store budget only, never on ``memory_limit_bytes``: the engine's numbers
+depend in the last bits on the set of frequencies of a call (its scaling
+frequency).
 
 A trial's phase is the nominal response's unwrapped phase plus the principal
-value of ``arg(H / H_nominal)``: exact while the trial stays within +-180
+value of ``arg(H conj H_nominal)``: exact while the trial stays within +-180
 degrees of the nominal at every frequency (always, for part tolerances that
 keep the poles and zeros near their nominal places), and free of branch jumps
-between trials, so percentiles compare like with like.  The group delay's
-phase step ``arg(H(f(1+d)) conj H(f))`` is read as ``Im/Re`` (the arctangent's
-series, relative error (Im/Re)^2/3 < 3.4e-5 where ``|Im/Re| < 1e-2``), with
-the arctangent itself where the step is larger.
+between trials, so percentiles compare like with like.  The arctangent is
+taken in float32 (the store's precision) of the product formed in float64.
 """
 
 from __future__ import annotations
@@ -36,16 +41,21 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from service.circuit import Circuit, prepare_ac
+from service.circuit import Circuit, PolarResponse, prepare_ac
 from service.deadline import check as check_deadline
 from service.tolerance import figures as fig
 from service.tolerance.grids import Grids
 from service.tolerance.sampling import Samples
 from service.tolerance.statistics import row_percentiles
 
+
+def column_percentiles(store: np.ndarray) -> np.ndarray:
+    """Placeholder until the column selection lands: the percentiles (7, F) of the columns of ``store`` (T, F)."""
+    return row_percentiles(np.ascontiguousarray(store.T))
+
 #: Largest default chunk (trials processed at once; speed only, never the numbers).
 TILE_TRIALS = 1024
-#: Working set of one chunk's complex response: the chunk's arrays stay in cache (measured fastest here).
+#: Working set of one chunk's float64 arrays (measured fastest here).
 TILE_BYTES = 3 * 2**20
 MIN_TILE_TRIALS = 64
 #: Bytes of working memory per trial and evaluated frequency while a chunk is processed (measured, rounded up).
@@ -54,13 +64,15 @@ WORK_BYTES_PER_POINT = 64
 STORE_BYTES_PER_POINT = 12
 #: Bound of the stores; above it the caller's grid is split into frequency blocks.
 STORE_BUDGET_BYTES = 160 * 2**20
+#: ``log10`` of the smallest normal float32: below it the store's logarithm is taken in float64 instead.
+LOG10_TINY32 = float(np.log10(np.finfo(np.float32).tiny))
 
 
 def tile_trials(columns: int) -> int:
     """Default chunk (trials processed at once) for ``columns`` evaluated frequencies: a power of two whose
-    complex response (16 bytes a point) fits :data:`TILE_BYTES`, within [MIN_TILE_TRIALS, TILE_TRIALS]."""
+    parts and power (24 bytes a point) fit :data:`TILE_BYTES`, within [MIN_TILE_TRIALS, TILE_TRIALS]."""
     t = TILE_TRIALS
-    while t > MIN_TILE_TRIALS and 16 * t * columns > TILE_BYTES:
+    while t > MIN_TILE_TRIALS and 24 * t * columns > TILE_BYTES:
         t //= 2
     return t
 
@@ -88,7 +100,7 @@ class Sweep:
 
 
 class _Figures:
-    def __init__(self, trials: int, grids: Grids):
+    def __init__(self, trials: int, grids: Grids, chunk: int):
         self.g = grids
         band = grids.response.value in ("bandpass", "bandstop")
         self.ref = np.empty(trials)
@@ -97,54 +109,63 @@ class _Figures:
         self.rip = np.empty(trials) if has_pb else None
         self.edge = np.empty((trials, len(grids.edges)))
         self.edge_cols = np.array([e.column for e in grids.edges], dtype=int)
+        self.metric = np.empty((chunk, grids.metric_hz.size))
+        others = np.ones(grids.metric_hz.size, dtype=bool)
+        others[grids.caller_columns] = False
+        self.extra_columns = np.flatnonzero(others)
 
-    def add(self, sl: slice, g: np.ndarray) -> None:
-        ref = fig.reference_gain(g, self.g)
+    def add(self, sl: slice, caller: np.ndarray, extra: np.ndarray) -> None:
+        """The figures of the trials ``sl`` from their powers on the caller's grid ``caller`` (Tc, F) and on the
+        other metric points ``extra`` (Tc, X)."""
+        p = self.metric[: caller.shape[0]]
+        p[:, self.g.caller_columns] = caller
+        p[:, self.extra_columns] = extra
+        self.add_metric(sl, p)
+
+    def add_metric(self, sl: slice, p: np.ndarray) -> None:
+        """The figures of the trials ``sl`` from their powers on the metric grid ``p`` (Tc, M)."""
+        ref = fig.reference_gain(p, self.g)
         self.ref[sl] = ref
-        self.f3[sl] = fig.f3db(g, ref, self.g)
+        self.f3[sl] = fig.f3db(p, ref, self.g)
         if self.rip is not None:
-            self.rip[sl] = fig.ripple(g, self.g)
+            self.rip[sl] = fig.ripple(p, self.g)
         if self.edge_cols.size:
-            self.edge[sl] = g[:, self.edge_cols]
+            self.edge[sl] = fig.db(p[:, self.edge_cols])
 
     def result(self) -> TrialFigures:
         return TrialFigures(self.ref, self.f3, self.rip, self.edge)
 
 
-class _Engine:
-    """The circuit with every trial's values, prepared on one set of frequencies (Hz)."""
+class _Pool:
+    """Float64 arrays of a chunk, allocated once per sweep and reused chunk after chunk: fresh arrays of this
+    size would be mapped and unmapped by the C allocator for every chunk, a page fault per 4 kB page.
+    Each view is C-contiguous (numpy's loops run fastest over contiguous rows)."""
 
-    def __init__(self, circuit: Circuit, samples: Samples, columns_hz: np.ndarray, engine_limit: int):
-        self.prepared = prepare_ac(circuit.with_values(samples.values), columns_hz, output="out",
-                                   memory_limit_bytes=engine_limit)
+    def __init__(self, rows: int, columns: int, count: int = 1):
+        self.planes = np.empty((count, rows * columns))
 
-    def __call__(self, t0: int, t1: int) -> np.ndarray:
-        return self.prepared.response(slice(t0, t1))
-
-
-#: Largest |Im/Re| of a delay phase step read without the arctangent.
-SMALL_ANGLE = 1e-2
+    def take(self, rows: int, columns: int, k: int = 0) -> np.ndarray:
+        """Plane ``k`` as a contiguous (rows, columns) array (at most the pool's size)."""
+        return self.planes[k, : rows * columns].reshape(rows, columns)
 
 
-def _phase_delay(hc: np.ndarray, hs: np.ndarray, f: np.ndarray, fs: np.ndarray, nominal: np.ndarray,
-                 phase_nominal: np.ndarray, ph_out: np.ndarray, gd_out: np.ndarray) -> None:
-    """Phase (degrees) and group delay (s) of a chunk (Tc, Fb) into float32 ``ph_out``, ``gd_out`` (Tc, Fb);
-    see the module notes.  The delay is computed in float64 and rounded once, on the way out."""
-    q32 = np.multiply(hc, np.conj(nominal)[None, :], out=np.empty(hc.shape, dtype=np.complex64))
-    ph = np.angle(q32)                           # the product in float64, rounded to complex64 on output
-    del q32
-    ph += phase_nominal.astype(np.float32)[None, :]
-    np.multiply(ph, np.float32(180.0 / np.pi), out=ph_out)
-    del ph
-    q = np.conjugate(hc)
-    np.multiply(hs, q, out=q)                    # H(f(1+d)) conj(H(f))
-    x, y = q.real, q.imag
-    with np.errstate(divide="ignore", invalid="ignore"):
-        gd = y / x                               # x = 0 is taken by the arctangent below
-    if not (gd.max() <= SMALL_ANGLE and gd.min() >= -SMALL_ANGLE and x.min() > 0):
-        big = (np.abs(gd) > SMALL_ANGLE) | (x <= 0) | np.isnan(gd)
-        gd[big] = np.arctan2(y[big], x[big])
-    np.multiply(gd, (-1.0 / (2.0 * np.pi * (fs - f)))[None, :], out=gd_out, casting="same_kind")
+def _log_power(p: np.ndarray, out: np.ndarray) -> None:
+    """``log10 p`` into the float32 ``out`` (same shape): in float32 (the store's precision) where ``p`` is a
+    normal float32, in float64 with the floor of :data:`service.tolerance.figures.POWER_FLOOR` elsewhere."""
+    np.log10(p, out=out, dtype=np.float32)
+    if not (out.min() >= LOG10_TINY32 and out.max() < np.inf):          # NaN fails too
+        bad = ~((out >= LOG10_TINY32) & (out < np.inf))
+        out[bad] = np.log10(np.maximum(p[bad], fig.POWER_FLOOR))
+
+
+def _relative_phase(phase: np.ndarray, nominal: np.ndarray) -> None:
+    """Turn the principal phases ``phase`` (Tc, F), float32 rad, in place into their principal difference from
+    the nominal's principal phases ``nominal`` (F,) float32: ``arg(H conj H_nominal)``, in [-pi, pi]."""
+    phase -= nominal
+    turns = phase * np.float32(1.0 / (2.0 * np.pi))
+    np.rint(turns, out=turns)
+    turns *= np.float32(2.0 * np.pi)
+    phase -= turns
 
 
 def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, nominal: np.ndarray,
@@ -184,65 +205,65 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
     -------
     Sweep
     """
-    f, fs = grids.frequency_hz, grids.shifted_hz
+    f = grids.frequency_hz
     nf, nm = f.size, grids.metric_hz.size
     store_budget = STORE_BUDGET_BYTES if store_budget_bytes is None else int(store_budget_bytes)
     fb = max(1, min(nf, store_budget // (STORE_BYTES_PER_POINT * trials)))
     nblocks = math.ceil(nf / fb)
     fb = math.ceil(nf / nblocks)
     single = nblocks == 1
-    columns = nm + nf if single else max(nm, 2 * fb)
+    columns = nm if single else max(nm, fb)
     tile = tile_trials(columns)
     chunk = tile if chunk_trials is None else max(MIN_TILE_TRIALS, int(chunk_trials))
     chunk = min(chunk, max(MIN_TILE_TRIALS, memory_limit_bytes // 2 // (WORK_BYTES_PER_POINT * columns)))
     engine_limit = max(2**20, memory_limit_bytes // 4)
-    figs = _Figures(trials, grids) if figures else None
+    figs = _Figures(trials, grids, chunk) if figures else None
     out = {k: np.full((7, nf), np.nan) for k in ("mag", "ph", "gd")}
     keys = ("mag", "ph", "gd") if phase else ("mag",)
+    with_values = circuit.with_values(samples.values)
+    metric_eval = grids.evaluation_hz(shifted=False)           # the caller's grid, then the other metric points
 
-    nx = grids.extra_hz.size
     if not single and figures:
-        engine = _Engine(circuit, samples, grids.evaluation_hz(shifted=False), engine_limit)
+        engine = prepare_ac(with_values, metric_eval, output="out", memory_limit_bytes=engine_limit)
+        pool = _Pool(chunk, nm)
         for t0 in range(0, trials, chunk):
             check_deadline("tolerance.montecarlo")
             t1 = min(trials, t0 + chunk)
-            h = engine(t0, t1)
-            figs.add(slice(t0, t1), fig.gain_db(h)[:, grids.order])
-            del h
-        del engine
+            r = engine.polar(slice(t0, t1), out=PolarResponse(pool.take(t1 - t0, nm)))
+            figs.add(slice(t0, t1), r.power[:, :nf], r.power[:, nf:])
+        del engine, pool
+    pool = _Pool(chunk, fb)
+    nx = grids.extra_hz.size
+    extra_pool = _Pool(chunk, nx) if single and figs is not None else None
+    nominal_phase32 = np.angle(nominal).astype(np.float32)
     for b in range(nblocks):
         c0, c1 = b * fb, min(nf, (b + 1) * fb)
         w = c1 - c0
-        if single:
-            cols = grids.evaluation_hz(shifted=True)
-        else:
-            cols = np.concatenate([f[c0:c1], fs[c0:c1]])
-        engine = _Engine(circuit, samples, cols, engine_limit)
-        stores = [np.empty((w, trials), dtype=np.float32) for _ in keys]
+        # one preparation (coefficients and scaling frequency) for every column a call evaluates: the caller's
+        # block and the extra metric points are two grids of the same prepared circuit, the bits of one call
+        full = prepare_ac(with_values, metric_eval if single else f[c0:c1], output="out",
+                          memory_limit_bytes=engine_limit)
+        engine = full.on_grid(f[c0:c1]) if single else full
+        extra = full.on_grid(grids.extra_hz) if extra_pool is not None else None
+        stores = [np.empty((trials, w), dtype=np.float32) for _ in keys]
         for t0 in range(0, trials, chunk):
             check_deadline("tolerance.montecarlo")
             t1 = min(trials, t0 + chunk)
-            sl = slice(t0, t1)
-            h = engine(t0, t1)
-            if single:
-                hc, hs = h[:, :nf], h[:, nf + nx:]
-                if figs is not None:
-                    g = fig.gain_db(h[:, :nf + nx])
-                    figs.add(sl, g[:, grids.order])
-                    mag = g[:, :nf]
-                else:
-                    mag = fig.gain_db(hc)                # element by element: the same bits as above
-            else:
-                hc, hs = h[:, :w], h[:, w:]
-                mag = fig.gain_db(hc)
-            stores[0][:, sl] = mag.T
+            sl, k = slice(t0, t1), t1 - t0
+            r = engine.polar(sl, phase=phase, delay=phase,
+                             out=PolarResponse(pool.take(k, w), *((stores[1][sl], stores[2][sl]) if phase else ())))
+            if extra is not None:
+                figs.add(sl, r.power, extra.polar(sl, out=PolarResponse(extra_pool.take(k, nx))).power)
+            _log_power(r.power, stores[0][sl])
             if phase:
-                _phase_delay(hc, hs, f[c0:c1], fs[c0:c1], nominal[c0:c1], phase_nominal_rad[c0:c1],
-                             stores[1][:, sl].T, stores[2][:, sl].T)
-            del h, hc, hs, mag
-        for key, st in zip(keys, stores):
-            out[key][:, c0:c1] = row_percentiles(st)
-        del stores, engine
+                _relative_phase(stores[1][sl], nominal_phase32[c0:c1])
+            del r
+        picked = [column_percentiles(st) for st in stores]
+        del stores, engine, full, extra
+        out["mag"][:, c0:c1] = 10.0 * picked[0]
+        if phase:
+            out["ph"][:, c0:c1] = (picked[1] + phase_nominal_rad[None, c0:c1]) * (180.0 / np.pi)
+            out["gd"][:, c0:c1] = picked[2]
     return Sweep(out["mag"], out["ph"], out["gd"], None if figs is None else figs.result(), nblocks, tile)
 
 

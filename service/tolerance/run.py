@@ -197,8 +197,9 @@ def run_tolerance(plans: list[StagePlan], *, draw_order: Sequence[str] = (), res
             raise ToleranceError("sensitivity_frequencies_hz must be positive frequencies (Hz)",
                                  field="sensitivity_frequencies_hz")
     pre = build_grids(dense, response, criteria, [], 0.0, sens_f)
-    g_pre = fig.gain_db(ac_response(circuit, pre.metric_hz, output="out"))
-    ref_pre = fig.reference_gain(g_pre, pre)
+    p_pre = fig.power(ac_response(circuit, pre.metric_hz, output="out"))
+    g_pre = fig.db(p_pre)
+    ref_pre = fig.reference_gain(p_pre, pre)
     pos_pre = pre.metric_hz > 0
     f3_nom = crossings(pre.metric_hz[pos_pre], g_pre[0, pos_pre], float(ref_pre[0]) - HALF_POWER_DB, response)
     span = max([p.tolerance + p.tempco_ppm_per_c * 1e-6 * (0 if temp is None else max(
@@ -206,8 +207,9 @@ def run_tolerance(plans: list[StagePlan], *, draw_order: Sequence[str] = (), res
     grids = build_grids(f, response, criteria, f3_nom, 4.0 * span, sens_f)
 
     h_nom = ac_response(circuit, grids.metric_hz, output="out")
-    g_nom = fig.gain_db(h_nom)
-    ref_nom = float(fig.reference_gain(g_nom, grids)[0])
+    p_nom = fig.power(h_nom)
+    g_nom = fig.db(p_nom)
+    ref_nom = float(fig.reference_gain(p_nom, grids)[0])
     nominal = h_nom[0, grids.caller_columns]
     phase_nom = np.unwrap(np.angle(nominal))
 

@@ -187,8 +187,9 @@ def worst_case(circuit: Circuit, parts: list[VariedPart], grids: Grids, edge_s: 
     corners = np.concatenate([-signs[:, None, :], signs[:, None, :]], axis=1).reshape(-1, n)   # (2E, P)
     h = ac_response(circuit.with_values(_batch(parts, 1.0 + corners * tol)), grids.metric_hz, output="out",
                     memory_limit_bytes=memory_limit_bytes)
-    g = fig.gain_db(h)
-    ref = fig.reference_gain(g, grids)
+    p2 = fig.power(h)
+    g = fig.db(p2)
+    ref = fig.reference_gain(p2, grids)
     rows = []
     for j, e in enumerate(edges):
         for d, direction in enumerate(("max_loss", "min_loss")):
