@@ -302,9 +302,12 @@ def run_tolerance(plans: list[StagePlan], *, draw_order: Sequence[str] = (), res
 
     notes = {
         "nominal_reference_gain_db": ref_nom,
-        "group_delay": "forward difference of the phase at f(1 + 1e-5), relative error ~1e-5",
+        "group_delay": "closed form from each trial's transfer-function polynomials and their derivatives "
+                       "(a central difference of the phase, step 1e-5 f, where the output is not one rational "
+                       "function)",
         "stage_figures": "closed form of each topology with the sampled values, ideal op-amps",
-        "sensitivity": "central differences (h = 1e-4) with the circuit engine",
+        "sensitivity": "magnitude: central differences (h = 1e-4) with the circuit engine; stage f0 and Q: "
+                       "complex-step derivative of the topology's closed form",
         "gaussian": "tolerance read as 3 sigma, deviates truncated at 6 sigma",
         "percentiles": "Hyndman and Fan (1996) definition 7",
         "verdict": "per trial, the whole-band verifier of the designs (interval bounds on each trial's poles and "

@@ -6,10 +6,9 @@ central differences with the circuit engine,
 ``S ~ (y(x(1+h)) - y(x(1-h))) / (2 h y(x))`` with ``h`` = :data:`REL_STEP`
 (truncation error O(h^2), ~1e-8):
 
-- each stage's f0 and Q from the poles of the stage circuit alone with ideal
-  op-amps (:func:`service.circuit.roots.transfer_roots`, the nominal and all
-  perturbed values of the stage in one batch, read back by
-  :func:`service.realization.fit.fit_section`);
+- each stage's f0 and Q from the closed form of its topology with ideal
+  op-amps, differentiated by the complex step instead (exact to rounding:
+  J. N. Lyness, C. B. Moler, SIAM J. Numer. Anal. 4 (1967) 202-210);
 - the magnitude of the whole filter (its given op-amp models) in dB per
   percent change of the part, ``(|H|dB(+h) - |H|dB(-h)) / (2 h * 100)``, at
   the sensitivity frequencies; all ``2 P`` perturbed circuits are one batch
@@ -31,13 +30,12 @@ temperature is the reference 25 degC in every corner.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from service.circuit import Circuit, ac_response
-from service.circuit.roots import transfer_roots
 from service.deadline import check as check_deadline
-from service.realization.analysis import stage_circuit
-from service.realization.fit import fit_section
 from service.tolerance import figures as fig
 from service.tolerance.grids import Grids
 from service.tolerance.sampling import VariedPart
@@ -70,8 +68,9 @@ def magnitude_sensitivity(circuit: Circuit, parts: list[VariedPart], f_hz: np.nd
 def stage_sensitivity(plans, parts: list[VariedPart]) -> dict[str, tuple[float, float | None]]:
     """``{ref: (S^f0, S^Q)}`` of every passive part on its own stage (ideal op-amps; S^Q None for first order).
 
-    Each stage's circuit is built once; its nominal and its ``2 n`` perturbed value sets are one batch of
-    trials whose poles and zeros come from one call of :func:`service.circuit.roots.transfer_roots`.
+    The stage topology's closed form differentiated by the complex step
+    (:meth:`service.realization.topologies.base.Topology.sensitivities`): exact to rounding, one
+    evaluation of the closed form per part.
     """
     out = {}
     for k, plan in enumerate(plans):
@@ -79,28 +78,14 @@ def stage_sensitivity(plans, parts: list[VariedPart]) -> dict[str, tuple[float, 
         if not mine:
             continue
         check_deadline("tolerance.sensitivity")
-        n = len(mine)
-        factors = np.ones((2 * n + 1, n))
-        idx = np.arange(n)
-        factors[1 + 2 * idx, idx] = 1.0 + REL_STEP
-        factors[2 + 2 * idx, idx] = 1.0 - REL_STEP
-        roots = transfer_roots(stage_circuit(plan, None).with_values(_batch(mine, factors)))
-        fits = [fit_section(plan.section, *_trial_roots(roots, t)) for t in range(2 * n + 1)]
-        nom = fits[0]
-        for i, part in enumerate(mine):
-            up, down = fits[1 + 2 * i], fits[2 + 2 * i]
-            sf = (up["f0_hz"] - down["f0_hz"]) / (2.0 * REL_STEP * nom["f0_hz"])
-            sq = None
-            if plan.section.order == 2 and nom.get("q"):
-                sq = (up["q"] - down["q"]) / (2.0 * REL_STEP * nom["q"])
-            out[part.ref] = (float(sf), None if sq is None else float(sq))
+        values = dict(plan.values)
+        values.update({p.role: p.nominal for p in mine})
+        s = plan.topology.sensitivities(plan.section, plan.strategy, values)
+        second = plan.section.order == 2
+        for part in mine:
+            sf, sq = s[part.role]
+            out[part.ref] = (float(sf), float(sq) if second and math.isfinite(sq) else None)
     return out
-
-
-def _trial_roots(roots, t: int) -> tuple[np.ndarray, np.ndarray, float]:
-    """Finite zeros, poles (rad/s) and the gain magnitude of trial ``t`` of a RootSet."""
-    z, p = roots.zeros[t], roots.poles[t]
-    return z[np.isfinite(z)], p[np.isfinite(p)], float(np.exp(roots.log_gain[t]))
 
 
 def rank(parts: list[VariedPart], stage_s: dict, mag_s: np.ndarray, f_hz: np.ndarray) -> list[dict]:

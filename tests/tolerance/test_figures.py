@@ -22,11 +22,38 @@ def test_ripple_and_reference_equal_the_pointwise_definitions(response, mask):
     rt = ResponseType(response)
     grids = build_grids(GRID, rt, mask, [], 0.0, np.zeros(0))
     rng = np.random.default_rng(3)
-    g = rng.normal(-20.0, 15.0, (300, grids.metric_hz.size))
-    ref = fig.reference_gain(g, grids)
-    assert np.array_equal(ref, g[:, grids.passband_columns].max(axis=1))
+    g = rng.normal(-20.0, 15.0, (300, grids.metric_hz.size))       # gains, dB
+    p = 10.0 ** (g / 10.0)                                          # the powers the figures read
+    ref = fig.reference_gain(p, grids)
+    assert np.allclose(ref, g[:, grids.passband_columns].max(axis=1), rtol=0, atol=1e-12)
     gp = g[:, grids.passband_columns]
-    assert np.array_equal(fig.ripple(g, grids), gp.max(axis=1) - gp.min(axis=1))
+    assert np.allclose(fig.ripple(p, grids), gp.max(axis=1) - gp.min(axis=1), rtol=0, atol=1e-12)
+
+
+@pytest.mark.parametrize("response", ["lowpass", "highpass"])
+def test_f3db_from_powers_is_the_crossing_of_the_gain_in_db(response):
+    """The half-power crossing read from |H|^2 against a point-by-point search of the dB gain, with the
+    interpolation in log frequency done by numpy.interp on each trial alone."""
+    rt = ResponseType(response)
+    grids = build_grids(GRID, rt, None, [], 0.0, np.zeros(0))
+    f = grids.metric_hz[grids.metric_hz > 0]
+    rng = np.random.default_rng(5)
+    fc = 1000.0 * np.exp(rng.normal(0.0, 0.05, 50))
+    x = (f[None, :] / fc[:, None]) ** (1 if rt is ResponseType.LOWPASS else -1)
+    p_pos = 1.0 / (1.0 + x ** 8)                                    # 4th-order Butterworth magnitude squared
+    p = np.concatenate([np.ones((50, grids.metric_hz.size - f.size)), p_pos], axis=1)
+    ref = fig.reference_gain(p, grids)
+    got = fig.f3db(p, ref, grids)
+    g = 10.0 * np.log10(p_pos)
+    for i in range(50):
+        level = ref[i] - fig.HALF_POWER_DB
+        below = np.flatnonzero(g[i] < level)
+        k = below[0] if rt is ResponseType.LOWPASS else below[-1] + 1
+        a, b = (k - 1, k) if rt is ResponseType.LOWPASS else (k - 1, k)
+        t = (level - g[i, a]) / (g[i, b] - g[i, a])
+        want = np.exp(np.log(f[a]) + t * (np.log(f[b]) - np.log(f[a])))
+        assert got[i] == pytest.approx(want, rel=1e-12)
+        assert got[i] == pytest.approx(fc[i], rel=2e-3)             # the grid's interpolation error
 
 
 def test_columns_are_views_for_runs_and_masks_otherwise():
