@@ -132,22 +132,22 @@ class GridEvaluator:
         odd[:, : n // 2] = -coef[:, 1::2] if conjugate else coef[:, 1::2]
         self._products(even, odd, re, im)
 
-    def slopes(self, coef: np.ndarray, d_re: np.ndarray, d_im: np.ndarray) -> None:
+    def slopes(self, coef: np.ndarray, d_re: np.ndarray, d_im: np.ndarray, scale: float = 1.0) -> None:
         """Derivatives in ``x`` of the real and imaginary parts of ``p(jx)`` into ``d_re``, ``d_im`` (T, F).
 
         With ``Re p(jx) = sum_m c_2m (-1)^m x^2m`` and ``Im p(jx) = sum_m c_2m+1 (-1)^m x^(2m+1)``:
         ``d Re/dx = sum_m -(2m+2) c_2m+2 (-1)^m x^(2m+1)`` (the odd table) and
         ``d Im/dx = sum_m (2m+1) c_2m+1 (-1)^m x^2m`` (the even table), the same fixed-shape products
-        as :meth:`parts`.
+        as :meth:`parts`; every derivative is multiplied by ``scale`` (on the coefficients).
         """
         t, n = coef.shape
         half = (n + 1) // 2
         m = np.arange(half)
         d_even = np.zeros((t, half))                  # multiplies the even table: d Im/dx
-        d_even[:, : n // 2] = coef[:, 1::2] * (2 * m[: n // 2] + 1)
+        d_even[:, : n // 2] = coef[:, 1::2] * ((2 * m[: n // 2] + 1) * scale)
         d_odd = np.zeros((t, half))                   # multiplies the odd table: d Re/dx
         k = (n - 1) // 2
-        d_odd[:, :k] = coef[:, 2::2] * -(2.0 * m[:k] + 2.0)
+        d_odd[:, :k] = coef[:, 2::2] * (-(2.0 * m[:k] + 2.0) * scale)
         self._products(d_even, d_odd, d_im, d_re)
 
     def _products(self, even: np.ndarray, odd: np.ndarray, re: np.ndarray, im: np.ndarray) -> None:
@@ -250,7 +250,7 @@ class GridEvaluator:
         dbuf = self._buffer("den", (2, nb, self.size))
         nbuf = None if const else self._buffer("num", (nb, 2, self.size))
         tmp = self._buffer("tmp", (4, nb, self.size))
-        slope = None if delay is None else self._buffer("slope", (2, nb, self.size))
+        slope = None if delay is None and const else self._buffer("slope", (2, nb, self.size))
         for t0 in range(0, t, self.block):
             t1 = min(t, t0 + self.block)
             k = t1 - t0
@@ -264,10 +264,11 @@ class GridEvaluator:
             safe = bool(mag2.min() > SAFE_MIN) and bool(mag2.max() < SAFE_MAX)
             p = power[t0:t1]
             with contextlib.nullcontext() if safe else np.errstate(all="ignore"):
-                np.divide(1.0, mag2, out=r)                        # 1/|D|^2
-                if const:
-                    p[...] = r
+                if const:                                          # |H|^2 = 1/|D|^2 (the folded D)
+                    np.divide(1.0, mag2, out=p)
+                    r = p
                 else:
+                    np.divide(1.0, mag2, out=r)                    # 1/|D|^2
                     np.multiply(n[:, 0], n[:, 0], out=p)
                     np.multiply(n[:, 1], n[:, 1], out=u)
                     p += u
@@ -281,24 +282,27 @@ class GridEvaluator:
                         np.multiply(n[:, 1], ec, out=v)
                         u -= v
                         np.multiply(n[:, 0], ec, out=v)
-                        v += n[:, 1] * c
+                        w = slope[0, :k]                           # scratch until the delay's derivatives
+                        np.multiply(n[:, 1], c, out=w)
+                        v += w
                         np.arctan2(v, u, out=ph, dtype=ph.dtype)
-                if delay is not None:
+                if delay is not None:                              # derivatives in x, scaled by 1/w_ref
                     d_re, d_im = slope[0, :k], slope[1, :k]
-                    self.slopes(den[t0:t1], d_re, d_im)
+                    self.slopes(den[t0:t1], d_re, d_im, 1.0 / self.w_ref)
                     np.multiply(c, d_im, out=u)                    # Re(D'/D) |D|^2 = c d_im + ec d_re
                     np.multiply(ec, d_re, out=v)
                     u += v
-                    u *= r
-                    if not const:
+                    if const:
+                        np.multiply(u, r, out=delay[t0:t1], casting="same_kind")
+                    else:
+                        u *= r
                         nn = tmp[0, :k]                            # |N|^2 (|D|^2 no longer needed)
                         np.multiply(n[:, 0], n[:, 0], out=nn)
                         np.multiply(n[:, 1], n[:, 1], out=v)
                         nn += v
-                        self.slopes(num[t0:t1], d_re, d_im)
-                        _log_slope(n[:, 0], n[:, 1], d_re, d_im, nn, v, r)
-                        u -= v                                     # Re(D'/D) - Re(N'/N)
-                    np.multiply(u, 1.0 / self.w_ref, out=delay[t0:t1], casting="same_kind")
+                        self.slopes(num[t0:t1], d_re, d_im, 1.0 / self.w_ref)
+                        _log_slope(n[:, 0], n[:, 1], d_re, d_im, nn, v, tmp[1, :k])
+                        np.subtract(u, v, out=delay[t0:t1], casting="same_kind")   # Re(D'/D) - Re(N'/N)
             if not safe:
                 self._unsafe_polar(n, c, ec, den[t0:t1], num[t0:t1], p, None if phase is None else phase[t0:t1],
                                    None if delay is None else delay[t0:t1])

@@ -79,25 +79,38 @@ def positive_columns(grids: Grids) -> slice | np.ndarray:
     return cached
 
 
-def reference_power(p: np.ndarray, grids: Grids) -> np.ndarray:
-    """Reference power ratio per trial, shape (Tc,), from the metric-grid powers ``p`` (Tc, M); NaN when the
-    criteria fix the reference gain instead (see :func:`reference_gain`)."""
+def _metric_columns(grids: Grids, selected: np.ndarray, layout: np.ndarray | None) -> slice | np.ndarray:
+    """Columns of ``p`` holding the metric points ``selected`` (bool (M,)), in metric order."""
+    if layout is None:
+        return columns(selected)
+    idx = layout[np.flatnonzero(selected)]
+    if idx.size and idx[-1] - idx[0] + 1 == idx.size and np.all(np.diff(idx) == 1):
+        return slice(int(idx[0]), int(idx[-1]) + 1)
+    return idx
+
+
+def reference_power(p: np.ndarray, grids: Grids, layout: np.ndarray | None = None) -> np.ndarray:
+    """Reference power ratio per trial, shape (Tc,), from the powers ``p`` (Tc, M) of the metric points.
+
+    ``layout`` (M,) gives the column of ``p`` of each metric point (None: ``p`` is in metric order); the
+    criteria's fixed reference gain, when they give one, as a power.
+    """
     criteria = grids.criteria
     if criteria is not None and criteria.reference_gain_db is not None:
         return np.full(p.shape[0], 10.0 ** (float(criteria.reference_gain_db) / 10.0))
     if grids.passband_columns is not None:
-        return p[:, columns(grids.passband_columns)].max(axis=1)
+        return p[:, _metric_columns(grids, grids.passband_columns, layout)].max(axis=1)
     if grids.response in (ResponseType.LOWPASS, ResponseType.BANDSTOP) and grids.metric_hz[0] == 0.0:
-        return p[:, 0].copy()
+        return p[:, 0 if layout is None else int(layout[0])].copy()
     return p.max(axis=1)
 
 
-def reference_gain(p: np.ndarray, grids: Grids) -> np.ndarray:
-    """Reference gain (dB) per trial, shape (Tc,), from the metric-grid powers ``p`` (Tc, M)."""
+def reference_gain(p: np.ndarray, grids: Grids, layout: np.ndarray | None = None) -> np.ndarray:
+    """Reference gain (dB) per trial, shape (Tc,), from the powers ``p`` (Tc, M) of the metric points."""
     criteria = grids.criteria
     if criteria is not None and criteria.reference_gain_db is not None:
         return np.full(p.shape[0], float(criteria.reference_gain_db))
-    return db(reference_power(p, grids))
+    return db(reference_power(p, grids, layout))
 
 
 def _interp(fa, fb, ga, gb, level):
@@ -107,20 +120,31 @@ def _interp(fa, fb, ga, gb, level):
     return np.exp(la + t * (lb - la))
 
 
-def f3db(p: np.ndarray, ref_db: np.ndarray, grids: Grids) -> np.ndarray:
+def f3db(p: np.ndarray, ref_db: np.ndarray, grids: Grids, layout: np.ndarray | None = None) -> np.ndarray:
     """3 dB frequencies (Hz) per trial: (Tc,) for lowpass/highpass, (Tc, 2) for band responses; NaN when absent.
 
-    ``p`` (Tc, M) are the metric-grid powers, ``ref_db`` (Tc,) the reference gains; a point is below the
-    half-power level when ``p < 10^((ref_db - 10 log10 2)/10)``, and the crossing is interpolated in dB.
+    ``p`` (Tc, M) are the powers of the metric points (``layout`` as in :func:`reference_power`), ``ref_db``
+    (Tc,) the reference gains; a point is below the half-power level when
+    ``p < 10^((ref_db - 10 log10 2)/10)``, and the crossing is interpolated in dB.
     """
     pos = positive_columns(grids)
     f = grids.metric_hz[pos]
-    pp = p[:, pos]
     level = (ref_db - HALF_POWER_DB)[:, None]
-    below = pp < 10.0 ** (level / 10.0)
-    tc, m = pp.shape
+    threshold = 10.0 ** (level / 10.0)
+    if layout is None:
+        pp = p[:, pos]
+        below = pp < threshold
+        cols = None
+    else:
+        cols = layout[pos]                                    # column of p of each positive metric point
+        below = (p < threshold)[:, cols]                      # compared in place, reordered as bytes
+    tc, m = below.shape
     rows = np.arange(tc)
     idx = np.arange(m)[None, :]
+
+    def value(k):
+        """Power of each row's positive metric point ``k`` (Tc,)."""
+        return pp[rows, k] if cols is None else p[rows, cols[k]]
 
     def first(sel):
         """Column of each row's first True, -1 when none (one pass: argmax, then the found entry read back)."""
@@ -134,7 +158,7 @@ def f3db(p: np.ndarray, ref_db: np.ndarray, grids: Grids) -> np.ndarray:
     def cross(a, b, ok):
         a = np.clip(a, 0, m - 1)
         b = np.clip(b, 0, m - 1)
-        out = _interp(f[a], f[b], db(pp[rows, a]), db(pp[rows, b]), level[:, 0])
+        out = _interp(f[a], f[b], db(value(a)), db(value(b)), level[:, 0])
         return np.where(ok, out, np.nan)
 
     rt = grids.response
@@ -145,7 +169,7 @@ def f3db(p: np.ndarray, ref_db: np.ndarray, grids: Grids) -> np.ndarray:
         k = last(below)
         return cross(k, k + 1, (k >= 0) & (k < m - 1))
     if rt is ResponseType.BANDPASS:
-        kp = np.argmax(pp, axis=1)[:, None]
+        kp = np.argmax(p[:, pos] if cols is None else p[:, cols], axis=1)[:, None]
         lo = last(below & (idx < kp))
         hi = first(below & (idx > kp))
         return np.stack([cross(lo, lo + 1, lo >= 0), cross(hi - 1, hi, hi > 0)], axis=1)
@@ -154,11 +178,12 @@ def f3db(p: np.ndarray, ref_db: np.ndarray, grids: Grids) -> np.ndarray:
     return np.stack([cross(k0 - 1, k0, ok), cross(k1, k1 + 1, ok)], axis=1)
 
 
-def ripple(p: np.ndarray, grids: Grids) -> np.ndarray | None:
-    """Passband ripple (dB) per trial, (Tc,), from the metric-grid powers ``p`` (Tc, M); None without a passband."""
+def ripple(p: np.ndarray, grids: Grids, layout: np.ndarray | None = None) -> np.ndarray | None:
+    """Passband ripple (dB) per trial, (Tc,), from the powers ``p`` (Tc, M) of the metric points (``layout`` as
+    in :func:`reference_power`); None without a passband."""
     if grids.passband_columns is None:
         return None
-    pp = p[:, columns(grids.passband_columns)]
+    pp = p[:, _metric_columns(grids, grids.passband_columns, layout)]
     return db(pp.max(axis=1)) - db(pp.min(axis=1))
 
 

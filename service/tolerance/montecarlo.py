@@ -100,7 +100,7 @@ class Sweep:
 
 
 class _Figures:
-    def __init__(self, trials: int, grids: Grids, chunk: int):
+    def __init__(self, trials: int, grids: Grids):
         self.g = grids
         band = grids.response.value in ("bandpass", "bandstop")
         self.ref = np.empty(trials)
@@ -109,28 +109,20 @@ class _Figures:
         self.rip = np.empty(trials) if has_pb else None
         self.edge = np.empty((trials, len(grids.edges)))
         self.edge_cols = np.array([e.column for e in grids.edges], dtype=int)
-        self.metric = np.empty((chunk, grids.metric_hz.size))
-        others = np.ones(grids.metric_hz.size, dtype=bool)
-        others[grids.caller_columns] = False
-        self.extra_columns = np.flatnonzero(others)
+        # the column of each metric point in the evaluated layout (the caller's grid, then the other points)
+        self.layout = np.asarray(grids.order, dtype=np.intp)        # concat(F, extra)[order] == metric
+        self.edge_layout = self.layout[self.edge_cols]
 
-    def add(self, sl: slice, caller: np.ndarray, extra: np.ndarray) -> None:
-        """The figures of the trials ``sl`` from their powers on the caller's grid ``caller`` (Tc, F) and on the
-        other metric points ``extra`` (Tc, X)."""
-        p = self.metric[: caller.shape[0]]
-        p[:, self.g.caller_columns] = caller
-        p[:, self.extra_columns] = extra
-        self.add_metric(sl, p)
-
-    def add_metric(self, sl: slice, p: np.ndarray) -> None:
-        """The figures of the trials ``sl`` from their powers on the metric grid ``p`` (Tc, M)."""
-        ref = fig.reference_gain(p, self.g)
+    def add(self, sl: slice, p: np.ndarray) -> None:
+        """The figures of the trials ``sl`` from their powers ``p`` (Tc, F + X) on the evaluated columns: the
+        caller's grid, then the other metric points (:meth:`Grids.evaluation_hz`)."""
+        ref = fig.reference_gain(p, self.g, self.layout)
         self.ref[sl] = ref
-        self.f3[sl] = fig.f3db(p, ref, self.g)
+        self.f3[sl] = fig.f3db(p, ref, self.g, self.layout)
         if self.rip is not None:
-            self.rip[sl] = fig.ripple(p, self.g)
+            self.rip[sl] = fig.ripple(p, self.g, self.layout)
         if self.edge_cols.size:
-            self.edge[sl] = fig.db(p[:, self.edge_cols])
+            self.edge[sl] = fig.db(p[:, self.edge_layout])
 
     def result(self) -> TrialFigures:
         return TrialFigures(self.ref, self.f3, self.rip, self.edge)
@@ -217,7 +209,7 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
     chunk = tile if chunk_trials is None else max(MIN_TILE_TRIALS, int(chunk_trials))
     chunk = min(chunk, max(MIN_TILE_TRIALS, memory_limit_bytes // 2 // (WORK_BYTES_PER_POINT * columns)))
     engine_limit = max(2**20, memory_limit_bytes // 4)
-    figs = _Figures(trials, grids, chunk) if figures else None
+    figs = _Figures(trials, grids) if figures else None
     out = {k: np.full((7, nf), np.nan) for k in ("mag", "ph", "gd")}
     keys = ("mag", "ph", "gd") if phase else ("mag",)
     with_values = circuit.with_values(samples.values)
@@ -230,11 +222,11 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
             check_deadline("tolerance.montecarlo")
             t1 = min(trials, t0 + chunk)
             r = engine.polar(slice(t0, t1), out=PolarResponse(pool.take(t1 - t0, nm)))
-            figs.add(slice(t0, t1), r.power[:, :nf], r.power[:, nf:])
+            figs.add(slice(t0, t1), r.power)
         del engine, pool
-    pool = _Pool(chunk, fb)
     nx = grids.extra_hz.size
-    extra_pool = _Pool(chunk, nx) if single and figs is not None else None
+    both = single and figs is not None                          # the caller's grid and the extra points together
+    pool = _Pool(chunk, fb + nx if both else fb)
     nominal_phase32 = np.angle(nominal).astype(np.float32)
     for b in range(nblocks):
         c0, c1 = b * fb, min(nf, (b + 1) * fb)
@@ -244,16 +236,18 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
         full = prepare_ac(with_values, metric_eval if single else f[c0:c1], output="out",
                           memory_limit_bytes=engine_limit)
         engine = full.on_grid(f[c0:c1]) if single else full
-        extra = full.on_grid(grids.extra_hz) if extra_pool is not None else None
+        extra = full.on_grid(grids.extra_hz) if both else None
         stores = [np.empty((trials, w), dtype=np.float32) for _ in keys]
         for t0 in range(0, trials, chunk):
             check_deadline("tolerance.montecarlo")
             t1 = min(trials, t0 + chunk)
             sl, k = slice(t0, t1), t1 - t0
+            power = pool.take(k, w + nx if both else w)             # (k, F + X): figures; (k, F): the store
             r = engine.polar(sl, phase=phase, delay=phase,
-                             out=PolarResponse(pool.take(k, w), *((stores[1][sl], stores[2][sl]) if phase else ())))
-            if extra is not None:
-                figs.add(sl, r.power, extra.polar(sl, out=PolarResponse(extra_pool.take(k, nx))).power)
+                             out=PolarResponse(power[:, :w], *((stores[1][sl], stores[2][sl]) if phase else ())))
+            if both:
+                extra.polar(sl, out=PolarResponse(power[:, w:]))
+                figs.add(sl, power)
             _log_power(r.power, stores[0][sl])
             if phase:
                 _relative_phase(stores[1][sl], nominal_phase32[c0:c1])
