@@ -27,7 +27,7 @@ import os
 import sys
 
 from service.config import load_or_exit
-from service.malloc import limit_arenas
+from service.malloc import keep_freed_memory, limit_arenas
 
 # An invalid ROLLOFF_* value stops the master here: one line on stderr, exit status 2, no traceback.
 _settings = load_or_exit()
@@ -57,6 +57,9 @@ raw_env = ["OPENBLAS_NUM_THREADS=1", "OMP_NUM_THREADS=1", "MKL_NUM_THREADS=1"]
 # without the cap a worker's resident memory grew by one heavy request's arrays per thread used.
 MALLOC_ARENAS = _settings.compute_slots
 limit_arenas(MALLOC_ARENAS)
+# and freed blocks up to 32 MiB kept for reuse (service/malloc.py): the Monte Carlo's chunk arrays were mapped and
+# unmapped chunk after chunk, a page fault per page.
+keep_freed_memory()
 
 
 def prepare_metrics_dir(path: str) -> None:

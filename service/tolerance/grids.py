@@ -1,16 +1,11 @@
 """The frequencies a tolerance run evaluates, and the requirement's geometry on them.
 
-Three sets of frequencies (Hz) are evaluated together for every trial:
+Two sets of frequencies (Hz) are evaluated together for every trial:
 
 ``frequency_hz`` (F)
     The caller's grid: the percentiles of magnitude, phase and group delay
-    are reported there.
-shifted (F)
-    ``f (1 + DELAY_STEP)``: the group delay is the forward difference of the
-    phase, ``tau = -(phi(f(1+d)) - phi(f)) / (2 pi f d)``, with the phase
-    difference taken as ``arg(H(f(1+d)) conj(H(f)))`` (no unwrapping).  The
-    truncation error is ``d/2 |f tau'(f)/tau|`` relative, about 5e-6 here;
-    rounding adds ~1e-13/(2 pi f d tau), below 1e-7 for ``f tau > 0.01``.
+    are reported there (the group delay in closed form from each trial's
+    polynomials: :meth:`service.circuit.PreparedAc.polar`).
 metric grid (M)
     The caller's grid, every finite requirement edge, a dense window of
     :data:`WINDOW_POINTS` log-spaced points around each nominal 3 dB
@@ -30,8 +25,6 @@ import numpy as np
 from service.approximation.types import ResponseType
 from service.response.verification import Band, Criteria
 
-#: Relative frequency step of the group-delay difference.
-DELAY_STEP = 1e-5
 #: Points of the dense window around each nominal 3 dB frequency.
 WINDOW_POINTS = 129
 #: Half-width limits of that window (relative).
@@ -55,7 +48,6 @@ class Grids:
     """Frequencies of a run and index maps between them (see the module notes)."""
 
     frequency_hz: np.ndarray          # (F,)
-    shifted_hz: np.ndarray            # (F,)
     metric_hz: np.ndarray             # (M,) sorted, may start with 0
     caller_columns: np.ndarray        # (F,) indices of frequency_hz in metric_hz
     extra_hz: np.ndarray              # metric points not on the caller's grid
@@ -72,17 +64,9 @@ class Grids:
         """Bool (M,): metric points above 0 Hz (where 3 dB crossings are searched)."""
         return self.metric_hz > 0
 
-    def evaluation_hz(self, shifted: bool = True) -> np.ndarray:
-        """Columns of one engine call: the caller's grid, the other metric points, then (optionally) the shifted grid."""
-        parts = [self.frequency_hz, self.extra_hz] + ([self.shifted_hz] if shifted else [])
-        return np.concatenate(parts)
-
-
-def shifted(f: np.ndarray) -> np.ndarray:
-    """``f (1 + DELAY_STEP)``; a 0 Hz point is shifted to DELAY_STEP times the lowest positive frequency."""
-    pos = f[f > 0]
-    floor = DELAY_STEP * (pos.min() if pos.size else 1.0)
-    return np.where(f > 0, f * (1.0 + DELAY_STEP), floor)
+    def evaluation_hz(self) -> np.ndarray:
+        """Columns of one engine call: the caller's grid, then the other metric points (``order`` sorts them)."""
+        return np.concatenate([self.frequency_hz, self.extra_hz])
 
 
 def crossings(f_hz: np.ndarray, gain_db: np.ndarray, level_db: float, response: ResponseType) -> list[float]:
@@ -152,7 +136,7 @@ def build_grids(frequency_hz: np.ndarray, response: ResponseType, criteria: Crit
     others[cols] = False
     extra_hz = metric[others]
     order = np.argsort(np.concatenate([f, extra_hz]), kind="stable")
-    g = Grids(frequency_hz=f, shifted_hz=shifted(f), metric_hz=metric, caller_columns=cols, extra_hz=extra_hz,
+    g = Grids(frequency_hz=f, metric_hz=metric, caller_columns=cols, extra_hz=extra_hz,
               order=order, response=response, criteria=criteria, sensitivity_hz=np.asarray(sensitivity_hz, dtype=float))
     if criteria is not None:
         top = metric[-1]
@@ -170,4 +154,4 @@ def build_grids(frequency_hz: np.ndarray, response: ResponseType, criteria: Crit
     return g
 
 
-__all__ = ["Grids", "Edge", "build_grids", "crossings", "shifted", "DELAY_STEP", "HALF_POWER_DB", "WINDOW_POINTS"]
+__all__ = ["Grids", "Edge", "build_grids", "crossings", "HALF_POWER_DB", "WINDOW_POINTS"]

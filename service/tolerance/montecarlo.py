@@ -213,7 +213,7 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
     out = {k: np.full((7, nf), np.nan) for k in ("mag", "ph", "gd")}
     keys = ("mag", "ph", "gd") if phase else ("mag",)
     with_values = circuit.with_values(samples.values)
-    metric_eval = grids.evaluation_hz(shifted=False)           # the caller's grid, then the other metric points
+    metric_eval = grids.evaluation_hz()           # the caller's grid, then the other metric points
 
     if not single and figures:
         engine = prepare_ac(with_values, metric_eval, output="out", memory_limit_bytes=engine_limit)
