@@ -37,6 +37,7 @@ from flask import Response
 from werkzeug.datastructures import MIMEAccept
 
 from service.errors import InvalidParameter
+from service.values import FloatValues
 
 JSON_MEDIA_TYPE = "application/json"
 CSV_MEDIA_TYPE = "text/csv"
@@ -226,6 +227,8 @@ def _rounded(node: Any, trie: Any) -> Any:
         return {k: _rounded(v, trie.get(k, trie.get("*"))) for k, v in node.items()}
     if isinstance(node, list):
         sub = trie.get("*") if trie else None
+        if sub is None and type(node) is FloatValues:          # floats by construction: rounded as a whole
+            return FloatValues(round_figure_list(node))
         if sub is None and len(node) > 8 and all(type(v) is float for v in node):
             return round_figure_list(node)
         return [_rounded(v, sub) for v in node]

@@ -8,6 +8,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from service.tolerance.statistics import PERCENTILE_NAMES
+from service.values import FloatValues
 
 
 def _finite(x):
@@ -17,14 +18,14 @@ def _finite(x):
     return x if math.isfinite(x) else None
 
 
-def _floats(values) -> list[float]:
+def _floats(values) -> FloatValues:
     """Python floats of a 1-D array, converted in C (``ndarray.tolist``), not one by one."""
-    return np.asarray(values, dtype=np.float64).tolist()
+    return FloatValues.of(values)
 
 
-def _named(rows: np.ndarray) -> dict[str, list[float]]:
+def _named(rows: np.ndarray) -> dict[str, FloatValues]:
     rows = np.asarray(rows, dtype=np.float64)
-    return {name: rows[i].tolist() for i, name in enumerate(PERCENTILE_NAMES)}
+    return {name: FloatValues.of(rows[i]) for i, name in enumerate(PERCENTILE_NAMES)}
 
 
 @dataclass

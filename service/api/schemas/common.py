@@ -8,6 +8,7 @@ from typing import Any, Iterable, Sequence
 import marshmallow as ma
 
 from service.api.formats import round_figures
+from service.values import FloatValues
 from service.version import SERVICE_VERSION
 
 
@@ -23,6 +24,8 @@ class FloatList(ma.fields.List):
         super().__init__(ma.fields.Float(), **kwargs)
 
     def _serialize(self, value, attr, obj, **kwargs):
+        if type(value) is FloatValues:                  # floats by construction: no check per item
+            return value
         if type(value) is list and all(type(v) is float for v in value):
             return value
         if hasattr(value, "tolist") and getattr(value, "dtype", None) is not None and value.dtype.kind == "f":
