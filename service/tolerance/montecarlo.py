@@ -50,8 +50,8 @@ from service.tolerance.statistics import row_percentiles
 
 
 def column_percentiles(store: np.ndarray) -> np.ndarray:
-    """Placeholder until the column selection lands: the percentiles (7, F) of the columns of ``store`` (T, F)."""
-    return row_percentiles(np.ascontiguousarray(store.T))
+    """The named percentiles (7, F) of the columns of a trial-major ``store`` (T, F), read in place."""
+    return row_percentiles(store.T)
 
 #: Largest default chunk (trials processed at once; speed only, never the numbers).
 TILE_TRIALS = 1024

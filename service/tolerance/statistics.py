@@ -115,7 +115,7 @@ def _select_block(x: np.ndarray, lo: np.ndarray, width: np.ndarray, ranks: np.nd
     mark = np.zeros(r * buckets, dtype=bool)
     mark[wanted] = True
     pick = np.flatnonzero(mark[code])
-    code, vals = code[pick], x.ravel()[pick]
+    code, vals = code[pick], x[pick // n, pick % n]            # x may be a strided view: no copy of it
     order = np.lexsort((vals, code))
     code, vals = code[order], vals[order]
     return vals[np.searchsorted(code, wanted).reshape(r, -1) + ranks[None, :] - below]
@@ -150,7 +150,7 @@ def order_statistics(rows: np.ndarray, ranks: np.ndarray, *, buckets: int = BUCK
     row_block = max(1, min(row_block, 2**15 // buckets))
     work = np.empty(min(rows.shape[0], row_block) * rows.shape[1], dtype=rows.dtype)
     for r0 in range(0, rows.shape[0], row_block):
-        x = np.ascontiguousarray(rows[r0:r0 + row_block])
+        x = rows[r0:r0 + row_block]                         # read in place (a transposed store is not copied)
         lo = x.min(axis=1)
         with np.errstate(invalid="ignore", over="ignore"):
             width = x.max(axis=1) - lo                      # NaN for a row with a NaN, inf past the range
