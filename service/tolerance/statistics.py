@@ -150,7 +150,7 @@ def order_statistics(rows: np.ndarray, ranks: np.ndarray, *, buckets: int = BUCK
     row_block = max(1, min(row_block, 2**15 // buckets))
     work = np.empty(min(rows.shape[0], row_block) * rows.shape[1], dtype=rows.dtype)
     for r0 in range(0, rows.shape[0], row_block):
-        x = rows[r0:r0 + row_block]                         # read in place (a transposed store is not copied)
+        x = np.ascontiguousarray(rows[r0:r0 + row_block])   # a block of a transposed store: copied block by block
         lo = x.min(axis=1)
         with np.errstate(invalid="ignore", over="ignore"):
             width = x.max(axis=1) - lo                      # NaN for a row with a NaN, inf past the range
