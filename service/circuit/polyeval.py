@@ -63,6 +63,11 @@ SAFE_MIN = 1e-290
 SAFE_MAX = 1e290
 """Range of ``|D|^2`` where the real-arithmetic quotient is exact to rounding; outside, complex division."""
 
+NARROW_MIN = 1e-60
+NARROW_MAX = 1e60
+"""Range of ``|D|^2`` where the phase of ``D`` may be taken in float32 (its parts then lie between 1e-30 and
+1e30 in magnitude, well inside float32's normal range)."""
+
 
 class GridEvaluator:
     """Evaluate real-coefficient polynomials and ratios in ``sigma = j*omega/w_ref`` on a fixed grid.
@@ -224,8 +229,10 @@ class GridEvaluator:
         power : ndarray, shape (T, F), float64
             Written: ``|H|^2`` = ``|N|^2 / |D|^2``.
         phase : ndarray, shape (T, F), optional
-            Written when given: ``arg H`` in (-pi, pi] (rad), computed in the array's own float dtype
-            (float32: numpy's vectorized arctangent, for a float32 store) as ``arg(N conj D)``.
+            Written when given: ``arg H`` in (-pi, pi] (rad) as ``arg(N conj D)``; for a constant ``N``
+            computed in the array's own dtype (float32: numpy's vectorized arctangent, for a float32
+            store) when ``|D|`` lies in float32's comfortable range (:data:`NARROW_MIN`), otherwise in
+            float64 and rounded once.
         delay : ndarray, shape (T, F), optional
             Written when given: the group delay ``-d arg H / d omega`` (s) in closed form from the
             polynomials' derivatives, ``(Re(D'/D) - Re(N'/N)) / w_ref`` (:func:`_log_slope`); 0 where
@@ -261,7 +268,8 @@ class GridEvaluator:
             np.multiply(c, c, out=mag2)
             np.multiply(ec, ec, out=r)
             mag2 += r
-            safe = bool(mag2.min() > SAFE_MIN) and bool(mag2.max() < SAFE_MAX)
+            lo, hi = float(mag2.min()), float(mag2.max())
+            safe = lo > SAFE_MIN and hi < SAFE_MAX
             p = power[t0:t1]
             with contextlib.nullcontext() if safe else np.errstate(all="ignore"):
                 if const:                                          # |H|^2 = 1/|D|^2 (the folded D)
@@ -276,8 +284,10 @@ class GridEvaluator:
                 if phase is not None:
                     ph = phase[t0:t1]
                     if const:                                      # arg H = arg conj D
-                        np.arctan2(ec, c, out=ph, dtype=ph.dtype)
-                    else:                                          # arg(N conj D)
+                        # in the output's dtype when |D| suits it (float32: between 1e-30 and 1e30)
+                        narrow = ph.dtype != np.float64 and not (NARROW_MIN < lo and hi < NARROW_MAX)
+                        np.arctan2(ec, c, out=ph, dtype=np.float64 if narrow else ph.dtype)
+                    else:                                          # arg(N conj D), in float64: |N D| may be huge
                         np.multiply(n[:, 0], c, out=u)
                         np.multiply(n[:, 1], ec, out=v)
                         u -= v
@@ -285,7 +295,7 @@ class GridEvaluator:
                         w = slope[0, :k]                           # scratch until the delay's derivatives
                         np.multiply(n[:, 1], c, out=w)
                         v += w
-                        np.arctan2(v, u, out=ph, dtype=ph.dtype)
+                        np.arctan2(v, u, out=ph)
                 if delay is not None:                              # derivatives in x, scaled by 1/w_ref
                     d_re, d_im = slope[0, :k], slope[1, :k]
                     self.slopes(den[t0:t1], d_re, d_im, 1.0 / self.w_ref)

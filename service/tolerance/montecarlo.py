@@ -140,7 +140,8 @@ class _Pool:
 def _log_power(p: np.ndarray, out: np.ndarray) -> None:
     """``log10 p`` into the float32 ``out`` (same shape): in float32 (the store's precision) where ``p`` is a
     normal float32, in float64 with the floor of :data:`service.tolerance.figures.POWER_FLOOR` elsewhere."""
-    np.log10(p, out=out, dtype=np.float32)
+    with np.errstate(all="ignore"):                # out of float32's range: -inf, inf or NaN, redone below
+        np.log10(p, out=out, dtype=np.float32)
     if not (out.min() >= LOG10_TINY32 and out.max() < np.inf):          # NaN fails too
         bad = ~((out >= LOG10_TINY32) & (out < np.inf))
         out[bad] = np.log10(np.maximum(p[bad], fig.POWER_FLOOR))

@@ -70,3 +70,15 @@ def test_gain_floor_applies_only_below_it():
     g = fig.gain_db(h)
     assert np.array_equal(g, 20 * np.log10(np.maximum(np.abs(h), fig.MAGNITUDE_FLOOR)))
     assert g[0, 1] == g[0, 2] == -3000.0
+
+
+def test_the_magnitude_store_keeps_powers_outside_float32s_range():
+    """log10 |H|^2 is stored in float32: powers float32 cannot hold (underflow, overflow, an exact zero) are
+    taken in float64 with the engine's floor (1e-300, -3000 dB) instead of becoming -inf or a subnormal."""
+    from service.tolerance.montecarlo import _log_power
+    p = np.array([[1.0, 1e-20, 1e-45, 1e-300, 0.0, 1e45, 0.5]])
+    out = np.empty(p.shape, np.float32)
+    _log_power(p, out)
+    want = np.log10(np.maximum(p, fig.POWER_FLOOR))
+    assert np.allclose(out, want, rtol=1e-6, atol=0)
+    assert out[0, 4] == np.float32(-300.0)
