@@ -14,7 +14,7 @@ from typing import Sequence
 import numpy as np
 
 from service.approximation.types import ResponseType
-from service.circuit import ac_response
+from service.circuit import ac_response, prepare_ac
 from service.errors import LimitExceeded
 from service.realization.analysis import StagePlan, cascade_circuit, design_roots
 from service.realization.conditioning import check_plans
@@ -92,7 +92,8 @@ def run_tolerance(plans: list[StagePlan], *, draw_order: Sequence[str] = (), res
                   include_trials: int = 0, memory_limit_bytes: int = DEFAULT_MEMORY_LIMIT_BYTES,
                   max_trials: int = DEFAULT_MAX_TRIALS, max_frequency_points: int = 10_000,
                   chunk_trials: int | None = None, store_budget_bytes: int | None = None,
-                  precision_db: float = TRIAL_PRECISION_DB, outputs: Outputs = EVERYTHING) -> ToleranceResult:
+                  precision_db: float = TRIAL_PRECISION_DB, outputs: Outputs = EVERYTHING,
+                  checked_plans: bool = False) -> ToleranceResult:
     """Monte Carlo analysis, sensitivities, worst case and yield of a design.
 
     Parameters
@@ -148,6 +149,9 @@ def run_tolerance(plans: list[StagePlan], *, draw_order: Sequence[str] = (), res
     outputs : Outputs
         The parts to compute (default all); the parts computed are the same
         numbers whatever else is asked.
+    checked_plans : bool
+        The plans already passed :func:`service.realization.conditioning.check_plans`
+        (a design document's plans do): the check is not repeated.
 
     Returns
     -------
@@ -178,7 +182,8 @@ def run_tolerance(plans: list[StagePlan], *, draw_order: Sequence[str] = (), res
     dist = resolve_distribution(distribution)
     temp = resolve_temperature(temperature)
 
-    check_plans(plans)
+    if not checked_plans:
+        check_plans(plans)
     circuit = cascade_circuit(plans)
     parts = varied_parts(plans, draw_order, dist, tempco_ppm_per_c, gbw_spread)
     samples = draw(parts, trials, seed, temp)
@@ -197,7 +202,8 @@ def run_tolerance(plans: list[StagePlan], *, draw_order: Sequence[str] = (), res
             raise ToleranceError("sensitivity_frequencies_hz must be positive frequencies (Hz)",
                                  field="sensitivity_frequencies_hz")
     pre = build_grids(dense, response, criteria, [], 0.0, sens_f)
-    p_pre = fig.power(ac_response(circuit, pre.metric_hz, output="out"))
+    nominal_ac = prepare_ac(circuit, pre.metric_hz, output="out")      # one trial: coefficients reused below
+    p_pre = fig.power(nominal_ac.response())
     g_pre = fig.db(p_pre)
     ref_pre = fig.reference_gain(p_pre, pre)
     pos_pre = pre.metric_hz > 0
@@ -206,7 +212,7 @@ def run_tolerance(plans: list[StagePlan], *, draw_order: Sequence[str] = (), res
         abs(temp[0] - REFERENCE_TEMPERATURE_C), abs(temp[1] - REFERENCE_TEMPERATURE_C))) for p in parts] + [0.0])
     grids = build_grids(f, response, criteria, f3_nom, 4.0 * span, sens_f)
 
-    h_nom = ac_response(circuit, grids.metric_hz, output="out")
+    h_nom = nominal_ac.on_grid(grids.metric_hz).response()
     p_nom = fig.power(h_nom)
     g_nom = fig.db(p_nom)
     ref_nom = float(fig.reference_gain(p_nom, grids)[0])

@@ -93,5 +93,5 @@ def tolerance(request: ToleranceRequest, settings: Settings, *, path: str = "des
         frequencies_hz=grid, criteria=criteria, sensitivity_frequencies_hz=request.sensitivity_frequencies_hz,
         include_trials=request.include_trials, memory_limit_bytes=settings.memory_limit_bytes,
         max_trials=settings.max_trials, max_frequency_points=settings.max_frequency_points,
-        outputs=outputs)
+        outputs=outputs, checked_plans=True)                    # doc.plans() checked them
     return with_tolerance_figure(result, doc, plans, criteria) if request.figure else result

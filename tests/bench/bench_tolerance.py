@@ -117,7 +117,7 @@ class InProcess:
         self.doc = reference_document()
         document = DesignDocument.from_json(self.doc)
         self.plans = document.plans()
-        self.kw = dict(draw_order=document.draw_order(),
+        self.kw = dict(draw_order=document.draw_order(), checked_plans=True,      # as the workflow passes them
                        response=None if document.response is None else document.response.value,
                        criteria=mask_criteria() if masked else None, frequencies_hz=F)
 
