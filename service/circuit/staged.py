@@ -176,13 +176,43 @@ def block_coefficients(system: MnaSystem, plan: _BlockPlan, w_ref: float, sl: sl
     nums = {}
     for k in b.needed:
         kp = b.cols.index(k)
+        cof = _Cofactors(m, kp) if nb <= 3 else None
         for ci, c in enumerate(plan.inputs):
-            mk = m.copy()
-            mk[:, kp] = cols[ci]
-            coef = _coefficients(_det(mk), plan.num_bounds[(k, c)])
+            if cof is None:
+                mk = m.copy()
+                mk[:, kp] = cols[ci]
+                vals = _det(mk)
+            elif c == RHS:                                   # the unit column of the source's row
+                vals = cof[plan.rhs_pos]
+            else:
+                vals = sum(cols[ci][i] * cof[i] for i in range(nb))
+            coef = _coefficients(vals, plan.num_bounds[(k, c)])
             coef /= scale[:, None]
             nums[(k, c)] = coef
     return den, nums
+
+
+class _Cofactors:
+    """Cofactors of column ``kp`` of square matrices stored with the matrix axes first, (n, n, ...), n <= 3.
+
+    Cramer's rule with the column replaced by ``b`` is the expansion ``sum_i b_i C_i,kp`` along that column
+    (e.g. G. Strang, *Linear Algebra and Its Applications*, 4th ed., 2006, sec. 4.4): a unit column
+    needs one cofactor and no copy of the matrices.  Each cofactor is computed when first asked for.
+    """
+
+    def __init__(self, m: np.ndarray, kp: int):
+        self.m, self.kp = m, kp
+        self.cache: dict[int, np.ndarray] = {}
+
+    def __getitem__(self, i: int) -> np.ndarray:
+        if i not in self.cache:
+            n = self.m.shape[0]
+            rows = [r for r in range(n) if r != i]
+            cols = [c for c in range(n) if c != self.kp]
+            minor = self.m[np.ix_(rows, cols)] if n > 1 else None
+            value = np.ones(self.m.shape[2:], dtype=self.m.dtype) if n == 1 else _det(minor)
+            self.cache[i] = -value if (i + self.kp) % 2 else value
+        return self.cache[i]
 
 
 def _polymul(a: np.ndarray, b: np.ndarray) -> np.ndarray:
