@@ -162,7 +162,7 @@ def block_coefficients(system: MnaSystem, plan: _BlockPlan, w_ref: float, sl: sl
         g_bw, c_bw = system.stamp(sl, rows=b.rows, cols=plan.ext, trials_last=True)
         w = -(g_bw[:, :, None, :] + sig * (w_ref * c_bw)[:, :, None, :])          # (nb, m, P, Tc)
         cols.extend(w[:, i] for i in range(len(plan.ext)))
-    if plan.has_rhs:
+    if plan.has_rhs and nb > 3:                      # (up to 3 unknowns the source's column is a cofactor)
         e = np.zeros((nb, p, tc), dtype=complex)
         e[plan.rhs_pos] = 1.0
         cols.append(e)
