@@ -195,13 +195,7 @@ class GridEvaluator:
         (``N/D = 1/(D/a)``, ``0`` where ``a = 0``).
         """
         t = den.shape[0]
-        const = num.shape[1] == 1
-        zero = None
-        if const:
-            a = num[:, 0]
-            zero = a == 0
-            den = den / np.where(zero, 1.0, a)[:, None]
-            zero = zero if zero.any() else None
+        const, den, zero = _fold_constant(num, den)
         nb = min(t, self.block)
         dbuf = self._buffer("den", (2, nb, self.size))   # parts in separate planes: the quotient runs contiguous
         nbuf = None if const else self._buffer("num", (nb, 2, self.size))
@@ -246,13 +240,7 @@ class GridEvaluator:
         its own coefficients and the grid only.
         """
         t = den.shape[0]
-        const = num.shape[1] == 1
-        zero = None
-        if const:
-            a = num[:, 0]
-            zero = a == 0
-            den = den / np.where(zero, 1.0, a)[:, None]
-            zero = zero if zero.any() else None
+        const, den, zero = _fold_constant(num, den)
         nb = min(t, self.block)
         dbuf = self._buffer("den", (2, nb, self.size))
         nbuf = None if const else self._buffer("num", (nb, 2, self.size))
@@ -343,6 +331,17 @@ class GridEvaluator:
                     nz = nv != 0
                     tau = tau - np.where(nz, ((d_im[bad] - 1j * d_re[bad]) / np.where(nz, nv, 1.0)).real, 0.0)
                 delay[bad] = tau / self.w_ref
+
+
+def _fold_constant(num: np.ndarray, den: np.ndarray) -> tuple[bool, np.ndarray, np.ndarray | None]:
+    """``(constant, den, zero)``: with a constant numerator ``a`` (one column) the denominator divided by it
+    (``a/D = 1/(D/a)``) and the rows where ``a = 0`` (None when there are none); otherwise ``den`` as is."""
+    if num.shape[1] != 1:
+        return False, den, None
+    a = num[:, 0]
+    zero = a == 0
+    den = den / np.where(zero, 1.0, a)[:, None]
+    return True, den, (zero if zero.any() else None)
 
 
 def _log_slope(p_re: np.ndarray, p_im: np.ndarray, d_re: np.ndarray, d_im: np.ndarray, mag2: np.ndarray,
