@@ -12,9 +12,8 @@ repeat by repeat after a warm-up, with one BLAS thread:
 - after: ``column_percentiles(store)``.
 
 Prints the median, IQR, min and max of each (wall ms), the ratio of the
-medians and the median of the per-repeat ratios, whether both paths gave the
-same bits, and how many columns the new path left to a whole sort (a bracket
-that missed its ranks).  The load average is printed with the figures: on a
+medians and the median of the per-repeat ratios, and whether both paths gave
+the same bits.  The load average is printed with the figures: on a
 shared machine compare only figures taken in one run.
 
 Run:  python tests/bench/bench_percentiles.py [--repeat 31] [--trials 10000] [--columns 501] [--before main]
@@ -63,17 +62,6 @@ def module_at(revision: str, tmp: str):
     return module
 
 
-def left_to_sort(x: np.ndarray) -> int:
-    """Columns the column path sorts whole (a bracket missed its ranks, or the column is not finite)."""
-    n = x.shape[0]
-    ranks = after.percentile_ranks(n)
-    pilot = np.sort(np.ascontiguousarray(x[:after.PILOT_ROWS].T), axis=1)
-    groups = after._plan(ranks, n, pilot.shape[1])
-    brackets = after._brackets(x, pilot, groups)
-    _, ok = after._pick(groups, ranks, after._extract(x, groups, brackets), brackets, x.dtype)
-    return int((~ok).sum())
-
-
 def line(name: str, ms: list[float]) -> str:
     q = statistics.quantiles(ms, n=4)
     return (f"{name:44s} median {statistics.median(ms):7.2f} ms  IQR {q[0]:7.2f}-{q[2]:7.2f}  "
@@ -93,7 +81,8 @@ def main() -> None:
         before = module_at(args.before, tmp)
     rows = np.ascontiguousarray(x.T)
     paths = {
-        f"before: store.T copy + row_percentiles ({args.before})": lambda: before.row_percentiles(np.ascontiguousarray(x.T)),
+        f"before: store.T copy + row_percentiles ({args.before})":
+            lambda: before.row_percentiles(np.ascontiguousarray(x.T)),
         f"before: row_percentiles alone ({args.before})": lambda: before.row_percentiles(rows),
         "after: column_percentiles(store)": lambda: after.column_percentiles(x),
     }
@@ -115,7 +104,7 @@ def main() -> None:
     print(f"ratio before/after (medians): {statistics.median(first) / statistics.median(new):.2f} "
           f"with the transposing copy, {statistics.median(alone) / statistics.median(new):.2f} selection alone; "
           f"median of per-repeat ratios {statistics.median(a / b for a, b in zip(first, new)):.2f}")
-    print(f"same bits: {same}; columns sorted whole by the column path: {left_to_sort(x)} of {args.columns}")
+    print(f"same bits: {same}")
 
 
 if __name__ == "__main__":
