@@ -16,9 +16,10 @@ Programming*, vol. 3, 2nd ed., 1998, sec. 5.2 "distribution counting" and
 5.3.3 on selection), linear in the number of trials.  The store is taken a
 slab of columns at a time (SLAB_VALUES values), copied column-major
 TRANSPOSE_ROWS trials at a time (the strided reads stay in cache; the working
-memory is one slab, never a copy of the store), and a block of the slab's
-rows (BLOCK_VALUES values) at a time is selected: each column's values are
-mapped to BUCKETS buckets by the monotone map ``floor((x - min) * s)``
+memory is one slab, never a copy of the store; a column-major store is read
+in place), and a block of the slab's rows (BLOCK_VALUES values) at a time is
+selected: each column's values are mapped to BUCKETS buckets by the monotone
+map ``floor((x - min) * s)``
 (rounding preserves order: a larger value never falls in a lower bucket), the
 buckets are counted, the bucket holding each wanted rank is read from the
 cumulative counts, and only the values of those few buckets are taken out and
@@ -29,9 +30,10 @@ distribution (a lopsided column only puts more values in a bucket); a column
 with a NaN or an infinite span is sorted.
 
 Measured on (10000, 501) float32 stores, one thread (see
-tests/bench/bench_percentiles.py): about 22 ms, of which the slab copies take
-about 4 ms; the counting (``np.bincount``, one scalar increment per value)
-and the marking of the wanted buckets are most of the rest.  A sampling
+tests/bench/bench_percentiles.py): about 24 ms from a trial-major store, of
+which the slab copies take about 5 ms (a frequency-major array, read in
+place: about 19 ms); the counting (``np.bincount``, one scalar increment per
+value) and the marking of the wanted buckets are most of the rest.  A sampling
 bracket (R. W. Floyd and R. L. Rivest, "Expected time bounds for selection",
 Comm. ACM 18(3) (1975) 165-172: the first trials as a pilot sample, then per
 column and rank a value bracket counted in one pass and the values inside it
@@ -91,27 +93,42 @@ def percentile_ranks(n: int) -> np.ndarray:
 BUCKETS = 512
 #: Values in one column-major slab of the store (its columns selected together): bounds the working
 #: memory to the slab and the bucket codes of one block of its rows, whatever the store's size.
-SLAB_VALUES = 1 << 21
+SLAB_VALUES = 1_310_720
 #: Values per block of slab rows coded and counted at once (their counts and codes stay in cache).
 BLOCK_VALUES = 320_000
 #: Trials copied per step of the transposition into a slab (the strided rows read stay in cache).
 TRANSPOSE_ROWS = 512
+#: Most values taken out of one column to be sorted with the others as a row of one padded array (a short
+#: sort); a column whose marked buckets hold more (a lopsided column) is sorted alone.
+SHORT_ROW = 512
 
 
-def _transposed(x: np.ndarray, c0: int, c1: int) -> np.ndarray:
-    """Columns ``c0..c1`` of ``x`` (n, F) as the rows of a C-contiguous (c1 - c0, n) array, copied
-    TRANSPOSE_ROWS trials at a time."""
+def _transposed(x: np.ndarray, c0: int, c1: int, buffer: np.ndarray) -> np.ndarray:
+    """Columns ``c0..c1`` of ``x`` (n, F) as the rows of a C-contiguous (c1 - c0, n) array in ``buffer``,
+    copied TRANSPOSE_ROWS trials at a time."""
     n = x.shape[0]
-    out = np.empty((c1 - c0, n), dtype=x.dtype)
+    out = buffer[:(c1 - c0) * n].reshape(c1 - c0, n)
     for a in range(0, n, TRANSPOSE_ROWS):
         out[:, a:a + TRANSPOSE_ROWS] = x[a:a + TRANSPOSE_ROWS, c0:c1].T
     return out
 
 
-def _select_block(x: np.ndarray, lo: np.ndarray, hi: np.ndarray, ranks: np.ndarray) -> np.ndarray:
+class _Work:
+    """Buffers of one block of rows, reused block after block (fresh arrays of this size would be mapped
+    and faulted in page by page each time)."""
+
+    def __init__(self, size: int, dtype: np.dtype):
+        self.y = np.empty(size, dtype=dtype)
+        self.code32 = np.empty(size, dtype=np.int32)
+        self.code = np.empty(size, dtype=np.intp)
+        self.hit = np.empty(size, dtype=bool)
+
+
+def _select_block(x: np.ndarray, lo: np.ndarray, hi: np.ndarray, ranks: np.ndarray, work: _Work) -> np.ndarray:
     """Order statistics ``ranks`` (K,, sorted) of every row of ``x`` (R, n); shape (R, K), dtype of ``x``.
 
-    ``lo`` (R,) and ``hi`` (R,) are each row's minimum and maximum, their difference finite.
+    ``lo`` (R,) and ``hi`` (R,) are each row's minimum and maximum, their difference finite; ``work`` has
+    room for ``x``.
     """
     r, n = x.shape
     rows = np.arange(r)[:, None]
@@ -120,10 +137,13 @@ def _select_block(x: np.ndarray, lo: np.ndarray, hi: np.ndarray, ranks: np.ndarr
     with np.errstate(over="ignore"):
         np.divide(x.dtype.type(BUCKETS - 0.5), width, out=scale, where=width > 0)
     scale[~np.isfinite(scale)] = 0.0                        # a subnormal span: one bucket (still exact)
-    y = x - lo[:, None]                                     # in [0, width]: rounding keeps the order
+    y = np.subtract(x, lo[:, None], out=work.y[:x.size].reshape(r, n))   # in [0, width]: rounding keeps order
     y *= scale[:, None]                                     # in [0, BUCKETS - 0.5] to rounding: below BUCKETS
     y += (np.arange(r, dtype=x.dtype) * BUCKETS)[:, None]  # row offsets: integers below 2**15, exact
-    code = y.astype(np.int32).astype(np.intp).ravel()       # (row, bucket) of every value, monotone in x per row
+    code32 = work.code32[:x.size]
+    np.copyto(code32, y.ravel(), casting="unsafe")          # floor: y >= 0 (float to int32 is the fast cast)
+    code = work.code[:x.size]
+    np.copyto(code, code32)                                 # (row, bucket) of every value, monotone in x per row
     hist = np.bincount(code, minlength=r * BUCKETS).reshape(r, BUCKETS)
     cum = np.cumsum(hist, axis=1)
     # the bucket holding each rank: the first whose cumulative count exceeds it (one search over all rows,
@@ -141,18 +161,26 @@ def _select_block(x: np.ndarray, lo: np.ndarray, hi: np.ndarray, ranks: np.ndarr
         first[:, inner[1:]] = bucket[:, inner[1:]] != bucket[:, inner[:-1]]
     mark = np.zeros(r * BUCKETS, dtype=bool)
     mark[(bucket + rows * BUCKETS)[first]] = True
-    pick = np.flatnonzero(mark[code])                       # the values of the marked buckets, row by row
+    pick = np.flatnonzero(np.take(mark, code, out=work.hit[:x.size]))   # the marked buckets' values, by row
     row = pick // n
+    values = x.ravel()[pick]
     taken = np.bincount(row, minlength=r)
-    slot = np.arange(pick.size) - (np.cumsum(taken) - taken)[row]
-    marked = np.full((r, max(int(taken.max(initial=0)), 1)), np.inf, dtype=x.dtype)
-    marked[row, slot] = x.ravel()[pick]
-    marked.sort(axis=1)                                     # short rows: each row's marked buckets in order
+    start = np.cumsum(taken) - taken                        # each row's run in pick
     # a rank's place among its row's marked values: the marked buckets below its own come first
     held = np.where(first, hist[rows, bucket], 0)
     before = ((bucket[:, None, :] > bucket[:, :, None]) * held[:, :, None]).sum(axis=1)
-    at = np.clip(before + ranks[None, :] - below, 0, marked.shape[1] - 1)
-    out = marked[rows, at]
+    at = before + ranks[None, :] - below                    # (R, K); used for ranks 1 .. n - 2
+    out = np.empty((r, ranks.size), dtype=x.dtype)
+    short = taken <= SHORT_ROW                              # sorted together, as rows of one padded array
+    if short.any():
+        keep = short[row]
+        marked = np.full((r, max(int(taken[short].max()), 1)), np.inf, dtype=x.dtype)
+        marked[row[keep], (np.arange(pick.size) - start[row])[keep]] = values[keep]
+        marked.sort(axis=1)
+        out[short] = marked[rows, np.clip(at, 0, marked.shape[1] - 1)][short]
+    for i in np.flatnonzero(~short):                        # crowded buckets (a lopsided column): alone
+        own = np.sort(values[start[i]:start[i] + taken[i]])
+        out[i] = own[np.clip(at[i], 0, own.size - 1)]
     out[:, ranks == 0] = lo[:, None]
     out[:, ranks == n - 1] = hi[:, None]
     return out
@@ -164,17 +192,18 @@ def _select_rows(rows: np.ndarray, ranks: np.ndarray) -> np.ndarray:
     Rows with a NaN or an infinite span are sorted (NaN last, as ``np.sort`` puts it)."""
     out = np.empty((rows.shape[0], ranks.size), dtype=rows.dtype)
     block = int(np.clip(BLOCK_VALUES // rows.shape[1], 1, 2**15 // BUCKETS))   # row offsets stay below 2**15
+    work = _Work(min(block, rows.shape[0]) * rows.shape[1], rows.dtype)
     for r0 in range(0, rows.shape[0], block):
         x = rows[r0:r0 + block]
         lo, hi = x.min(axis=1), x.max(axis=1)
         with np.errstate(invalid="ignore", over="ignore"):
             ok = np.isfinite(hi - lo)                       # not for a row with a NaN, or a span past the range
         if ok.all():
-            out[r0:r0 + x.shape[0]] = _select_block(x, lo, hi, ranks)
+            out[r0:r0 + x.shape[0]] = _select_block(x, lo, hi, ranks, work)
             continue
         good, bad = np.flatnonzero(ok), np.flatnonzero(~ok)
         if good.size:
-            out[r0 + good] = _select_block(x[good], lo[good], hi[good], ranks)
+            out[r0 + good] = _select_block(x[good], lo[good], hi[good], ranks, work)
         out[r0 + bad] = np.sort(x[bad], axis=1)[:, ranks]
     return out
 
@@ -185,7 +214,8 @@ def column_order_statistics(x: np.ndarray, ranks: np.ndarray) -> np.ndarray:
     Parameters
     ----------
     x : ndarray, shape (n, F), float32 or float64 (other types are converted to float64)
-        One column per frequency, one row per trial; any memory layout (C-contiguous is fastest).
+        One column per frequency, one row per trial; any memory layout (a column-major one, e.g. the
+        transpose of a frequency-major store, is read in place; others are copied a slab at a time).
     ranks : array of int, shape (K,)
         0-based ranks, each in ``[0, n)``, in any order.
 
@@ -210,9 +240,12 @@ def column_order_statistics(x: np.ndarray, ranks: np.ndarray) -> np.ndarray:
     distinct = np.unique(ranks)
     back = np.searchsorted(distinct, ranks)
     slab = max(1, SLAB_VALUES // n)
+    column_major = x.T.flags.c_contiguous                   # a frequency-major store seen through .T: no copy
+    buffer = None if column_major else np.empty(min(slab, f) * n, dtype=x.dtype)
     for c0 in range(0, f, slab):
         c1 = min(f, c0 + slab)
-        out[:, c0:c1] = _select_rows(_transposed(x, c0, c1), distinct).T[back]
+        rows = x.T[c0:c1] if column_major else _transposed(x, c0, c1, buffer)
+        out[:, c0:c1] = _select_rows(rows, distinct).T[back]
     return out
 
 
@@ -253,10 +286,8 @@ def column_percentiles(x: np.ndarray) -> np.ndarray:
 
 
 def row_percentiles(rows: np.ndarray) -> np.ndarray:
-    """Named percentiles of every row of a frequency-major (F, n) array: ``column_percentiles(rows.T)``.
-
-    Kept for callers that still fill (F, n) stores; (7, F) float64.
-    """
+    """Named percentiles of every row of a frequency-major (F, n) array: ``column_percentiles(rows.T)``
+    (a C-contiguous ``rows`` is read in place); (7, F) float64."""
     return column_percentiles(np.asarray(rows).T)
 
 
