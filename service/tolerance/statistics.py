@@ -186,13 +186,18 @@ def _select_block(x: np.ndarray, lo: np.ndarray, hi: np.ndarray, ranks: np.ndarr
     return out
 
 
-def _select_rows(rows: np.ndarray, ranks: np.ndarray) -> np.ndarray:
+def _block_rows(n: int) -> int:
+    """Rows of ``n`` values selected together (row offsets ``row * BUCKETS`` stay below 2**15)."""
+    return int(np.clip(BLOCK_VALUES // n, 1, 2**15 // BUCKETS))
+
+
+def _select_rows(rows: np.ndarray, ranks: np.ndarray, work: _Work) -> np.ndarray:
     """Order statistics ``ranks`` (sorted, distinct) of every row of ``rows`` (R, n); shape (R, K).
 
-    Rows with a NaN or an infinite span are sorted (NaN last, as ``np.sort`` puts it)."""
+    ``work`` has room for :func:`_block_rows` rows.  Rows with a NaN or an infinite span are sorted (NaN
+    last, as ``np.sort`` puts it)."""
     out = np.empty((rows.shape[0], ranks.size), dtype=rows.dtype)
-    block = int(np.clip(BLOCK_VALUES // rows.shape[1], 1, 2**15 // BUCKETS))   # row offsets stay below 2**15
-    work = _Work(min(block, rows.shape[0]) * rows.shape[1], rows.dtype)
+    block = _block_rows(rows.shape[1])
     for r0 in range(0, rows.shape[0], block):
         x = rows[r0:r0 + block]
         lo, hi = x.min(axis=1), x.max(axis=1)
@@ -242,10 +247,11 @@ def column_order_statistics(x: np.ndarray, ranks: np.ndarray) -> np.ndarray:
     slab = max(1, SLAB_VALUES // n)
     column_major = x.T.flags.c_contiguous                   # a frequency-major store seen through .T: no copy
     buffer = None if column_major else np.empty(min(slab, f) * n, dtype=x.dtype)
+    work = _Work(min(_block_rows(n), f) * n, x.dtype)
     for c0 in range(0, f, slab):
         c1 = min(f, c0 + slab)
         rows = x.T[c0:c1] if column_major else _transposed(x, c0, c1, buffer)
-        out[:, c0:c1] = _select_rows(rows, distinct).T[back]
+        out[:, c0:c1] = _select_rows(rows, distinct, work).T[back]
     return out
 
 
