@@ -6,51 +6,138 @@ import numpy as np
 import pytest
 
 from service.tolerance import Outputs
-from service.tolerance.statistics import (order_statistics, percentile_ranks, row_percentiles,
-                                          sorted_percentiles)
+from service.tolerance.statistics import (column_order_statistics, column_percentiles, percentile_ranks,
+                                          row_percentiles, sorted_percentiles)
 from tests.tolerance.conftest import run_tolerance
 
 from .conftest import GRID
 
+#: numpy.percentile's "linear" method is Hyndman and Fan (1996) definition 7, the levels' definition.
+LEVELS = [0.0, 0.135, 2.5, 50.0, 97.5, 99.865, 100.0]
 
-def _rows(n: int, dtype, rng) -> np.ndarray:
-    """Rows of several shapes of distribution, ties, extremes and non-finite values."""
-    a = rng.standard_normal((16, n)) * np.logspace(-9, 4, 16)[:, None] + rng.uniform(-200, 200, 16)[:, None]
-    a[1] = 5.0                                      # constant
-    a[2, : n // 2] = 1.0                            # half ties
-    a[3] = rng.integers(0, 3, n)                    # few distinct values
-    a[4] = rng.lognormal(0.0, 4.0, n)               # lopsided
-    if n > 2:
-        a[5, 0] = np.nan                            # sorted NaN last, as numpy does
-        a[6, 1] = np.inf
-        a[7, 0] = -np.inf
-        a[8, 0], a[8, 1:] = np.finfo(dtype).tiny / 4, 0.0    # subnormal span
-        a[9, 0], a[9, 1] = np.finfo(dtype).max, -np.finfo(dtype).max   # span beyond the range
-    return a.astype(dtype)
+
+def _columns(n: int, f: int, dtype, rng) -> np.ndarray:
+    """(n, f) trials of columns shaped like Monte Carlo figures (normal, per-column mean and spread) with
+    the awkward ones mixed in: lopsided, constant, ties, few distinct values, subnormal, NaN, infinities,
+    spans beyond the range, -0.0 against 0.0, and values from 1e-30 to 1e30."""
+    x = rng.standard_normal((n, f)) * np.logspace(-3, 2, f) + np.linspace(-80, 40, f)
+    odd = [
+        lambda: rng.lognormal(0.0, 2.0, n),                                   # lopsided
+        lambda: np.full(n, 5.0),                                              # constant
+        lambda: np.where(rng.random(n) < 0.5, 1.0, rng.standard_normal(n)),   # half ties
+        lambda: rng.integers(0, 3, n).astype(float),                          # few distinct values
+        lambda: np.where(rng.random(n) < 0.5, 0.0, -0.0),                     # signed zeros
+        lambda: np.where(rng.random(n) < 0.1, np.finfo(dtype).tiny / 4, 0.0), # subnormal span
+        lambda: np.where(rng.random(n) < 0.01, np.nan, rng.standard_normal(n)),
+        lambda: np.where(rng.random(n) < 0.01, np.inf, rng.standard_normal(n)),
+        lambda: np.where(rng.random(n) < 0.01, -np.inf, rng.standard_normal(n)),
+        lambda: np.full(n, np.nan),
+        lambda: rng.choice([np.finfo(dtype).max, -np.finfo(dtype).max, 0.0], n),   # span beyond the range
+        lambda: np.sign(rng.standard_normal(n)) * 10.0 ** rng.uniform(-30, 30, n),  # 1e-30 .. 1e30
+        lambda: rng.uniform(0, 1, n) ** 8,                                    # piled up against 0
+        lambda: rng.standard_t(2, n),                                         # heavy tails
+    ]
+    for j, make in enumerate(odd[:max(0, f - 2)]):
+        x[:, 1 + 3 * j % max(1, f - 1)] = make()
+    return x.astype(dtype)
+
+
+def _ranks(n: int, rng) -> list[np.ndarray]:
+    """The named levels' ranks, every rank of a short column, and a scatter of ranks (unsorted, repeated)."""
+    out = [percentile_ranks(n)]
+    out.append(np.arange(n) if n <= 100 else rng.integers(0, n, 40))
+    return out
 
 
 @pytest.mark.parametrize("dtype", [np.float32, np.float64])
-@pytest.mark.parametrize("n", [1, 2, 3, 14, 101, 2000, 10000])
-def test_order_statistics_are_the_sorted_rows_bit_for_bit(n, dtype):
-    # source: numpy.sort (reference library): the selected order statistics are the sorted rows' entries
-    rng = np.random.default_rng(n)
-    a = _rows(n, dtype, rng)
-    ranks = percentile_ranks(n)
-    assert np.array_equal(order_statistics(a, ranks), np.sort(a, axis=1)[:, ranks], equal_nan=True)
-    all_ranks = np.arange(n) if n <= 101 else np.unique(rng.integers(0, n, 50))
-    assert np.array_equal(order_statistics(a, all_ranks, buckets=64, row_block=3),
-                          np.sort(a, axis=1)[:, all_ranks], equal_nan=True)
-    with np.errstate(invalid="ignore"):
-        assert np.array_equal(row_percentiles(a), sorted_percentiles(np.sort(a, axis=1)), equal_nan=True)
+@pytest.mark.parametrize("n, f", [(1, 1), (2, 5), (3, 7), (7, 3), (100, 40), (3000, 17), (10000, 1),
+                                  (10000, 64), (10000, 600), (20000, 40)])
+def test_column_order_statistics_are_the_sorted_columns_bit_for_bit(n, f, dtype):
+    # source: numpy.sort (reference library): the selected order statistics are the sorted columns' rows
+    rng = np.random.default_rng(n * 1000 + f)
+    x = _columns(n, f, dtype, rng)
+    expected = np.sort(x, axis=0)
+    for ranks in _ranks(n, rng):
+        got = column_order_statistics(x, ranks)
+        assert got.dtype == x.dtype and got.shape == (len(ranks), f)
+        assert np.array_equal(got, expected[ranks], equal_nan=True)
 
 
-def test_row_percentiles_match_numpy_percentile():
+@pytest.mark.parametrize("dtype", [np.float32, np.float64])
+@pytest.mark.parametrize("buckets", [4, 512])
+def test_every_path_of_the_selection_gives_the_sorted_bits(monkeypatch, dtype, buckets):
+    # small column blocks and row blocks with ragged ends, a transposition step that does not divide the
+    # trials, and few buckets (many values per marked bucket)
+    # source: numpy.sort (reference library)
+    import service.tolerance.statistics as st
+
+    monkeypatch.setattr(st, "SLAB_VALUES", 7 * 10007)
+    monkeypatch.setattr(st, "TRANSPOSE_ROWS", 300)
+    monkeypatch.setattr(st, "BLOCK_VALUES", 3 * 10007)
+    monkeypatch.setattr(st, "BUCKETS", buckets)
+    rng = np.random.default_rng(11)
+    x = _columns(10007, 20, dtype, rng)
+    expected = np.sort(x, axis=0)
+    for ranks in (percentile_ranks(10007), rng.integers(0, 10007, 30), np.array([0, 1, 5000, 10005, 10006])):
+        assert np.array_equal(column_order_statistics(x, ranks), expected[ranks], equal_nan=True)
+
+
+def test_any_trial_order_gives_the_same_bits():
+    # sorted, reversed or clustered trials: the same order statistics
+    # source: numpy.sort (reference library)
+    rng = np.random.default_rng(8)
+    x = _columns(6000, 50, np.float32, rng)
+    ranks = percentile_ranks(6000)
+    expected = np.sort(x, axis=0)[ranks]
+    for arranged in (np.sort(x, axis=0), np.sort(x, axis=0)[::-1], np.roll(np.sort(x, axis=0), 2500, axis=0)):
+        assert np.array_equal(column_order_statistics(arranged, ranks), expected, equal_nan=True)
+
+
+def test_column_percentiles_equal_the_sorted_percentiles_bit_for_bit():
+    # source: numpy.sort (reference library), then the same interpolation as sorted_percentiles
+    rng = np.random.default_rng(4)
+    for n, f in ((1, 3), (2, 3), (137, 20), (10000, 501)):
+        x = _columns(n, f, np.float32, rng)[:, 2 * (f > 20):]    # without the NaN columns
+        x = x[:, np.isfinite(x).all(axis=0)]
+        with np.errstate(invalid="ignore", over="ignore"):
+            assert np.array_equal(column_percentiles(x), sorted_percentiles(np.sort(x, axis=0).T))
+
+
+def test_column_percentiles_match_numpy_percentile():
     # source: numpy.percentile, method "linear" (reference library) = Hyndman and Fan (1996) definition 7
     rng = np.random.default_rng(3)
-    a = rng.standard_normal((40, 10000)).astype(np.float32)
-    levels = [0.0, 0.135, 2.5, 50.0, 97.5, 99.865, 100.0]
-    expected = np.percentile(a.astype(np.float64), levels, axis=1, method="linear")
-    assert np.allclose(row_percentiles(a), expected, rtol=0, atol=1e-12)
+    x = (rng.standard_normal((10000, 300)) * np.linspace(0.1, 3, 300) - np.linspace(0, 60, 300)).astype(np.float32)
+    x[:, 5] = rng.lognormal(0.0, 1.0, 10000)
+    expected = np.percentile(x.astype(np.float64), LEVELS, axis=0, method="linear")
+    assert np.allclose(column_percentiles(x), expected, rtol=0, atol=1e-12)
+
+
+def test_row_percentiles_are_the_column_percentiles_of_the_transpose():
+    rng = np.random.default_rng(5)
+    rows = rng.standard_normal((30, 4000)).astype(np.float32)
+    assert np.array_equal(row_percentiles(rows), column_percentiles(rows.T.copy()))
+
+
+def test_working_memory_stays_below_one_copy_of_the_store():
+    # no copy of a whole (10000, 501) float32 store (20 MB), let alone an int64 one: the columns are copied
+    # a slab at a time, and coded a block of the slab at a time
+    import tracemalloc
+
+    rng = np.random.default_rng(6)
+    x = (rng.standard_normal((10000, 501)) * np.linspace(0.1, 3, 501)).astype(np.float32)
+    tracemalloc.start()
+    column_percentiles(x)
+    peak = tracemalloc.get_traced_memory()[1]
+    tracemalloc.stop()
+    assert peak < x.nbytes
+
+
+def test_bad_ranks_are_refused():
+    x = np.zeros((10, 3), dtype=np.float32)
+    with pytest.raises(ValueError):
+        column_order_statistics(x, [10])
+    with pytest.raises(ValueError):
+        column_order_statistics(x[0], [0])
 
 
 def test_ranks_read_by_the_named_levels():
