@@ -46,7 +46,7 @@ from service.deadline import check as check_deadline
 from service.tolerance import figures as fig
 from service.tolerance.grids import Grids
 from service.tolerance.sampling import Samples
-from service.tolerance.statistics import column_percentiles
+from service.tolerance.statistics import row_percentiles
 
 
 #: Largest default chunk (trials processed at once; speed only, never the numbers).
@@ -225,6 +225,7 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
     both = single and figs is not None                          # the caller's grid and the extra points together
     pool = _Pool(chunk, fb + nx if both else fb)
     nominal_phase32 = np.angle(nominal).astype(np.float32)
+    chunk32 = np.empty((len(keys), chunk * fb), dtype=np.float32)   # a chunk's float32 rows, before the stores
     for b in range(nblocks):
         c0, c1 = b * fb, min(nf, (b + 1) * fb)
         w = c1 - c0
@@ -234,22 +235,24 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
                           memory_limit_bytes=engine_limit)
         engine = full.on_grid(f[c0:c1]) if single else full
         extra = full.on_grid(grids.extra_hz) if both else None
-        stores = [np.empty((trials, w), dtype=np.float32) for _ in keys]      # trial-major: rows written in place
+        stores = [np.empty((w, trials), dtype=np.float32) for _ in keys]      # frequency-major: rows selected
         for t0 in range(0, trials, chunk):
             check_deadline("tolerance.montecarlo")
             t1 = min(trials, t0 + chunk)
             sl, k = slice(t0, t1), t1 - t0
             power = pool.take(k, w + nx if both else w)             # (k, F + X): figures; (k, F): the store
-            r = engine.polar(sl, phase=phase, delay=phase,
-                             out=PolarResponse(power[:, :w], *(st[sl] for st in stores[1:])))
+            rows = [chunk32[i, : k * w].reshape(k, w) for i in range(len(keys))]
+            r = engine.polar(sl, phase=phase, delay=phase, out=PolarResponse(power[:, :w], *rows[1:]))
             if both:
                 extra.polar(sl, out=PolarResponse(power[:, w:]))
                 figs.add(sl, power)
-            _log_power(r.power, stores[0][sl])
+            _log_power(r.power, rows[0])
             if phase:
-                _relative_phase(stores[1][sl], nominal_phase32[c0:c1])
+                _relative_phase(rows[1], nominal_phase32[c0:c1])
+            for st, rw in zip(stores, rows):
+                st[:, sl] = rw.T                                    # transposed while the chunk is in cache
             del r
-        picked = [column_percentiles(st) for st in stores]
+        picked = [row_percentiles(st) for st in stores]
         del stores, engine, full, extra
         out["mag"][:, c0:c1] = 10.0 * picked[0]
         if phase:
