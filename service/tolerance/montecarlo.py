@@ -60,6 +60,9 @@ WORK_BYTES_PER_POINT = 64
 STORE_BYTES_PER_POINT = 12
 #: Bound of the stores; above it the caller's grid is split into frequency blocks.
 STORE_BUDGET_BYTES = 160 * 2**20
+#: Trials per tile of the copy from a chunk's trial-major rows into the frequency-major stores (measured:
+#: 1.4 ms for a whole (1024, 501) float32 chunk at once, 0.3 ms in tiles of 64 rows that stay in cache).
+TRANSPOSE_TRIALS = 64
 #: ``log10`` of the smallest normal float32: below it the store's logarithm is taken in float64 instead.
 LOG10_TINY32 = float(np.log10(np.finfo(np.float32).tiny))
 
@@ -145,6 +148,18 @@ def _log_power(p: np.ndarray, out: np.ndarray) -> None:
     if not (out.min() >= LOG10_TINY32 and out.max() < np.inf):          # NaN fails too
         bad = ~((out >= LOG10_TINY32) & (out < np.inf))
         out[bad] = np.log10(np.maximum(p[bad], fig.POWER_FLOOR))
+
+
+def _store_columns(store: np.ndarray, t0: int, rows: np.ndarray) -> None:
+    """Copy a chunk's rows ``(k, F)`` into ``store[:, t0:t0 + k]`` of a frequency-major store ``(F, T)``.
+
+    The same values as ``store[:, t0:t0 + k] = rows.T``, in tiles of
+    :data:`TRANSPOSE_TRIALS` rows: a tile's source and destination lines stay
+    in cache while it is transposed.
+    """
+    for j in range(0, rows.shape[0], TRANSPOSE_TRIALS):
+        tile = rows[j: j + TRANSPOSE_TRIALS]
+        store[:, t0 + j: t0 + j + tile.shape[0]] = tile.T
 
 
 def _relative_phase(phase: np.ndarray, nominal: np.ndarray) -> None:
@@ -250,7 +265,7 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
             if phase:
                 _relative_phase(rows[1], nominal_phase32[c0:c1])
             for st, rw in zip(stores, rows):
-                st[:, sl] = rw.T                                    # transposed while the chunk is in cache
+                _store_columns(st, t0, rw)                          # transposed while the chunk is in cache
             del r
         picked = [row_percentiles(st) for st in stores]
         del stores, engine, full, extra
