@@ -57,8 +57,8 @@ raw_env = ["OPENBLAS_NUM_THREADS=1", "OMP_NUM_THREADS=1", "MKL_NUM_THREADS=1"]
 # without the cap a worker's resident memory grew by one heavy request's arrays per thread used.
 MALLOC_ARENAS = _settings.compute_slots
 limit_arenas(MALLOC_ARENAS)
-# and freed blocks up to 32 MiB kept for reuse (service/malloc.py): the Monte Carlo's chunk arrays were mapped and
-# unmapped chunk after chunk, a page fault per page.
+# and freed blocks up to 32 MiB kept for reuse, with up to 256 MiB of the heap's free top (service/malloc.py): the
+# Monte Carlo's chunk arrays were mapped and unmapped chunk after chunk, and its stores faulted in on every request.
 keep_freed_memory()
 
 

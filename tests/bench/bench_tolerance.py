@@ -13,7 +13,8 @@ Run:
   python tests/bench/bench_tolerance.py --compare BEFORE [--after HEAD] [--rounds 8] [--repeat 5]
   python tests/bench/bench_tolerance.py --quick      # a short run of every mode's code path (1,000 trials)
 
-In-process (default): wall and CPU time (``time.process_time``) of the whole
+In-process (default): with the allocator thresholds of the service's workers
+(``service.malloc.keep_freed_memory``), wall and CPU time (``time.process_time``) of the whole
 ``run_tolerance`` (percentiles, metrics, sensitivity, worst case, yield) over
 repeats after a warm-up (median, IQR, min, max), the peak added RSS of a fresh
 process with one BLAS thread (after a warm-up: the peak resident set during the
@@ -79,6 +80,19 @@ ROOT = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__)
 # a --compare child imports the service from the tree it is given
 TREE = sys.argv[sys.argv.index("--tree") + 1] if "--tree" in sys.argv else ROOT
 sys.path.insert(0, TREE)
+
+
+def serving_allocator() -> None:
+    """The allocator thresholds of the service's workers (``service/gunicorn_conf.py``), where the tree has them.
+
+    In-process runs then reuse freed memory as a worker does; a tree older
+    than ``service/malloc.py`` keeps glibc's defaults.
+    """
+    try:
+        from service.malloc import keep_freed_memory
+    except ImportError:
+        return
+    keep_freed_memory()
 
 F_START, F_STOP, F_POINTS = 10.0, 1e5, 501
 F = np.logspace(1, 5, F_POINTS)
@@ -459,6 +473,8 @@ def main() -> None:
     ap.add_argument("--compare-child", action="store_true", help=argparse.SUPPRESS)
     ap.add_argument("--tree", help=argparse.SUPPRESS)
     a = ap.parse_args()
+    if not a.http:
+        serving_allocator()
     if a.child:
         child(a.child, a.mask)
         return
