@@ -47,7 +47,7 @@ import math
 
 import numpy as np
 
-TILE_ROWS = 16
+TILE_ROWS = 64
 """Rows (trials) of every coefficient-times-powers product; partial tiles are padded."""
 
 PRODUCT_WORK = 4 * 65536
