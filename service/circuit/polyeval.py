@@ -48,7 +48,9 @@ import math
 import numpy as np
 
 TILE_ROWS = 64
-"""Rows (trials) of every coefficient-times-powers product; partial tiles are padded."""
+"""Rows (trials) of every coefficient-times-powers product; partial tiles are padded.  Any fixed value keeps a
+trial's bits independent of its batch; 64 measured 1.4x faster than 16 for the parts of a (1024, 560) chunk
+(fewer, larger products; the same bits here)."""
 
 PRODUCT_WORK = 4 * 65536
 """Bound on rows x columns x inner size of one product: OpenBLAS runs smaller products on one thread."""
