@@ -3,20 +3,23 @@
 The circuit with every trial's values is prepared once
 (:func:`service.circuit.prepare_ac`: structure and per-trial polynomial
 coefficients) for each set of evaluated frequencies, and evaluated a chunk of
-trials at a time (:meth:`service.circuit.PreparedAc.parts`: ``|H|^2``, the
-parts of ``H`` and the group delay in closed form).  The engine computes each
+trials at a time (:meth:`service.circuit.PreparedAc.polar`: ``|H|^2``, the
+principal phase and the group delay in closed form).  The engine computes each
 trial element by element, so trial ``i`` gives the same bits whatever chunk
 it is evaluated in; results are reduced per chunk and never depend on the
 chunking (``chunk_trials``, or the default of :func:`tile_trials`, bounded by
 the memory limit).
 
-Per trial and caller frequency three float32 values are kept, in trial-major
-stores (T, F_b) filled a chunk of rows at a time: ``log10 |H|^2``, the phase
-relative to the nominal response (rad) and the group delay (s).  Each
-reported figure is an increasing function of its stored value -- ``10 x`` dB;
-``(x + nominal unwrapped phase) 180/pi`` degrees; the delay itself -- so the
-percentiles select the order statistics of the stores
-(:func:`service.tolerance.statistics.column_percentiles`, by selection, not
+Per trial and caller frequency three float32 values are kept: ``log10 |H|^2``,
+the phase relative to the nominal response (rad) and the group delay (s).
+A chunk's values are computed as trial-major rows (k, F_b) and copied, in
+cache-sized tiles, into frequency-major stores (F_b, T): one row per
+frequency, read in place by the selection (trial-major stores, read a column
+slab at a time, measured 10 % slower for a whole run).  Each reported figure
+is an increasing function of its stored value -- ``10 x`` dB; ``(x + nominal
+unwrapped phase) 180/pi`` degrees; the delay itself -- so the percentiles
+select the order statistics of the stores
+(:func:`service.tolerance.statistics.row_percentiles`, by selection, not
 sorting) and map only those: no per-point logarithm in float64, no scaling
 pass.  When the stores of all frequencies would exceed the store budget the
 caller's grid is split into frequency blocks, each swept over all trials
