@@ -12,10 +12,11 @@ the memory limit).
 
 Per trial and caller frequency three float32 values are kept: ``log10 |H|^2``,
 the phase relative to the nominal response (rad) and the group delay (s).
-A chunk's values are computed as trial-major rows (k, F_b) and copied, in
-cache-sized tiles, into frequency-major stores (F_b, T): one row per
-frequency, read in place by the selection (trial-major stores, read a column
-slab at a time, measured 10 % slower for a whole run).  Each reported figure
+The stores are frequency-major (F_b, T): one row per frequency, read in
+place by the selection (trial-major stores, read a column slab at a time,
+measured 10 % slower for a whole run).  The engine and the two in-place steps
+write a chunk's values straight into the stores' columns, seen as a (k, F_b)
+view: no copy of the chunk (a transposing copy cost 15-20 ms a run).  Each reported figure
 is an increasing function of its stored value -- ``10 x`` dB; ``(x + nominal
 unwrapped phase) 180/pi`` degrees; the delay itself -- so the percentiles
 select the order statistics of the stores
@@ -63,9 +64,6 @@ WORK_BYTES_PER_POINT = 64
 STORE_BYTES_PER_POINT = 12
 #: Bound of the stores; above it the caller's grid is split into frequency blocks.
 STORE_BUDGET_BYTES = 160 * 2**20
-#: Trials per tile of the copy from a chunk's trial-major rows into the frequency-major stores (measured:
-#: 1.4 ms for a whole (1024, 501) float32 chunk at once, 0.3 ms in tiles of 64 rows that stay in cache).
-TRANSPOSE_TRIALS = 64
 #: ``log10`` of the smallest normal float32: below it the store's logarithm is taken in float64 instead.
 LOG10_TINY32 = float(np.log10(np.finfo(np.float32).tiny))
 
@@ -153,18 +151,6 @@ def _log_power(p: np.ndarray, out: np.ndarray) -> None:
         out[bad] = np.log10(np.maximum(p[bad], fig.POWER_FLOOR))
 
 
-def _store_columns(store: np.ndarray, t0: int, rows: np.ndarray) -> None:
-    """Copy a chunk's rows ``(k, F)`` into ``store[:, t0:t0 + k]`` of a frequency-major store ``(F, T)``.
-
-    The same values as ``store[:, t0:t0 + k] = rows.T``, in tiles of
-    :data:`TRANSPOSE_TRIALS` rows: a tile's source and destination lines stay
-    in cache while it is transposed.
-    """
-    for j in range(0, rows.shape[0], TRANSPOSE_TRIALS):
-        tile = rows[j: j + TRANSPOSE_TRIALS]
-        store[:, t0 + j: t0 + j + tile.shape[0]] = tile.T
-
-
 def _relative_phase(phase: np.ndarray, nominal: np.ndarray) -> None:
     """Turn the principal phases ``phase`` (Tc, F), float32 rad, in place into their principal difference from
     the nominal's principal phases ``nominal`` (F,) float32: ``arg(H conj H_nominal)``, in [-pi, pi]."""
@@ -243,7 +229,6 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
     both = single and figs is not None                          # the caller's grid and the extra points together
     pool = _Pool(chunk, fb + nx if both else fb)
     nominal_phase32 = np.angle(nominal).astype(np.float32)
-    chunk32 = np.empty((len(keys), chunk * fb), dtype=np.float32)   # a chunk's float32 rows, before the stores
     for b in range(nblocks):
         c0, c1 = b * fb, min(nf, (b + 1) * fb)
         w = c1 - c0
@@ -259,7 +244,7 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
             t1 = min(trials, t0 + chunk)
             sl, k = slice(t0, t1), t1 - t0
             power = pool.take(k, w + nx if both else w)             # (k, F + X): figures; (k, F): the store
-            rows = [chunk32[i, : k * w].reshape(k, w) for i in range(len(keys))]
+            rows = [st[:, sl].T for st in stores]                   # (k, F) views of the stores' columns
             r = engine.polar(sl, phase=phase, delay=phase, out=PolarResponse(power[:, :w], *rows[1:]))
             if both:
                 extra.polar(sl, out=PolarResponse(power[:, w:]))
@@ -267,9 +252,7 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
             _log_power(r.power, rows[0])
             if phase:
                 _relative_phase(rows[1], nominal_phase32[c0:c1])
-            for st, rw in zip(stores, rows):
-                _store_columns(st, t0, rw)                          # transposed while the chunk is in cache
-            del r
+            del r, rows
         picked = [row_percentiles(st) for st in stores]
         del stores, engine, full, extra
         out["mag"][:, c0:c1] = 10.0 * picked[0]

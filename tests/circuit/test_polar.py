@@ -73,6 +73,22 @@ def test_float32_outputs_are_computed_in_their_dtype_and_rows_do_not_depend_on_t
         assert np.array_equal(part.delay_s, ref.delay_s[a:b])
 
 
+def test_outputs_may_be_transposed_views_of_frequency_major_stores():
+    # the Monte Carlo hands over columns of (F, T) float32 stores, seen as (k, F): the same bits as contiguous
+    circuit = butterworth8_sallen_key(model=MODEL, trials=40, seed=9)
+    prepared = prepare_ac(circuit, GRID)
+    contiguous = PolarResponse(np.empty((25, GRID.size)), np.empty((25, GRID.size), np.float32),
+                               np.empty((25, GRID.size), np.float32))
+    prepared.polar(slice(10, 35), phase=True, delay=True, out=contiguous)
+    phase_store = np.full((GRID.size, 40), np.nan, np.float32)
+    delay_store = np.full((GRID.size, 40), np.nan, np.float32)
+    views = PolarResponse(np.empty((25, GRID.size)), phase_store[:, 10:35].T, delay_store[:, 10:35].T)
+    prepared.polar(slice(10, 35), phase=True, delay=True, out=views)
+    assert np.array_equal(phase_store[:, 10:35].T, contiguous.phase_rad)
+    assert np.array_equal(delay_store[:, 10:35].T, contiguous.delay_s)
+    assert np.isnan(phase_store[:, :10]).all() and np.isnan(delay_store[:, 35:]).all()   # nothing else written
+
+
 def test_output_arrays_of_the_wrong_shape_are_refused():
     prepared = prepare_ac(sallen_key_lowpass(trials=3), GRID)
     with pytest.raises(Exception, match="shape"):

@@ -10,7 +10,7 @@ import pytest
 
 from tests.tolerance.conftest import requirement_criteria, run_tolerance
 from service.tolerance import wilson_interval
-from service.tolerance.montecarlo import TRANSPOSE_TRIALS, _store_columns, tile_trials
+from service.tolerance.montecarlo import tile_trials
 
 from .conftest import GRID, with_tolerances
 
@@ -31,19 +31,6 @@ def test_chunk_size_does_not_change_a_bit(butter8_sk, lowpass_mask):
         for a, b in zip((ref.magnitude_db, ref.phase_deg, ref.group_delay_s),
                         (other.magnitude_db, other.phase_deg, other.group_delay_s)):
             assert np.array_equal(a, b)
-
-
-def test_tiled_store_copy_is_the_transpose():
-    # a chunk of rows (k, F) lands in columns t0 .. t0 + k of the frequency-major store, as rows.T would put it,
-    # whether k is a whole number of tiles or not
-    rng = np.random.default_rng(3)
-    store = np.zeros((37, 1000), dtype=np.float32)
-    for t0, k in ((0, 2 * TRANSPOSE_TRIALS), (2 * TRANSPOSE_TRIALS, TRANSPOSE_TRIALS + 5), (500, 1), (501, 499)):
-        rows = rng.standard_normal((k, 37)).astype(np.float32)
-        before = store.copy()
-        _store_columns(store, t0, rows)
-        before[:, t0:t0 + k] = rows.T
-        assert np.array_equal(store, before)
 
 
 def test_frequency_blocks_chunking_does_not_change_a_bit(butter8_sk, lowpass_mask):
