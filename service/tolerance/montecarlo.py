@@ -16,10 +16,10 @@ The stores are frequency-major (F_b, T): one row per frequency, read in
 place by the selection (trial-major stores, read a column slab at a time,
 measured 10 % slower for a whole run).  The engine and the two in-place steps
 write a chunk's values straight into the stores' columns, seen as a (k, F_b)
-view: no copy of the chunk (a transposing copy cost 15-20 ms a run).  Each reported figure
-is an increasing function of its stored value -- ``10 x`` dB; ``(x + nominal
-unwrapped phase) 180/pi`` degrees; the delay itself -- so the percentiles
-select the order statistics of the stores
+view: no copy of the chunk (a transposing copy cost 15-20 ms a run).  Each
+reported figure is an increasing function of its stored value -- ``10 x``
+dB; ``(x + nominal unwrapped phase) 180/pi`` degrees; the delay itself -- so
+the percentiles select the order statistics of the stores
 (:func:`service.tolerance.statistics.row_percentiles`, by selection, not
 sorting) and map only those: no per-point logarithm in float64, no scaling
 pass.  When the stores of all frequencies would exceed the store budget the
