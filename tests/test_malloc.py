@@ -18,7 +18,7 @@ def test_glibc_takes_the_arena_cap():
     # source: GNU C Library manual, "Malloc Tunable Parameters": mallopt(M_ARENA_MAX, n) returns 1 on success
     if platform.libc_ver()[0] != "glibc":
         pytest.skip("not glibc: the cap is not applied")
-    out = subprocess.run([sys.executable, "-c", "from service.malloc import TRIM_THRESHOLD_BYTES, limit_arenas; print(limit_arenas(2))"],
+    out = subprocess.run([sys.executable, "-c", "from service.malloc import limit_arenas; print(limit_arenas(2))"],
                          capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "True"
 
@@ -67,8 +67,9 @@ def test_kept_memory_spares_the_page_faults_of_chunk_sized_arrays():
         pytest.skip("not glibc: the thresholds are not applied")
     runs = {}
     for mode in ("default", "keep", "conf"):
-        out = subprocess.run([sys.executable, "-c", _FAULTS, mode, "chunks", str(TRIM_THRESHOLD_BYTES)], capture_output=True, text=True,
-                             check=True, env={"PATH": "/usr/bin:/bin", "PYTHONPATH": ROOT})
+        out = subprocess.run([sys.executable, "-c", _FAULTS, mode, "chunks", str(TRIM_THRESHOLD_BYTES)],
+                             capture_output=True, text=True, check=True,
+                             env={"PATH": "/usr/bin:/bin", "PYTHONPATH": ROOT})
         took, faults = out.stdout.split()[-2:]
         runs[mode] = (took, int(faults))
     assert runs["keep"][0] == "True"
