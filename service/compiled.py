@@ -73,6 +73,7 @@ def warms(fn: Callable[[], None]) -> Callable[[], None]:
 def warm() -> float:
     """Compile or load every kernel for the types the service uses; returns the seconds it took."""
     import service.circuit.polarkernels  # noqa: F401  (registers its warm-up)
+    import service.tolerance.figures  # noqa: F401
     import service.tolerance.selection  # noqa: F401
     t0 = time.perf_counter()
     for fn in _WARMERS:

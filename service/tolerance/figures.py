@@ -32,9 +32,12 @@ design's); these figures describe the spread.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
 from service.approximation.types import ResponseType
+from service.compiled import kernel, warms
 from service.tolerance.grids import HALF_POWER_DB, Grids
 
 #: Smallest |H| before the logarithm (keeps an exact transmission zero finite, -3000 dB).
@@ -120,62 +123,127 @@ def _interp(fa, fb, ga, gb, level):
     return np.exp(la + t * (lb - la))
 
 
+@kernel
+def _first_below(p, cols, threshold, start, out):
+    """For each row ``i`` of ``p`` (Tc, N) float64: the first position ``k >= start[i]`` of ``cols`` (M,) with
+    ``p[i, cols[k]] < threshold[i]``, or -1; into ``out`` (Tc,) int64.  The scan stops at the first one."""
+    for i in range(p.shape[0]):
+        out[i] = -1
+        for k in range(max(start[i], 0), cols.size):
+            if p[i, cols[k]] < threshold[i]:
+                out[i] = k
+                break
+
+
+@kernel
+def _last_below(p, cols, threshold, stop, out):
+    """For each row ``i``: the last position ``k <= stop[i]`` of ``cols`` with ``p[i, cols[k]] < threshold[i]``,
+    or -1; into ``out`` (Tc,) int64 (the scan runs down from ``stop[i]``)."""
+    for i in range(p.shape[0]):
+        out[i] = -1
+        for k in range(min(stop[i], cols.size - 1), -1, -1):
+            if p[i, cols[k]] < threshold[i]:
+                out[i] = k
+                break
+
+
+@warms
+def _warm() -> None:
+    p = np.ones((2, 3))
+    cols = np.arange(3, dtype=np.intp)
+    thr = np.full(2, 0.5)
+    k = np.zeros(2, dtype=np.int64)
+    _first_below(p, cols, thr, k, np.empty(2, dtype=np.int64))
+    _last_below(p, cols, thr, k + 2, np.empty(2, dtype=np.int64))
+
+
+@dataclass
+class HalfPowerBrackets:
+    """Per trial, the adjacent positive metric points whose gains bracket the half-power level.
+
+    Every array has the shape of the 3 dB result: (Tc,) for lowpass and highpass, (Tc, 2) for band
+    responses (lower and upper edge).  ``lower`` and ``upper`` are positions among the positive metric
+    points (clipped into range), ``p_lower`` and ``p_upper`` their powers ``|H|^2``, ``found`` whether
+    the trial crosses the level there (else its 3 dB frequency is NaN).
+    """
+
+    lower: np.ndarray
+    upper: np.ndarray
+    p_lower: np.ndarray
+    p_upper: np.ndarray
+    found: np.ndarray
+
+
+def half_power_brackets(p: np.ndarray, ref_db: np.ndarray, grids: Grids,
+                        layout: np.ndarray | None = None) -> HalfPowerBrackets:
+    """The crossing brackets of :func:`f3db` (same arguments): the metric points are scanned in order of
+    frequency from each trial's row of ``p`` (``layout`` gives the columns), with no copy of the rows."""
+    pos = positive_columns(grids)
+    metric_cols = np.arange(grids.metric_hz.size, dtype=np.intp) if layout is None else np.asarray(layout, np.intp)
+    cols = np.ascontiguousarray(metric_cols[pos])               # column of p of each positive metric point
+    m = cols.size
+    p = np.ascontiguousarray(p, dtype=np.float64)
+    tc = p.shape[0]
+    rows = np.arange(tc)
+    threshold = np.ascontiguousarray(10.0 ** ((ref_db - HALF_POWER_DB) / 10.0), dtype=np.float64)
+    zero, top = np.zeros(tc, dtype=np.int64), np.full(tc, m - 1, dtype=np.int64)
+
+    def first(start):
+        out = np.empty(tc, dtype=np.int64)
+        _first_below(p, cols, threshold, start, out)
+        return out
+
+    def last(stop):
+        out = np.empty(tc, dtype=np.int64)
+        _last_below(p, cols, threshold, stop, out)
+        return out
+
+    def bracket(a, b, ok):
+        a = np.clip(a, 0, m - 1)
+        b = np.clip(b, 0, m - 1)
+        return a, b, p[rows, cols[a]], p[rows, cols[b]], ok
+
+    rt = grids.response
+    if rt is ResponseType.LOWPASS:
+        k = first(zero)                                       # -1 when no point is below the level
+        return HalfPowerBrackets(*bracket(k - 1, k, k > 0))
+    if rt is ResponseType.HIGHPASS:
+        k = last(top)
+        return HalfPowerBrackets(*bracket(k, k + 1, (k >= 0) & (k < m - 1)))
+    if rt is ResponseType.BANDPASS:
+        kp = np.argmax(p[:, cols], axis=1)                    # the peak; the edges below it on either side
+        lo, hi = last(kp - 1), first(kp + 1)
+        parts = (bracket(lo, lo + 1, lo >= 0), bracket(hi - 1, hi, hi > 0))
+    else:
+        k0, k1 = first(zero), last(top)
+        ok = (k0 > 0) & (k1 < m - 1)                          # k0 > 0 implies a point below, so k1 >= 0
+        parts = (bracket(k0 - 1, k0, ok), bracket(k1, k1 + 1, ok))
+    return HalfPowerBrackets(*(np.stack([x, y], axis=1) for x, y in zip(*parts)))
+
+
+def interpolated_f3db(brackets: HalfPowerBrackets, ref_db: np.ndarray, grids: Grids) -> np.ndarray:
+    """3 dB frequencies (Hz) from the brackets: the half-power level interpolated linearly in dB between the
+    bracketing points in log frequency; NaN where no crossing was found.  Element by element: the same bits
+    whether the trials come in one array or chunk by chunk."""
+    f = grids.metric_hz[positive_columns(grids)]
+    level = ref_db - HALF_POWER_DB
+    if brackets.lower.ndim == 2:
+        level = level[:, None]
+    out = _interp(f[brackets.lower], f[brackets.upper], db(brackets.p_lower), db(brackets.p_upper),
+                  np.broadcast_to(level, brackets.lower.shape))
+    return np.where(brackets.found, out, np.nan)
+
+
 def f3db(p: np.ndarray, ref_db: np.ndarray, grids: Grids, layout: np.ndarray | None = None) -> np.ndarray:
     """3 dB frequencies (Hz) per trial: (Tc,) for lowpass/highpass, (Tc, 2) for band responses; NaN when absent.
 
     ``p`` (Tc, M) are the powers of the metric points (``layout`` as in :func:`reference_power`), ``ref_db``
     (Tc,) the reference gains; a point is below the half-power level when
-    ``p < 10^((ref_db - 10 log10 2)/10)``, and the crossing is interpolated in dB.
+    ``p < 10^((ref_db - 10 log10 2)/10)``: lowpass, the first such point; highpass, the last; bandpass,
+    the nearest on either side of the peak; bandstop, the first and the last.  The crossing is
+    interpolated in dB (:func:`interpolated_f3db`).
     """
-    pos = positive_columns(grids)
-    f = grids.metric_hz[pos]
-    level = (ref_db - HALF_POWER_DB)[:, None]
-    threshold = 10.0 ** (level / 10.0)
-    if layout is None:
-        pp = p[:, pos]
-        below = pp < threshold
-        cols = None
-    else:
-        cols = layout[pos]                                    # column of p of each positive metric point
-        below = (p < threshold)[:, cols]                      # compared in place, reordered as bytes
-    tc, m = below.shape
-    rows = np.arange(tc)
-    idx = np.arange(m)[None, :]
-
-    def value(k):
-        """Power of each row's positive metric point ``k`` (Tc,)."""
-        return pp[rows, k] if cols is None else p[rows, cols[k]]
-
-    def first(sel):
-        """Column of each row's first True, -1 when none (one pass: argmax, then the found entry read back)."""
-        k = np.argmax(sel, axis=1)
-        return np.where(sel[rows, k], k, -1)
-
-    def last(sel):
-        k = m - 1 - np.argmax(sel[:, ::-1], axis=1)
-        return np.where(sel[rows, k], k, -1)
-
-    def cross(a, b, ok):
-        a = np.clip(a, 0, m - 1)
-        b = np.clip(b, 0, m - 1)
-        out = _interp(f[a], f[b], db(value(a)), db(value(b)), level[:, 0])
-        return np.where(ok, out, np.nan)
-
-    rt = grids.response
-    if rt is ResponseType.LOWPASS:
-        k = first(below)                                      # -1 when no point is below the level
-        return cross(k - 1, k, k > 0)
-    if rt is ResponseType.HIGHPASS:
-        k = last(below)
-        return cross(k, k + 1, (k >= 0) & (k < m - 1))
-    if rt is ResponseType.BANDPASS:
-        kp = np.argmax(p[:, pos] if cols is None else p[:, cols], axis=1)[:, None]
-        lo = last(below & (idx < kp))
-        hi = first(below & (idx > kp))
-        return np.stack([cross(lo, lo + 1, lo >= 0), cross(hi - 1, hi, hi > 0)], axis=1)
-    k0, k1 = first(below), last(below)
-    ok = (k0 > 0) & (k1 < m - 1)                              # k0 > 0 implies a point below, so k1 >= 0
-    return np.stack([cross(k0 - 1, k0, ok), cross(k1, k1 + 1, ok)], axis=1)
+    return interpolated_f3db(half_power_brackets(p, ref_db, grids, layout), ref_db, grids)
 
 
 def ripple(p: np.ndarray, grids: Grids, layout: np.ndarray | None = None) -> np.ndarray | None:
@@ -187,5 +255,6 @@ def ripple(p: np.ndarray, grids: Grids, layout: np.ndarray | None = None) -> np.
     return db(pp.max(axis=1)) - db(pp.min(axis=1))
 
 
-__all__ = ["power", "db", "gain_db", "reference_power", "reference_gain", "f3db", "ripple", "columns",
+__all__ = ["power", "db", "gain_db", "reference_power", "reference_gain", "f3db", "half_power_brackets",
+           "interpolated_f3db", "HalfPowerBrackets", "ripple", "columns",
            "MAGNITUDE_FLOOR", "POWER_FLOOR"]
