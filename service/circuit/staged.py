@@ -12,6 +12,13 @@ ch. 9, "Symbolic analysis by polynomial interpolation" and Singhal and Vlach,
 "Interpolation using the fast Fourier transform", Proc. IEEE 60(12), 1972).
 The variable is scaled, ``sigma = s / w_ref``, for conditioning.
 
+Blocks of up to three unknowns (every stage of a cascade of op-amp
+sections) skip the interpolation: their determinants and cofactors are
+expanded by cofactors (Leibniz's formula) in exact polynomial arithmetic on
+the entries ``g + sigma c w_ref`` themselves -- a few products of
+coefficient rows over all trials at once, with no complex values and no
+transform, exact to the rounding of each product (:class:`_SmallPencil`).
+
 Coefficients cost a few tiny determinants per trial; the response on
 ``(T, F)`` is then two real products per polynomial (its even and odd parts
 times a table of the grid's powers, in fixed-shape tiles) and one division
@@ -35,6 +42,9 @@ from .polyeval import GridEvaluator, multiply, quotient
 
 THETA = 0.3183098861837907
 """Rotation (rad) of the interpolation points off the real axis, so that a real pole never lands on one."""
+
+SMALL_BLOCK = 3
+"""Largest block (unknowns) whose determinants are expanded exactly instead of interpolated."""
 
 MAX_MERGE_DEGREE = 24
 """Largest degree of a merged cascade numerator or denominator before switching to per-stage evaluation."""
@@ -65,6 +75,13 @@ class _BlockPlan:
     den_bounds: tuple[int, int]
     num_bounds: dict[tuple[int, int], tuple[int, int]]   # (k, c) -> (lo, hi)
     points: int
+    g_pattern: np.ndarray        # (nb, nb + len(ext)) bool: where G may be non-zero (the block, then ext columns)
+    c_pattern: np.ndarray        # the same for C
+
+    @property
+    def small(self) -> bool:
+        """Whether the block's coefficients come from exact polynomial arithmetic (:class:`_SmallPencil`)."""
+        return len(self.block.cols) <= SMALL_BLOCK
 
 
 def plan_blocks(system: MnaSystem, blocks: list[Block]) -> list[_BlockPlan]:
@@ -99,7 +116,9 @@ def plan_blocks(system: MnaSystem, blocks: list[Block]) -> list[_BlockPlan]:
                 lo, hi = degree_bounds(gk, ck)
                 nb[(k, c)] = (lo, hi)
                 hi_max = max(hi_max, hi)
-        plans.append(_BlockPlan(b, ext, has_rhs, rhs_pos, inputs, (dlo, dhi), nb, hi_max + 1))
+        wide = list(cols) + ext
+        plans.append(_BlockPlan(b, ext, has_rhs, rhs_pos, inputs, (dlo, dhi), nb, hi_max + 1,
+                                gpat[np.ix_(rows, wide)], cpat[np.ix_(rows, wide)]))
     return plans
 
 
@@ -121,20 +140,141 @@ def _coefficients(vals: np.ndarray, bounds: tuple[int, int]) -> np.ndarray:
 
 
 def _det(m: np.ndarray) -> np.ndarray:
-    """Determinants of square matrices stored with the matrix axes first: (n, n, ...) -> (...).
-
-    Closed form (cofactor expansion) up to n = 3, LU factorization beyond.
-    """
-    n = m.shape[0]
-    if n == 1:
-        return m[0, 0].copy()
-    if n == 2:
-        return m[0, 0] * m[1, 1] - m[0, 1] * m[1, 0]
-    if n == 3:
-        return (m[0, 0] * (m[1, 1] * m[2, 2] - m[1, 2] * m[2, 1])
-                - m[0, 1] * (m[1, 0] * m[2, 2] - m[1, 2] * m[2, 0])
-                + m[0, 2] * (m[1, 0] * m[2, 1] - m[1, 1] * m[2, 0]))
+    """Determinants of square matrices stored with the matrix axes first: (n, n, ...) -> (...), by LU
+    factorization (``numpy.linalg.det``); blocks of up to three unknowns never come here."""
     return np.linalg.det(np.moveaxis(m, (0, 1), (-2, -1)))
+
+
+def _poly_mul(a: np.ndarray | None, b: np.ndarray | None) -> np.ndarray | None:
+    """Product of polynomials over trials, coefficient rows first: (da+1, Tc) x (db+1, Tc) -> (da+db+1, Tc);
+    None stands for the zero polynomial."""
+    if a is None or b is None:
+        return None
+    if a.shape[0] > b.shape[0]:
+        a, b = b, a
+    out = np.zeros((a.shape[0] + b.shape[0] - 1,) + b.shape[1:])
+    for i in range(a.shape[0]):
+        out[i:i + b.shape[0]] += a[i] * b
+    return out
+
+
+def _poly_add(a: np.ndarray | None, b: np.ndarray | None, sign: float = 1.0) -> np.ndarray | None:
+    """``a + sign * b`` for polynomials over trials (coefficient rows first; None is zero)."""
+    if b is None:
+        return a
+    b = b if sign > 0 else -b
+    if a is None:
+        return b
+    if a.shape[0] < b.shape[0]:
+        a, b = b, a
+    out = a.copy()
+    out[:b.shape[0]] += b
+    return out
+
+
+def linear_entry(g: np.ndarray, c: np.ndarray, g_nonzero: bool, c_nonzero: bool, w_ref: float,
+                 sign: float = 1.0) -> np.ndarray | None:
+    """``sign (g + sigma w_ref c)`` as a polynomial over trials -- (2, Tc), (1, Tc) without a C part -- or None
+    when the structure says both parts are zero (``g``, ``c`` (Tc,); the patterns from the stamp list)."""
+    if not c_nonzero:
+        return (sign * g)[None, :] if g_nonzero else None
+    return np.stack([sign * g if g_nonzero else np.zeros_like(g), (sign * w_ref) * c])
+
+
+class _SmallPencil:
+    """The pencil ``G + sigma (w_ref C)`` of a block of at most three unknowns, entry by entry as polynomials
+    over trials (coefficient rows first, (2, Tc); None where both parts are zero in every trial), with its
+    determinant and the cofactors of one column by cofactor expansion (e.g. G. Strang, *Linear Algebra and
+    Its Applications*, 4th ed., 2006, sec. 4.3-4.4)."""
+
+    def __init__(self, g: np.ndarray, c: np.ndarray, g_pattern: np.ndarray, c_pattern: np.ndarray, w_ref: float):
+        n = g.shape[0]
+        self.n = n
+        self.entry = [[linear_entry(g[i, j], c[i, j], g_pattern[i, j], c_pattern[i, j], w_ref) for j in range(n)]
+                      for i in range(n)]
+
+    def minor(self, rows: list[int], cols: list[int]) -> np.ndarray | None:
+        """Determinant of the sub-matrix ``rows`` x ``cols`` (equal lengths, 1 to 3)."""
+        e = self.entry
+        if len(rows) == 1:
+            return e[rows[0]][cols[0]]
+        if len(rows) == 2:
+            (r0, r1), (c0, c1) = rows, cols
+            return _poly_add(_poly_mul(e[r0][c0], e[r1][c1]), _poly_mul(e[r0][c1], e[r1][c0]), -1.0)
+        acc = None
+        for k, c in enumerate(cols):
+            rest = [x for x in cols if x != c]
+            acc = _poly_add(acc, _poly_mul(e[rows[0]][c], self.minor(rows[1:], rest)), -1.0 if k % 2 else 1.0)
+        return acc
+
+    def det(self) -> np.ndarray | None:
+        return self.minor(list(range(self.n)), list(range(self.n)))
+
+    def cofactor(self, i: int, kp: int) -> np.ndarray | None:
+        """Cofactor ``(-1)^(i+kp)`` times the minor without row ``i`` and column ``kp``."""
+        rows = [r for r in range(self.n) if r != i]
+        cols = [c for c in range(self.n) if c != kp]
+        m = self.minor(rows, cols) if rows else self._one()
+        return m if m is None or (i + kp) % 2 == 0 else -m
+
+    def _one(self) -> np.ndarray:
+        first = next(x for r in self.entry for x in r if x is not None)
+        return np.ones((1, first.shape[1]))
+
+
+def _exact_coefficients(poly: np.ndarray | None, bounds: tuple[int, int], trials: int) -> np.ndarray:
+    """Coefficients (Tc, hi+1), ascending, of a polynomial over trials (rows first; None is zero), zero
+    outside the structural degree range ``bounds`` (an empty range gives a zero row of length 1)."""
+    lo, hi = bounds
+    if hi < 0:
+        return np.zeros((trials, 1))
+    out = np.zeros((trials, hi + 1))
+    if poly is not None:
+        top = min(hi + 1, poly.shape[0])
+        out[:, lo:top] = poly[lo:top].T
+    return out
+
+
+def _small_block_coefficients(system: MnaSystem, plan: _BlockPlan, w_ref: float, sl: slice):
+    """:func:`block_coefficients` of a block of at most three unknowns by exact polynomial arithmetic."""
+    b = plan.block
+    g_bb, c_bb = system.stamp(sl, rows=b.rows, cols=b.cols, trials_last=True)   # (nb, nb, Tc)
+    tc = g_bb.shape[2]
+    nb = len(b.cols)
+    pencil = _SmallPencil(g_bb, c_bb, plan.g_pattern[:, :nb], plan.c_pattern[:, :nb], w_ref)
+    den = _exact_coefficients(pencil.det(), plan.den_bounds, tc)
+    scale = _check_scale(system, b, den, sl)
+    den /= scale[:, None]
+    couplings = []
+    if plan.ext:
+        g_bw, c_bw = system.stamp(sl, rows=b.rows, cols=plan.ext, trials_last=True)
+        couplings = [[linear_entry(g_bw[i, j], c_bw[i, j], plan.g_pattern[i, nb + j], plan.c_pattern[i, nb + j],
+                                   w_ref, -1.0) for i in range(nb)] for j in range(len(plan.ext))]
+    nums = {}
+    for k in b.needed:
+        kp = b.cols.index(k)
+        for ci, c in enumerate(plan.inputs):
+            if c == RHS:                                     # the unit column of the source's row
+                vals = pencil.cofactor(plan.rhs_pos, kp)
+            else:
+                vals = None
+                for i, w in enumerate(couplings[ci]):
+                    if w is not None:
+                        vals = _poly_add(vals, _poly_mul(w, pencil.cofactor(i, kp)))
+            coef = _exact_coefficients(vals, plan.num_bounds[(k, c)], tc)
+            coef /= scale[:, None]
+            nums[(k, c)] = coef
+    return den, nums
+
+
+def _check_scale(system: MnaSystem, b: Block, den: np.ndarray, sl: slice) -> np.ndarray:
+    """Each trial's largest denominator coefficient magnitude (Tc,); a zero determinant is an error."""
+    scale = np.max(np.abs(den), axis=1)
+    if not np.all(scale > 0):
+        bad = int(np.flatnonzero(~(scale > 0))[0])
+        raise CircuitError(f"the circuit is singular in trial {bad + (sl.start or 0)}: a stage determinant "
+                           f"is zero (unknowns {', '.join(system.unknowns[c] for c in b.cols)})")
+    return scale
 
 
 def block_coefficients(system: MnaSystem, plan: _BlockPlan, w_ref: float, sl: slice):
@@ -151,6 +291,8 @@ def block_coefficients(system: MnaSystem, plan: _BlockPlan, w_ref: float, sl: sl
     """
     check_deadline("circuit.staged.coefficients")
     b = plan.block
+    if plan.small:
+        return _small_block_coefficients(system, plan, w_ref, sl)
     g_bb, c_bb = system.stamp(sl, rows=b.rows, cols=b.cols, trials_last=True)   # (nb, nb, Tc)
     nb, _, tc = g_bb.shape
     p = plan.points
@@ -162,57 +304,24 @@ def block_coefficients(system: MnaSystem, plan: _BlockPlan, w_ref: float, sl: sl
         g_bw, c_bw = system.stamp(sl, rows=b.rows, cols=plan.ext, trials_last=True)
         w = -(g_bw[:, :, None, :] + sig * (w_ref * c_bw)[:, :, None, :])          # (nb, m, P, Tc)
         cols.extend(w[:, i] for i in range(len(plan.ext)))
-    if plan.has_rhs and nb > 3:                      # (up to 3 unknowns the source's column is a cofactor)
+    if plan.has_rhs:
         e = np.zeros((nb, p, tc), dtype=complex)
         e[plan.rhs_pos] = 1.0
         cols.append(e)
     den = _coefficients(den_vals, plan.den_bounds)
-    scale = np.max(np.abs(den), axis=1)
-    if not np.all(scale > 0):
-        bad = int(np.flatnonzero(~(scale > 0))[0])
-        raise CircuitError(f"the circuit is singular in trial {bad + (sl.start or 0)}: a stage determinant "
-                           f"is zero (unknowns {', '.join(system.unknowns[c] for c in b.cols)})")
+    scale = _check_scale(system, b, den, sl)
     den /= scale[:, None]
     nums = {}
     for k in b.needed:
         kp = b.cols.index(k)
-        cof = _Cofactors(m, kp) if nb <= 3 else None
         for ci, c in enumerate(plan.inputs):
-            if cof is None:
-                mk = m.copy()
-                mk[:, kp] = cols[ci]
-                vals = _det(mk)
-            elif c == RHS:                                   # the unit column of the source's row
-                vals = cof[plan.rhs_pos]
-            else:
-                vals = sum(cols[ci][i] * cof[i] for i in range(nb))
+            mk = m.copy()
+            mk[:, kp] = cols[ci]
+            vals = _det(mk)
             coef = _coefficients(vals, plan.num_bounds[(k, c)])
             coef /= scale[:, None]
             nums[(k, c)] = coef
     return den, nums
-
-
-class _Cofactors:
-    """Cofactors of column ``kp`` of square matrices stored with the matrix axes first, (n, n, ...), n <= 3.
-
-    Cramer's rule with the column replaced by ``b`` is the expansion ``sum_i b_i C_i,kp`` along that column
-    (e.g. G. Strang, *Linear Algebra and Its Applications*, 4th ed., 2006, sec. 4.4): a unit column
-    needs one cofactor and no copy of the matrices.  Each cofactor is computed when first asked for.
-    """
-
-    def __init__(self, m: np.ndarray, kp: int):
-        self.m, self.kp = m, kp
-        self.cache: dict[int, np.ndarray] = {}
-
-    def __getitem__(self, i: int) -> np.ndarray:
-        if i not in self.cache:
-            n = self.m.shape[0]
-            rows = [r for r in range(n) if r != i]
-            cols = [c for c in range(n) if c != self.kp]
-            minor = self.m[np.ix_(rows, cols)] if n > 1 else None
-            value = np.ones(self.m.shape[2:], dtype=self.m.dtype) if n == 1 else _det(minor)
-            self.cache[i] = -value if (i + self.kp) % 2 else value
-        return self.cache[i]
 
 
 def _polymul(a: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -344,5 +453,7 @@ def bytes_per_trial(reps: dict[int, object], nfreq: int) -> int:
 
 
 def coefficient_bytes_per_trial(plans: list[_BlockPlan]) -> int:
-    """Rough memory of :func:`block_coefficients` per trial, bytes (complex pencils at the interpolation points)."""
-    return max(16 * p.points * len(p.block.cols) ** 2 * (3 + len(p.num_bounds)) for p in plans)
+    """Rough memory of :func:`block_coefficients` per trial, bytes (complex pencils at the interpolation points;
+    a small block's polynomial entries and products, a few hundred bytes)."""
+    return max(8 * 2 * 4 * len(p.block.cols) ** 2 * (3 + len(p.num_bounds)) if p.small
+               else 16 * p.points * len(p.block.cols) ** 2 * (3 + len(p.num_bounds)) for p in plans)
