@@ -66,7 +66,7 @@ def _cases(dtype, rng) -> dict[str, np.ndarray]:
 def test_row_order_statistics_are_the_sorted_rows_bit_for_bit(dtype):
     # source: numpy.sort (reference library)
     rng = np.random.default_rng(7)
-    for name, x in _cases(dtype, rng).items():
+    for x in _cases(dtype, rng).values():
         n = x.shape[1]
         every = np.arange(n) if n <= 17 else rng.integers(0, n, 40)   # unsorted, repeated ranks
         for ranks in (percentile_ranks(n), every):

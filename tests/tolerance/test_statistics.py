@@ -120,7 +120,7 @@ def test_row_percentiles_are_the_column_percentiles_of_the_transpose():
 
 def test_working_memory_stays_below_one_copy_of_the_store():
     # no copy of a whole (10000, 501) float32 store (20 MB), let alone an int64 one: the columns are copied
-    # a slab at a time, and coded a block of the slab at a time
+    # a slab at a time and selected slab by slab
     import tracemalloc
 
     rng = np.random.default_rng(6)
