@@ -7,7 +7,7 @@ import pytest
 
 from service.tolerance import selection
 from service.tolerance.selection import row_order_statistics
-from service.tolerance.statistics import percentile_ranks, row_percentiles, sorted_percentiles
+from service.tolerance.statistics import column_percentiles, percentile_ranks, row_percentiles, sorted_percentiles
 
 #: numpy.percentile's "linear" method is Hyndman and Fan (1996) definition 7, the levels' definition.
 LEVELS = [0.0, 0.135, 2.5, 50.0, 97.5, 99.865, 100.0]
@@ -150,3 +150,15 @@ def test_the_warm_up_is_registered_and_runs():
 
     assert selection._warm in compiled._WARMERS
     selection._warm()
+
+
+def test_the_warm_up_compiles_every_type_the_percentiles_call_with():
+    # after the warm-up, percentiles of float32 and float64 stores in either layout (and a one-column store)
+    # compile nothing more: no request waits for the compiler
+    selection._warm()
+    known = len(selection._row_order_statistics.signatures)
+    x = np.random.default_rng(13).standard_normal((2000, 9)).astype(np.float32)
+    for store in (x, x.astype(np.float64), np.asfortranarray(x), x[:, :1]):
+        column_percentiles(store)
+        row_percentiles(np.ascontiguousarray(store.T))
+    assert len(selection._row_order_statistics.signatures) == known == 2
