@@ -8,38 +8,32 @@ The named levels are the minimum, the +-3-sigma points of a normal
 distribution (0.135 % and 99.865 %), the 95 % band (2.5 %, 97.5 %), the
 median and the maximum.
 
-Only the order statistics those levels read are needed (twelve of them),
-not a sorted copy of every column: :func:`column_order_statistics` selects
-them from a trial-major store (n trials, F columns) by a bucket
-(distribution-counting) selection (D. E. Knuth, *The Art of Computer
-Programming*, vol. 3, 2nd ed., 1998, sec. 5.2 "distribution counting" and
-5.3.3 on selection), linear in the number of trials.  The store is taken a
-slab of columns at a time (SLAB_VALUES values), copied column-major
-TRANSPOSE_ROWS trials at a time (the strided reads stay in cache; the working
-memory is one slab, never a copy of the store; a column-major store is read
-in place), and a block of the slab's rows (BLOCK_VALUES values) at a time is
-selected: each column's values are mapped to BUCKETS buckets by the monotone
-map ``floor((x - min) * s)``
-(rounding preserves order: a larger value never falls in a lower bucket), the
-buckets are counted, the bucket holding each wanted rank is read from the
-cumulative counts, and only the values of those few buckets are taken out and
-sorted, as one short row per column (the least and greatest values are the
-minimum and maximum already read).  The values returned are the columns'
-order statistics exactly -- the same bits as ``np.sort`` -- whatever the
-distribution (a lopsided column only puts more values in a bucket); a column
-with a NaN or an infinite span is sorted.
+Only the order statistics those levels read are needed (twelve of them for
+10,000 trials), not a sorted copy of every column: :func:`column_order_statistics`
+selects them by a bucket (distribution-counting) selection (D. E. Knuth, *The
+Art of Computer Programming*, vol. 3, 2nd ed., 1998, sec. 5.2 "distribution
+counting" and 5.3.3 on selection), linear in the number of trials, one column
+at a time (:mod:`service.tolerance.selection`): the least and greatest
+values, each value to one of 1024 buckets by a monotone map, the buckets
+counted, the bucket of each wanted rank read from the cumulative counts, and
+only those buckets' values taken out and sorted.  The values returned are the
+columns' order statistics exactly -- the same bits as ``np.sort`` -- whatever
+the distribution (a lopsided column only puts more values in a bucket); a
+column with a NaN or an infinite span is sorted.  A frequency-major store
+(seen as ``store.T``) is read in place; a trial-major one is copied a slab of
+SLAB_VALUES values at a time, column-major, TRANSPOSE_ROWS trials per step
+(the strided reads stay in cache; the working memory is one slab).
 
-Measured on (10000, 501) float32 stores, one thread (see
-tests/bench/bench_percentiles.py): about 24 ms from a trial-major store, of
-which the slab copies take about 5 ms (a frequency-major array, read in
-place: about 19 ms); the counting (``np.bincount``, one scalar increment per
-value) and the marking of the wanted buckets are most of the rest.  A sampling
-bracket (R. W. Floyd and R. L. Rivest, "Expected time bounds for selection",
-Comm. ACM 18(3) (1975) 165-172: the first trials as a pilot sample, then per
-column and rank a value bracket counted in one pass and the values inside it
-taken out in a second) was built and measured exact but slower, 31 ms: with
-five brackets it needs about fourteen comparisons of the whole store, and
-numpy spends about as long on each as the counting spends per value.
+Why compiled: each step is one pass over a column that stays in cache, with a
+scalar increment per value for the counting.  The same selection written as
+numpy passes over blocks of columns (codes, ``np.bincount``, a mask of the
+wanted buckets, a padded sort) walked every block several times through
+memory.  Measured on the three (501, 10000) float32 stores of a 10,000-trial
+reference run, one thread, alternating in one run of 31 repeats
+(tests/bench/bench_percentiles.py --stores): 38 ms (IQR 35-60) for all three
+compiled against 103 ms (IQR 85-154) for the numpy form, 2.5x per repeat
+(IQR 2.0-3.4); from trial-major copies, 59 against 128 ms (2.2x).  The
+whole Monte Carlo run (tests/bench/bench_tolerance.py --compare): 1.2x.
 
 The yield interval is the score interval of E. B. Wilson, "Probable
 inference, the law of succession, and statistical inference", J. Amer.
@@ -52,6 +46,8 @@ from __future__ import annotations
 import math
 
 import numpy as np
+
+from service.tolerance.selection import select_into
 
 #: Percentile levels (percent) and their public names, in order.
 PERCENTILES = (("min", 0.0), ("p0.135", 0.135), ("p2.5", 2.5), ("p50", 50.0), ("p97.5", 97.5),
@@ -89,18 +85,11 @@ def percentile_ranks(n: int) -> np.ndarray:
     return np.array(sorted(ranks), dtype=np.intp)
 
 
-#: Buckets per column of the selection.
-BUCKETS = 512
-#: Values in one column-major slab of the store (its columns selected together): bounds the working
-#: memory to the slab and the bucket codes of one block of its rows, whatever the store's size.
+#: Values in one slab of a trial-major store, copied column-major and selected together: bounds the working
+#: memory to the slab, whatever the store's size.
 SLAB_VALUES = 1_310_720
-#: Values per block of slab rows coded and counted at once (their counts and codes stay in cache).
-BLOCK_VALUES = 320_000
 #: Trials copied per step of the transposition into a slab (the strided rows read stay in cache).
 TRANSPOSE_ROWS = 512
-#: Most values taken out of one column to be sorted with the others as a row of one padded array (a short
-#: sort); a column whose marked buckets hold more (a lopsided column) is sorted alone.
-SHORT_ROW = 512
 
 
 def _transposed(x: np.ndarray, c0: int, c1: int, buffer: np.ndarray) -> np.ndarray:
@@ -110,106 +99,6 @@ def _transposed(x: np.ndarray, c0: int, c1: int, buffer: np.ndarray) -> np.ndarr
     out = buffer[:(c1 - c0) * n].reshape(c1 - c0, n)
     for a in range(0, n, TRANSPOSE_ROWS):
         out[:, a:a + TRANSPOSE_ROWS] = x[a:a + TRANSPOSE_ROWS, c0:c1].T
-    return out
-
-
-class _Work:
-    """Buffers of one block of rows, reused block after block (fresh arrays of this size would be mapped
-    and faulted in page by page each time)."""
-
-    def __init__(self, size: int, dtype: np.dtype):
-        self.y = np.empty(size, dtype=dtype)
-        self.code32 = np.empty(size, dtype=np.int32)
-        self.code = np.empty(size, dtype=np.intp)
-        self.hit = np.empty(size, dtype=bool)
-
-
-def _select_block(x: np.ndarray, lo: np.ndarray, hi: np.ndarray, ranks: np.ndarray, work: _Work) -> np.ndarray:
-    """Order statistics ``ranks`` (K,, sorted) of every row of ``x`` (R, n); shape (R, K), dtype of ``x``.
-
-    ``lo`` (R,) and ``hi`` (R,) are each row's minimum and maximum, their difference finite; ``work`` has
-    room for ``x``.
-    """
-    r, n = x.shape
-    rows = np.arange(r)[:, None]
-    width = hi - lo
-    scale = np.zeros(r, dtype=x.dtype)
-    with np.errstate(over="ignore"):
-        np.divide(x.dtype.type(BUCKETS - 0.5), width, out=scale, where=width > 0)
-    scale[~np.isfinite(scale)] = 0.0                        # a subnormal span: one bucket (still exact)
-    y = np.subtract(x, lo[:, None], out=work.y[:x.size].reshape(r, n))   # in [0, width]: rounding keeps order
-    y *= scale[:, None]                                     # in [0, BUCKETS - 0.5] to rounding: below BUCKETS
-    y += (np.arange(r, dtype=x.dtype) * BUCKETS)[:, None]  # row offsets: integers below 2**15, exact
-    code32 = work.code32[:x.size]
-    np.copyto(code32, y.ravel(), casting="unsafe")          # floor: y >= 0 (float to int32 is the fast cast)
-    code = work.code[:x.size]
-    np.copyto(code, code32)                                 # (row, bucket) of every value, monotone in x per row
-    hist = np.bincount(code, minlength=r * BUCKETS).reshape(r, BUCKETS)
-    cum = np.cumsum(hist, axis=1)
-    # the bucket holding each rank: the first whose cumulative count exceeds it (one search over all rows,
-    # each row's counts shifted above the previous row's)
-    shift = rows * (n + 1)
-    bucket = (np.searchsorted((cum + shift).ravel(), (ranks[None, :] + shift).ravel(), side="right")
-              .reshape(r, -1) - rows * BUCKETS)                                  # (R, K), ascending per row
-    below = np.where(bucket > 0, cum[rows, np.maximum(bucket - 1, 0)], 0)       # values in lower buckets
-    # the buckets of the ranks to take out, each once: not for rank 0 or n - 1 (the least and greatest
-    # values are known), whose buckets may be crowded in a lopsided column
-    inner = np.flatnonzero((ranks > 0) & (ranks < n - 1))  # a run of the sorted ranks
-    first = np.zeros(bucket.shape, dtype=bool)
-    if inner.size:
-        first[:, inner] = True
-        first[:, inner[1:]] = bucket[:, inner[1:]] != bucket[:, inner[:-1]]
-    mark = np.zeros(r * BUCKETS, dtype=bool)
-    mark[(bucket + rows * BUCKETS)[first]] = True
-    pick = np.flatnonzero(np.take(mark, code, out=work.hit[:x.size]))   # the marked buckets' values, by row
-    row = pick // n
-    values = x.ravel()[pick]
-    taken = np.bincount(row, minlength=r)
-    start = np.cumsum(taken) - taken                        # each row's run in pick
-    # a rank's place among its row's marked values: the marked buckets below its own come first
-    held = np.where(first, hist[rows, bucket], 0)
-    before = ((bucket[:, None, :] > bucket[:, :, None]) * held[:, :, None]).sum(axis=1)
-    at = before + ranks[None, :] - below                    # (R, K); used for ranks 1 .. n - 2
-    out = np.empty((r, ranks.size), dtype=x.dtype)
-    short = taken <= SHORT_ROW                              # sorted together, as rows of one padded array
-    if short.any():
-        keep = short[row]
-        marked = np.full((r, max(int(taken[short].max()), 1)), np.inf, dtype=x.dtype)
-        marked[row[keep], (np.arange(pick.size) - start[row])[keep]] = values[keep]
-        marked.sort(axis=1)
-        out[short] = marked[rows, np.clip(at, 0, marked.shape[1] - 1)][short]
-    for i in np.flatnonzero(~short):                        # crowded buckets (a lopsided column): alone
-        own = np.sort(values[start[i]:start[i] + taken[i]])
-        out[i] = own[np.clip(at[i], 0, own.size - 1)]
-    out[:, ranks == 0] = lo[:, None]
-    out[:, ranks == n - 1] = hi[:, None]
-    return out
-
-
-def _block_rows(n: int) -> int:
-    """Rows of ``n`` values selected together (row offsets ``row * BUCKETS`` stay below 2**15)."""
-    return int(np.clip(BLOCK_VALUES // n, 1, 2**15 // BUCKETS))
-
-
-def _select_rows(rows: np.ndarray, ranks: np.ndarray, work: _Work) -> np.ndarray:
-    """Order statistics ``ranks`` (sorted, distinct) of every row of ``rows`` (R, n); shape (R, K).
-
-    ``work`` has room for :func:`_block_rows` rows.  Rows with a NaN or an infinite span are sorted (NaN
-    last, as ``np.sort`` puts it)."""
-    out = np.empty((rows.shape[0], ranks.size), dtype=rows.dtype)
-    block = _block_rows(rows.shape[1])
-    for r0 in range(0, rows.shape[0], block):
-        x = rows[r0:r0 + block]
-        lo, hi = x.min(axis=1), x.max(axis=1)
-        with np.errstate(invalid="ignore", over="ignore"):
-            ok = np.isfinite(hi - lo)                       # not for a row with a NaN, or a span past the range
-        if ok.all():
-            out[r0:r0 + x.shape[0]] = _select_block(x, lo, hi, ranks, work)
-            continue
-        good, bad = np.flatnonzero(ok), np.flatnonzero(~ok)
-        if good.size:
-            out[r0 + good] = _select_block(x[good], lo[good], hi[good], ranks, work)
-        out[r0 + bad] = np.sort(x[bad], axis=1)[:, ranks]
     return out
 
 
@@ -233,26 +122,25 @@ def column_order_statistics(x: np.ndarray, ranks: np.ndarray) -> np.ndarray:
     x = np.asarray(x)
     if x.ndim != 2:
         raise ValueError("x must be two-dimensional (trials, columns)")
-    if x.dtype not in (np.float32, np.float64):
+    if x.dtype not in (np.float32, np.float64) or not x.dtype.isnative:
         x = x.astype(np.float64)
-    ranks = np.asarray(ranks, dtype=np.intp).ravel()
+    ranks = np.asarray(ranks, dtype=np.int64).ravel()
     n, f = x.shape
     if ranks.size and (ranks.min() < 0 or ranks.max() >= n):
         raise ValueError(f"ranks must lie in [0, {n})")
-    out = np.empty((ranks.size, f), dtype=x.dtype)
     if ranks.size == 0 or f == 0:
-        return out
-    distinct = np.unique(ranks)
-    back = np.searchsorted(distinct, ranks)
-    slab = max(1, SLAB_VALUES // n)
-    column_major = x.T.flags.c_contiguous                   # a frequency-major store seen through .T: no copy
-    buffer = None if column_major else np.empty(min(slab, f) * n, dtype=x.dtype)
-    work = _Work(min(_block_rows(n), f) * n, x.dtype)
-    for c0 in range(0, f, slab):
-        c1 = min(f, c0 + slab)
-        rows = x.T[c0:c1] if column_major else _transposed(x, c0, c1, buffer)
-        out[:, c0:c1] = _select_rows(rows, distinct, work).T[back]
-    return out
+        return np.empty((ranks.size, f), dtype=x.dtype)
+    distinct, back = np.unique(ranks, return_inverse=True)
+    picked = np.empty((f, distinct.size), dtype=x.dtype)
+    if x.T.flags.c_contiguous and x.flags.writeable:       # a frequency-major store seen through .T: no copy
+        select_into(x.T, distinct, picked)
+    else:
+        slab = max(1, SLAB_VALUES // n)
+        buffer = np.empty(min(slab, f) * n, dtype=x.dtype)
+        for c0 in range(0, f, slab):
+            c1 = min(f, c0 + slab)
+            select_into(_transposed(x, c0, c1, buffer), distinct, picked[c0:c1])
+    return picked.T[back]
 
 
 def _interpolated(n: int, read) -> np.ndarray:

@@ -64,19 +64,19 @@ def test_column_order_statistics_are_the_sorted_columns_bit_for_bit(n, f, dtype)
 
 
 @pytest.mark.parametrize("dtype", [np.float32, np.float64])
-@pytest.mark.parametrize("buckets", [4, 512])
-def test_every_path_of_the_selection_gives_the_sorted_bits(monkeypatch, dtype, buckets):
-    # small column blocks and row blocks with ragged ends, a transposition step that does not divide the
-    # trials, and few buckets (many values per marked bucket)
+@pytest.mark.parametrize("layout", ["trial-major", "column-major"])
+def test_every_path_of_the_selection_gives_the_sorted_bits(monkeypatch, dtype, layout):
+    # small slabs with a ragged end and a transposition step that does not divide the trials (trial-major),
+    # or the columns read in place (column-major)
     # source: numpy.sort (reference library)
     import service.tolerance.statistics as st
 
     monkeypatch.setattr(st, "SLAB_VALUES", 7 * 10007)
     monkeypatch.setattr(st, "TRANSPOSE_ROWS", 300)
-    monkeypatch.setattr(st, "BLOCK_VALUES", 3 * 10007)
-    monkeypatch.setattr(st, "BUCKETS", buckets)
     rng = np.random.default_rng(11)
     x = _columns(10007, 20, dtype, rng)
+    if layout == "column-major":
+        x = np.asfortranarray(x)
     expected = np.sort(x, axis=0)
     for ranks in (percentile_ranks(10007), rng.integers(0, 10007, 30), np.array([0, 1, 5000, 10005, 10006])):
         assert np.array_equal(column_order_statistics(x, ranks), expected[ranks], equal_nan=True)
@@ -120,7 +120,7 @@ def test_row_percentiles_are_the_column_percentiles_of_the_transpose():
 
 def test_working_memory_stays_below_one_copy_of_the_store():
     # no copy of a whole (10000, 501) float32 store (20 MB), let alone an int64 one: the columns are copied
-    # a slab at a time, and coded a block of the slab at a time
+    # a slab at a time and selected slab by slab
     import tracemalloc
 
     rng = np.random.default_rng(6)
