@@ -46,6 +46,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from service.circuit import Circuit, PolarResponse, prepare_ac
+from service.circuit import polarkernels
 from service.deadline import check as check_deadline
 from service.tolerance import figures as fig
 from service.tolerance.grids import Grids
@@ -146,19 +147,18 @@ def _log_power(p: np.ndarray, out: np.ndarray) -> None:
     normal float32, in float64 with the floor of :data:`service.tolerance.figures.POWER_FLOOR` elsewhere."""
     with np.errstate(all="ignore"):                # out of float32's range: -inf, inf or NaN, redone below
         np.log10(p, out=out, dtype=np.float32)
-    if not (out.min() >= LOG10_TINY32 and out.max() < np.inf):          # NaN fails too
+    if not polarkernels.within(out, np.float32(LOG10_TINY32)):         # one compiled pass; NaN fails too
         bad = ~((out >= LOG10_TINY32) & (out < np.inf))
         out[bad] = np.log10(np.maximum(p[bad], fig.POWER_FLOOR))
 
 
 def _relative_phase(phase: np.ndarray, nominal: np.ndarray) -> None:
     """Turn the principal phases ``phase`` (Tc, F), float32 rad, in place into their principal difference from
-    the nominal's principal phases ``nominal`` (F,) float32: ``arg(H conj H_nominal)``, in [-pi, pi]."""
-    phase -= nominal
-    turns = phase * np.float32(1.0 / (2.0 * np.pi))
-    np.rint(turns, out=turns)
-    turns *= np.float32(2.0 * np.pi)
-    phase -= turns
+    the nominal's principal phases ``nominal`` (F,) float32: ``arg(H conj H_nominal)``, in [-pi, pi].
+
+    In float32, element by element: ``d = phase - nominal``, then ``d - rint(d * float32(1/(2 pi))) *
+    float32(2 pi)`` (ties to even), one compiled pass (:func:`service.circuit.polarkernels.relative_phase`)."""
+    polarkernels.relative_phase(phase, nominal, np.float32(1.0 / (2.0 * np.pi)), np.float32(2.0 * np.pi))
 
 
 def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, nominal: np.ndarray,
