@@ -149,19 +149,6 @@ def relative_phase(phase, nominal, inv_turn, turn):
             phase[i, j] = d - k * turn
 
 
-@kernel
-def within(x, lo):
-    """Whether every element of ``x`` (T, F) float32 lies in ``[lo, inf)`` (NaN does not); frequency-major
-    walk, as :func:`relative_phase`."""
-    t, f = x.shape
-    count = 0
-    for j in range(f):
-        for i in range(t):
-            v = x[i, j]
-            count += (v >= lo) & (v < np.inf)
-    return count == t * f
-
-
 def _store_view(rows: int, columns: int) -> np.ndarray:
     """A float32 (rows, columns) transposed view of a frequency-major store, as the Monte Carlo hands over."""
     return np.zeros((columns, rows + 1), np.float32)[:, 1:].T
@@ -183,8 +170,6 @@ def _warm() -> None:
     store = _store_view(t, f)
     relative_phase(store, np.zeros(f, np.float32), np.float32(0.5), np.float32(2.0))
     relative_phase(c32, np.zeros(f, np.float32), np.float32(0.5), np.float32(2.0))
-    within(store, np.float32(-1.0))
-    within(c32, np.float32(-1.0))
 
 
-__all__ = ["polar_constant", "polar_general", "relative_phase", "within"]
+__all__ = ["polar_constant", "polar_general", "relative_phase"]
