@@ -47,6 +47,8 @@ import math
 
 import numpy as np
 
+from . import polarkernels
+
 TILE_ROWS = 64
 """Rows (trials) of every coefficient-times-powers product; partial tiles are padded.  Any fixed value keeps a
 trial's bits independent of its batch; 64 measured 1.4x faster than 16 for the parts of a (1024, 560) chunk
@@ -69,6 +71,9 @@ NARROW_MIN = 1e-60
 NARROW_MAX = 1e60
 """Range of ``|D|^2`` where the phase of ``D`` may be taken in float32 (its parts then lie between 1e-30 and
 1e30 in magnitude, well inside float32's normal range)."""
+
+_BOUNDS = np.array([SAFE_MIN, SAFE_MAX, NARROW_MIN, NARROW_MAX])
+"""The ranges above as the compiled kernels take them (:mod:`.polarkernels`)."""
 
 
 class GridEvaluator:
@@ -237,80 +242,137 @@ class GridEvaluator:
         Notes
         -----
         No quotient ``N/D`` is formed: the power is one division, the phase one arctangent, the delay
-        four products of numbers already at hand.  Where ``|D|^2`` leaves the safe range of float64 the
-        three come from numpy's complex division, as in :meth:`ratio`.  Each trial's numbers depend on
-        its own coefficients and the grid only.
+        four products of numbers already at hand.  The parts of ``N`` and ``D`` and their derivatives are
+        the fixed-shape products of :meth:`parts` and :meth:`slopes`; the element-wise steps after them are
+        one compiled loop per block (:mod:`.polarkernels`: the bits of the numpy expressions of
+        :meth:`_numpy_polar_block`, which the tests check), the arctangent numpy's.  A block where some
+        ``|D|^2`` (or, for the delay, some nonzero ``|N|^2``) leaves the safe range of float64 is done by
+        :meth:`_numpy_polar_block`, whose complex division handles those points.  Each trial's numbers
+        depend on its own coefficients and the grid only.
         """
         t = den.shape[0]
         const, den, zero = _fold_constant(num, den)
         nb = min(t, self.block)
         dbuf = self._buffer("den", (2, nb, self.size))
-        nbuf = None if const else self._buffer("num", (nb, 2, self.size))
+        nbuf = None if const else self._buffer("num", (2, nb, self.size))
+        slope = None if delay is None else self._buffer("slope", (2 if const else 4, nb, self.size))
         tmp = self._buffer("tmp", (4, nb, self.size))
-        slope = None if delay is None and const else self._buffer("slope", (2, nb, self.size))
         for t0 in range(0, t, self.block):
             t1 = min(t, t0 + self.block)
             k = t1 - t0
             c, ec = dbuf[0, :k], dbuf[1, :k]                     # conj D = c + j ec
             self.parts(den[t0:t1], c, ec, conjugate=True)
-            n = None if const else self.planar(num[t0:t1], nbuf[:k])
-            mag2, r, u, v = tmp[0, :k], tmp[1, :k], tmp[2, :k], tmp[3, :k]
-            np.multiply(c, c, out=mag2)
-            np.multiply(ec, ec, out=r)
-            mag2 += r
-            lo, hi = float(mag2.min()), float(mag2.max())
-            safe = lo > SAFE_MIN and hi < SAFE_MAX
+            n = None if const else (nbuf[0, :k], nbuf[1, :k])
+            if n is not None:
+                self.parts(num[t0:t1], n[0], n[1])
+            if delay is not None:                                  # derivatives in x, scaled by 1/w_ref
+                self.slopes(den[t0:t1], slope[0, :k], slope[1, :k], 1.0 / self.w_ref)
+                if n is not None:
+                    self.slopes(num[t0:t1], slope[2, :k], slope[3, :k], 1.0 / self.w_ref)
             p = power[t0:t1]
-            with contextlib.nullcontext() if safe else np.errstate(all="ignore"):
-                if const:                                          # |H|^2 = 1/|D|^2 (the folded D)
-                    np.divide(1.0, mag2, out=p)
-                    r = p
-                else:
-                    np.divide(1.0, mag2, out=r)                    # 1/|D|^2
-                    np.multiply(n[:, 0], n[:, 0], out=p)
-                    np.multiply(n[:, 1], n[:, 1], out=u)
-                    p += u
-                    p *= r
-                if phase is not None:
-                    ph = phase[t0:t1]
-                    if const:                                      # arg H = arg conj D
-                        # in the output's dtype when |D| suits it (float32: between 1e-30 and 1e30)
-                        narrow = ph.dtype != np.float64 and not (NARROW_MIN < lo and hi < NARROW_MAX)
-                        np.arctan2(ec, c, out=ph, dtype=np.float64 if narrow else ph.dtype)
-                    else:                                          # arg(N conj D), in float64: |N D| may be huge
-                        np.multiply(n[:, 0], c, out=u)
-                        np.multiply(n[:, 1], ec, out=v)
-                        u -= v
-                        np.multiply(n[:, 0], ec, out=v)
-                        w = slope[0, :k]                           # scratch until the delay's derivatives
-                        np.multiply(n[:, 1], c, out=w)
-                        v += w
-                        np.arctan2(v, u, out=ph)
-                if delay is not None:                              # derivatives in x, scaled by 1/w_ref
-                    d_re, d_im = slope[0, :k], slope[1, :k]
-                    self.slopes(den[t0:t1], d_re, d_im, 1.0 / self.w_ref)
-                    np.multiply(c, d_im, out=u)                    # Re(D'/D) |D|^2 = c d_im + ec d_re
-                    np.multiply(ec, d_re, out=v)
-                    u += v
-                    if const:
-                        np.multiply(u, r, out=delay[t0:t1], casting="same_kind")
-                    else:
-                        u *= r
-                        nn = tmp[0, :k]                            # |N|^2 (|D|^2 no longer needed)
-                        np.multiply(n[:, 0], n[:, 0], out=nn)
-                        np.multiply(n[:, 1], n[:, 1], out=v)
-                        nn += v
-                        self.slopes(num[t0:t1], d_re, d_im, 1.0 / self.w_ref)
-                        _log_slope(n[:, 0], n[:, 1], d_re, d_im, nn, v, tmp[1, :k])
-                        np.subtract(u, v, out=delay[t0:t1], casting="same_kind")   # Re(D'/D) - Re(N'/N)
-            if not safe:
-                self._unsafe_polar(n, c, ec, den[t0:t1], num[t0:t1], p, None if phase is None else phase[t0:t1],
-                                   None if delay is None else delay[t0:t1])
+            ph = None if phase is None else phase[t0:t1]
+            dl = None if delay is None else delay[t0:t1]
+            sl = None if slope is None else slope[:, :k]
+            if not self._compiled_polar_block(n, c, ec, sl, p, ph, dl, tmp[:, :k]):
+                self._numpy_polar_block(n, c, ec, den[t0:t1], None if const else num[t0:t1], p, ph, dl,
+                                        tmp[:, :k])
         if zero is not None:
             power[zero] = 0.0
             for arr in (phase, delay):
                 if arr is not None:
                     arr[zero] = 0.0
+
+    def _compiled_polar_block(self, n, c, ec, slope, power, phase, delay, tmp) -> bool:
+        """One block of :meth:`ratio_polar` by the compiled kernels and numpy's arctangent; False (outputs
+        untrusted) when some ``|D|^2`` or nonzero ``|N|^2`` lies outside the kernels' range.
+
+        ``n`` (``N``'s parts, (k, F) each) or None for a folded constant; ``c, ec`` (k, F) the parts of
+        ``conj D``; ``slope`` (2 or 4, k, F) the derivatives of ``D`` (and ``N``) or None; ``tmp`` (4, k, F)
+        scratch."""
+        with_delay = delay is not None
+        sd = (slope[0], slope[1]) if with_delay else (c, c)       # unread placeholders keep one signature
+        dl = delay if with_delay else c
+        if n is None:
+            wide = phase is not None and phase.dtype != np.float32
+            parts32 = phase is not None and not wide
+            k, f = c.shape
+            f32 = self._buffer("f32", (k * f,)).view(np.float32)      # two float32 planes in one float64 buffer
+            c32, ec32 = f32[: k * f].reshape(k, f), f32[k * f:].reshape(k, f)
+            safe, narrow = polarkernels.polar_constant(c, ec, sd[0], sd[1], power, c32, ec32, dl, _BOUNDS,
+                                                       parts32, with_delay)
+            if safe and phase is not None:                             # arg H = arg conj D
+                if parts32 and narrow:                                 # float32: |D| between 1e-30 and 1e30
+                    np.arctan2(ec32, c32, out=phase)
+                else:
+                    np.arctan2(ec, c, out=phase, dtype=np.float64 if (wide or not narrow) else phase.dtype)
+            return safe
+        with_phase = phase is not None
+        u, v = (tmp[2], tmp[3]) if with_phase else (c, c)
+        sn = (slope[2], slope[3]) if with_delay else (c, c)
+        safe = polarkernels.polar_general(c, ec, n[0], n[1], sd[0], sd[1], sn[0], sn[1], power, u, v, dl, _BOUNDS,
+                                          with_phase, with_delay)
+        if safe and with_phase:
+            np.arctan2(v, u, out=phase)                                # arg(N conj D), in float64
+        return safe
+
+    def _numpy_polar_block(self, n, c, ec, den, num, p, ph, delay, tmp) -> None:
+        """One block of :meth:`ratio_polar` by numpy passes, complex division where ``|D|^2`` (or ``|N|^2``)
+        leaves the safe range: the fallback of :meth:`_compiled_polar_block` (the same bits elsewhere).
+
+        ``n`` (``N``'s parts) or None, ``c, ec`` the parts of ``conj D``, ``den``, ``num`` the block's
+        coefficients (``num`` None for a folded constant), ``tmp`` (4, k, F) scratch."""
+        const = n is None
+        k = c.shape[0]
+        mag2, r, u, v = tmp
+        np.multiply(c, c, out=mag2)
+        np.multiply(ec, ec, out=r)
+        mag2 += r
+        lo, hi = float(mag2.min()), float(mag2.max())
+        safe = lo > SAFE_MIN and hi < SAFE_MAX
+        slope = None if ph is None and delay is None else np.empty((2, k, self.size))
+        with contextlib.nullcontext() if safe else np.errstate(all="ignore"):
+            if const:                                          # |H|^2 = 1/|D|^2 (the folded D)
+                np.divide(1.0, mag2, out=p)
+                r = p
+            else:
+                np.divide(1.0, mag2, out=r)                    # 1/|D|^2
+                np.multiply(n[0], n[0], out=p)
+                np.multiply(n[1], n[1], out=u)
+                p += u
+                p *= r
+            if ph is not None:
+                if const:                                      # arg H = arg conj D
+                    # in the output's dtype when |D| suits it (float32: between 1e-30 and 1e30)
+                    narrow = ph.dtype != np.float64 and not (NARROW_MIN < lo and hi < NARROW_MAX)
+                    np.arctan2(ec, c, out=ph, dtype=np.float64 if narrow else ph.dtype)
+                else:                                          # arg(N conj D), in float64: |N D| may be huge
+                    np.multiply(n[0], c, out=u)
+                    np.multiply(n[1], ec, out=v)
+                    u -= v
+                    np.multiply(n[0], ec, out=v)
+                    w = slope[0]
+                    np.multiply(n[1], c, out=w)
+                    v += w
+                    np.arctan2(v, u, out=ph)
+            if delay is not None:                              # derivatives in x, scaled by 1/w_ref
+                d_re, d_im = slope[0], slope[1]
+                self.slopes(den, d_re, d_im, 1.0 / self.w_ref)
+                np.multiply(c, d_im, out=u)                    # Re(D'/D) |D|^2 = c d_im + ec d_re
+                np.multiply(ec, d_re, out=v)
+                u += v
+                if const:
+                    np.multiply(u, r, out=delay, casting="same_kind")
+                else:
+                    u *= r
+                    nn = tmp[0]                                # |N|^2 (|D|^2 no longer needed)
+                    np.multiply(n[0], n[0], out=nn)
+                    np.multiply(n[1], n[1], out=v)
+                    nn += v
+                    self.slopes(num, d_re, d_im, 1.0 / self.w_ref)
+                    _log_slope(n[0], n[1], d_re, d_im, nn, v, tmp[1])
+                    np.subtract(u, v, out=delay, casting="same_kind")   # Re(D'/D) - Re(N'/N)
+        if not safe:
+            self._unsafe_polar(n, c, ec, den, num, p, ph, delay)
 
     def _unsafe_polar(self, n, c, ec, den, num, power, phase, delay) -> None:
         """:meth:`ratio_polar` at the points where ``|D|^2`` left the safe range, by complex arithmetic."""
@@ -318,8 +380,7 @@ class GridEvaluator:
         bad = ~((mag2 > SAFE_MIN) & (mag2 < SAFE_MAX))
         with np.errstate(all="ignore"):
             d = c[bad] - 1j * ec[bad]                              # D
-            nv = 1.0 if n is None else (np.broadcast_to(n[:, 0], bad.shape)[bad]
-                                        + 1j * np.broadcast_to(n[:, 1], bad.shape)[bad])
+            nv = 1.0 if n is None else n[0][bad] + 1j * n[1][bad]
             h = nv / d
             power[bad] = h.real ** 2 + h.imag ** 2
             if phase is not None:

@@ -46,6 +46,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from service.circuit import Circuit, PolarResponse, prepare_ac
+from service.circuit import polarkernels
 from service.deadline import check as check_deadline
 from service.tolerance import figures as fig
 from service.tolerance.grids import Grids
@@ -161,12 +162,11 @@ def _log_power(p: np.ndarray, out: np.ndarray) -> None:
 
 def _relative_phase(phase: np.ndarray, nominal: np.ndarray) -> None:
     """Turn the principal phases ``phase`` (Tc, F), float32 rad, in place into their principal difference from
-    the nominal's principal phases ``nominal`` (F,) float32: ``arg(H conj H_nominal)``, in [-pi, pi]."""
-    phase -= nominal
-    turns = phase * np.float32(1.0 / (2.0 * np.pi))
-    np.rint(turns, out=turns)
-    turns *= np.float32(2.0 * np.pi)
-    phase -= turns
+    the nominal's principal phases ``nominal`` (F,) float32: ``arg(H conj H_nominal)``, in [-pi, pi].
+
+    In float32, element by element: ``d = phase - nominal``, then ``d - rint(d * float32(1/(2 pi))) *
+    float32(2 pi)`` (ties to even), one compiled pass (:func:`service.circuit.polarkernels.relative_phase`)."""
+    polarkernels.relative_phase(phase, nominal, np.float32(1.0 / (2.0 * np.pi)), np.float32(2.0 * np.pi))
 
 
 def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, nominal: np.ndarray,
