@@ -38,12 +38,13 @@ import time
 from typing import Callable
 
 import numba
+import numba.core.config
 
 
 def _cache_writable() -> bool:
-    """Whether numba can keep compiled code on disk: ``NUMBA_CACHE_DIR`` (made if missing) or the package's
-    own folder is writable (numba's own test: a temporary file in it)."""
-    place = os.environ.get("NUMBA_CACHE_DIR") or os.path.dirname(os.path.abspath(__file__))
+    """Whether numba can keep compiled code on disk: its cache folder (``NUMBA_CACHE_DIR``, as numba read it;
+    made if missing) or else the package's own folder is writable (numba's own test: a temporary file in it)."""
+    place = numba.core.config.CACHE_DIR or os.path.dirname(os.path.abspath(__file__))
     try:
         os.makedirs(place, exist_ok=True)
         with tempfile.TemporaryFile(dir=place):
