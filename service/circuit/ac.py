@@ -38,7 +38,7 @@ from .blocks import decompose
 from .errors import CircuitError
 from .mna import MnaSystem, build_mna
 from .netlist import Circuit
-from .polyeval import GridEvaluator
+from .polyeval import GridEvaluator, unit_phasors
 from .staged import (bytes_per_trial, coefficient_bytes_per_trial, evaluate_chunk, evaluate_chunk_polar,
                      is_single_rational, plan_blocks, stage_representations)
 
@@ -78,7 +78,8 @@ class PolarResponse:
     power : ndarray, float64
         ``|H|^2`` (V/V squared).
     phase_rad : ndarray or None
-        Principal value of ``arg H`` (rad, in (-pi, pi]), when asked for; float32 or float64.
+        Principal value of ``arg H`` (rad, in (-pi, pi]), or of ``arg(H conj r)`` relative to the
+        evaluation's reference phasors ``r``, when asked for; float32 or float64.
     delay_s : ndarray or None
         Group delay ``-d arg H / d omega`` (s), when asked for; float32 or float64.
     """
@@ -239,7 +240,7 @@ class PreparedAc:
 
 
     def polar(self, trials: slice | None = None, *, phase: bool = False, delay: bool = False,
-              out: PolarResponse | None = None) -> PolarResponse:
+              phase_reference: np.ndarray | None = None, out: PolarResponse | None = None) -> PolarResponse:
         """``|H|^2`` and (optionally) the principal phase and the group delay of the trials in ``trials``.
 
         The staged method with the output one rational function per trial (a cascade: the usual case)
@@ -257,6 +258,10 @@ class PreparedAc:
             Trials to evaluate (step 1; default all).
         phase, delay : bool
             Also compute ``phase_rad``, ``delay_s``.
+        phase_reference : ndarray (F,) complex, optional
+            With ``phase``: the phase is taken relative to these phasors (e.g. the nominal response),
+            ``arg(H conj r)`` in (-pi, pi] with ``r`` their unit phasors -- the parts turned before the
+            arctangent, no subtraction or wrapping after it.
         out : PolarResponse, optional
             Arrays (Tc, F) to write into -- ``power`` float64; ``phase_rad`` and ``delay_s`` float32
             or float64, computed in their dtype, needed only when asked for.  A caller evaluating
@@ -281,15 +286,22 @@ class PreparedAc:
                 a is not None and a.shape != shape for a in wanted):
             raise CircuitError(f"the output arrays must have shape {shape}", field="out")
         power, ph, d = wanted
+        if phase_reference is not None and np.shape(phase_reference) != (self.frequency_hz.size,):
+            raise CircuitError(f"phase_reference must have shape ({self.frequency_hz.size},)",
+                               field="phase_reference")
         if self.method == "staged" and not self._chunked:
             check_deadline("circuit.ac.staged")
-            evaluate_chunk_polar(self._reps, self._col, self._ev, slice(t0, t1), power, ph, d)
+            evaluate_chunk_polar(self._reps, self._col, self._ev, slice(t0, t1), power, ph, d, phase_reference)
             return out
         h = self.response(slice(t0, t1))
         np.multiply(h.real, h.real, out=power)
         power += h.imag ** 2
         if ph is not None:
-            ph[...] = np.angle(h)
+            if phase_reference is not None:
+                cr, sr = unit_phasors(phase_reference)
+                ph[...] = np.angle(h * (cr - 1j * sr))
+            else:
+                ph[...] = np.angle(h)
         if d is not None:
             f = self.frequency_hz
             pos = f[f > 0]

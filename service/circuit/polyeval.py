@@ -220,7 +220,7 @@ class GridEvaluator:
 
 
     def ratio_polar(self, num: np.ndarray, den: np.ndarray, power: np.ndarray, phase: np.ndarray | None = None,
-                    delay: np.ndarray | None = None) -> None:
+                    delay: np.ndarray | None = None, reference: np.ndarray | None = None) -> None:
         """``H = N(sigma)/D(sigma)`` on the grid as ``|H|^2``, the principal ``arg H`` and the group delay.
 
         Parameters
@@ -238,6 +238,10 @@ class GridEvaluator:
             Written when given: the group delay ``-d arg H / d omega`` (s) in closed form from the
             polynomials' derivatives, ``(Re(D'/D) - Re(N'/N)) / w_ref`` (:func:`_log_slope`); 0 where
             ``H`` is identically 0.
+        reference : ndarray, shape (F,), complex, optional
+            When given, ``phase`` is the principal ``arg(H conj r)`` of the phase relative to these
+            phasors (their unit phasors ``r``; :func:`unit_phasors`): the parts the arctangent reads are
+            turned by ``conj r`` in float64 first, so it gives the relative phase in (-pi, pi] directly.
 
         Notes
         -----
@@ -257,6 +261,7 @@ class GridEvaluator:
         nbuf = None if const else self._buffer("num", (2, nb, self.size))
         slope = None if delay is None else self._buffer("slope", (2 if const else 4, nb, self.size))
         tmp = self._buffer("tmp", (4, nb, self.size))
+        rot = None if reference is None or phase is None else unit_phasors(reference)
         for t0 in range(0, t, self.block):
             t1 = min(t, t0 + self.block)
             k = t1 - t0
@@ -273,23 +278,25 @@ class GridEvaluator:
             ph = None if phase is None else phase[t0:t1]
             dl = None if delay is None else delay[t0:t1]
             sl = None if slope is None else slope[:, :k]
-            if not self._compiled_polar_block(n, c, ec, sl, p, ph, dl, tmp[:, :k]):
+            if not self._compiled_polar_block(n, c, ec, sl, p, ph, dl, tmp[:, :k], rot):
                 self._numpy_polar_block(n, c, ec, den[t0:t1], None if const else num[t0:t1], p, ph, dl,
-                                        tmp[:, :k])
+                                        tmp[:, :k], rot)
         if zero is not None:
             power[zero] = 0.0
             for arr in (phase, delay):
                 if arr is not None:
                     arr[zero] = 0.0
 
-    def _compiled_polar_block(self, n, c, ec, slope, power, phase, delay, tmp) -> bool:
+    def _compiled_polar_block(self, n, c, ec, slope, power, phase, delay, tmp, rot) -> bool:
         """One block of :meth:`ratio_polar` by the compiled kernels and numpy's arctangent; False (outputs
         untrusted) when some ``|D|^2`` or nonzero ``|N|^2`` lies outside the kernels' range.
 
         ``n`` (``N``'s parts, (k, F) each) or None for a folded constant; ``c, ec`` (k, F) the parts of
         ``conj D``; ``slope`` (2 or 4, k, F) the derivatives of ``D`` (and ``N``) or None; ``tmp`` (4, k, F)
-        scratch."""
+        scratch; ``rot`` (2, F) the unit reference phasors (cosine, sine) or None."""
         with_delay = delay is not None
+        rotate = rot is not None
+        r2 = rot if rotate else _NO_ROTATION
         sd = (slope[0], slope[1]) if with_delay else (c, c)       # unread placeholders keep one signature
         dl = delay if with_delay else c
         if n is None:
@@ -298,29 +305,31 @@ class GridEvaluator:
             k, f = c.shape
             f32 = self._buffer("f32", (k * f,)).view(np.float32)      # two float32 planes in one float64 buffer
             c32, ec32 = f32[: k * f].reshape(k, f), f32[k * f:].reshape(k, f)
-            safe, narrow = polarkernels.polar_constant(c, ec, sd[0], sd[1], power, c32, ec32, dl, _BOUNDS,
-                                                       parts32, with_delay)
+            safe, narrow = polarkernels.polar_constant(c, ec, sd[0], sd[1], power, c32, ec32, dl, r2, _BOUNDS,
+                                                       parts32, with_delay, rotate)
             if safe and phase is not None:                             # arg H = arg conj D
                 if parts32 and narrow:                                 # float32: |D| between 1e-30 and 1e30
                     np.arctan2(ec32, c32, out=phase)
                 else:
-                    np.arctan2(ec, c, out=phase, dtype=np.float64 if (wide or not narrow) else phase.dtype)
+                    x, y = _rotated(c, ec, rot, tmp[2], tmp[3]) if rotate else (c, ec)
+                    np.arctan2(y, x, out=phase, dtype=np.float64 if (wide or not narrow) else phase.dtype)
             return safe
         with_phase = phase is not None
         u, v = (tmp[2], tmp[3]) if with_phase else (c, c)
         sn = (slope[2], slope[3]) if with_delay else (c, c)
-        safe = polarkernels.polar_general(c, ec, n[0], n[1], sd[0], sd[1], sn[0], sn[1], power, u, v, dl, _BOUNDS,
-                                          with_phase, with_delay)
+        safe = polarkernels.polar_general(c, ec, n[0], n[1], sd[0], sd[1], sn[0], sn[1], power, u, v, dl, r2,
+                                          _BOUNDS, with_phase, with_delay, rotate)
         if safe and with_phase:
             np.arctan2(v, u, out=phase)                                # arg(N conj D), in float64
         return safe
 
-    def _numpy_polar_block(self, n, c, ec, den, num, p, ph, delay, tmp) -> None:
+    def _numpy_polar_block(self, n, c, ec, den, num, p, ph, delay, tmp, rot) -> None:
         """One block of :meth:`ratio_polar` by numpy passes, complex division where ``|D|^2`` (or ``|N|^2``)
         leaves the safe range: the fallback of :meth:`_compiled_polar_block` (the same bits elsewhere).
 
         ``n`` (``N``'s parts) or None, ``c, ec`` the parts of ``conj D``, ``den``, ``num`` the block's
-        coefficients (``num`` None for a folded constant), ``tmp`` (4, k, F) scratch."""
+        coefficients (``num`` None for a folded constant), ``tmp`` (4, k, F) scratch, ``rot`` the reference
+        phasors or None."""
         const = n is None
         k = c.shape[0]
         mag2, r, u, v = tmp
@@ -344,7 +353,8 @@ class GridEvaluator:
                 if const:                                      # arg H = arg conj D
                     # in the output's dtype when |D| suits it (float32: between 1e-30 and 1e30)
                     narrow = ph.dtype != np.float64 and not (NARROW_MIN < lo and hi < NARROW_MAX)
-                    np.arctan2(ec, c, out=ph, dtype=np.float64 if narrow else ph.dtype)
+                    x, y = (c, ec) if rot is None else _rotated(c, ec, rot, np.empty(c.shape), np.empty(c.shape))
+                    np.arctan2(y, x, out=ph, dtype=np.float64 if narrow else ph.dtype)
                 else:                                          # arg(N conj D), in float64: |N D| may be huge
                     np.multiply(n[0], c, out=u)
                     np.multiply(n[1], ec, out=v)
@@ -353,6 +363,8 @@ class GridEvaluator:
                     w = slope[0]
                     np.multiply(n[1], c, out=w)
                     v += w
+                    if rot is not None:
+                        u, v = _rotated(u, v, rot, np.empty(u.shape), np.empty(u.shape))
                     np.arctan2(v, u, out=ph)
             if delay is not None:                              # derivatives in x, scaled by 1/w_ref
                 d_re, d_im = slope[0], slope[1]
@@ -372,9 +384,9 @@ class GridEvaluator:
                     _log_slope(n[0], n[1], d_re, d_im, nn, v, tmp[1])
                     np.subtract(u, v, out=delay, casting="same_kind")   # Re(D'/D) - Re(N'/N)
         if not safe:
-            self._unsafe_polar(n, c, ec, den, num, p, ph, delay)
+            self._unsafe_polar(n, c, ec, den, num, p, ph, delay, rot)
 
-    def _unsafe_polar(self, n, c, ec, den, num, power, phase, delay) -> None:
+    def _unsafe_polar(self, n, c, ec, den, num, power, phase, delay, rot=None) -> None:
         """:meth:`ratio_polar` at the points where ``|D|^2`` left the safe range, by complex arithmetic."""
         mag2 = c * c + ec * ec
         bad = ~((mag2 > SAFE_MIN) & (mag2 < SAFE_MAX))
@@ -384,6 +396,9 @@ class GridEvaluator:
             h = nv / d
             power[bad] = h.real ** 2 + h.imag ** 2
             if phase is not None:
+                if rot is not None:
+                    r = np.broadcast_to(rot[:, None, :], (2,) + c.shape)[:, bad]
+                    h = h * (r[0] - 1j * r[1])                     # the phase relative to the reference
                 phase[bad] = np.angle(h)
             if delay is not None:
                 d_re, d_im = np.empty(c.shape), np.empty(c.shape)
@@ -394,6 +409,32 @@ class GridEvaluator:
                     nz = nv != 0
                     tau = tau - np.where(nz, ((d_im[bad] - 1j * d_re[bad]) / np.where(nz, nv, 1.0)).real, 0.0)
                 delay[bad] = tau / self.w_ref
+
+
+_NO_ROTATION = np.zeros((2, 1))
+"""Placeholder of the kernels' reference phasors when there is none (never read)."""
+
+
+def unit_phasors(reference: np.ndarray) -> np.ndarray:
+    """The unit phasors ``r/|r|`` of complex ``reference`` (F,), as (2, F) float64 (cosine row, sine row); ``1``
+    where ``r`` is 0 or not finite (no direction: phases there are taken as they are)."""
+    r = np.asarray(reference, dtype=complex)
+    m = np.abs(r)
+    ok = (m > 0) & np.isfinite(m)
+    unit = np.where(ok, r / np.where(ok, m, 1.0), 1.0)
+    return np.ascontiguousarray(np.stack([unit.real, unit.imag]))
+
+
+def _rotated(px: np.ndarray, py: np.ndarray, rot: np.ndarray, x: np.ndarray, y: np.ndarray
+             ) -> tuple[np.ndarray, np.ndarray]:
+    """The parts of ``(px + j py) conj r`` into ``x``, ``y`` (T, F) -- ``px*cr + py*sr`` and ``py*cr - px*sr``,
+    ``rot = (cr, sr)`` (2, F) -- the operations and rounding of the kernels' turn; returns ``(x, y)``."""
+    cr, sr = rot[0], rot[1]
+    np.multiply(px, cr, out=x)
+    x += py * sr
+    np.multiply(py, cr, out=y)
+    y -= px * sr
+    return x, y
 
 
 def _fold_constant(num: np.ndarray, den: np.ndarray) -> tuple[bool, np.ndarray, np.ndarray | None]:
@@ -490,5 +531,5 @@ def quotient(n: np.ndarray, d: np.ndarray) -> np.ndarray:
     return out
 
 
-__all__ = ["GridEvaluator", "multiply", "quotient", "TILE_ROWS", "PRODUCT_WORK", "BLOCK_BYTES", "SAFE_MIN",
+__all__ = ["GridEvaluator", "multiply", "quotient", "unit_phasors", "TILE_ROWS", "PRODUCT_WORK", "BLOCK_BYTES", "SAFE_MIN",
            "SAFE_MAX"]

@@ -403,13 +403,15 @@ def evaluate_chunk(reps: dict[int, object], output_col: int, ev: GridEvaluator, 
 
 
 def evaluate_chunk_polar(reps: dict[int, object], output_col: int, ev: GridEvaluator, sl: slice, power: np.ndarray,
-                         phase: np.ndarray | None, delay: np.ndarray | None) -> None:
-    """``|H|^2``, and when their arrays are given ``arg H`` (rad) and the group delay (s), of a single-rational
-    output for trials ``sl``, each written into its (Tc, F) array (:meth:`.polyeval.GridEvaluator.ratio_polar`)."""
+                         phase: np.ndarray | None, delay: np.ndarray | None, reference: np.ndarray | None = None
+                         ) -> None:
+    """``|H|^2``, and when their arrays are given ``arg H`` (rad; relative to ``reference`` when given) and the
+    group delay (s), of a single-rational output for trials ``sl``, each written into its (Tc, F) array
+    (:meth:`.polyeval.GridEvaluator.ratio_polar`)."""
     r = reps[output_col]
     if not is_single_rational(reps, output_col):
         raise CircuitError("the output is not one rational function per trial")
-    ev.ratio_polar(r.num[sl], r.den[sl], power, phase, delay)
+    ev.ratio_polar(r.num[sl], r.den[sl], power, phase, delay, reference)
 
 
 def is_single_rational(reps: dict[int, object], col: int) -> bool:

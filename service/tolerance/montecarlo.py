@@ -14,8 +14,8 @@ Per trial and caller frequency three float32 values are kept: ``log10 |H|^2``,
 the phase relative to the nominal response (rad) and the group delay (s).
 The stores are frequency-major (F_b, T): one row per frequency, read in
 place by the selection (trial-major stores, read a column slab at a time,
-measured 10 % slower for a whole run).  The engine and the two in-place steps
-write a chunk's values straight into the stores' columns, seen as a (k, F_b)
+measured 10 % slower for a whole run).  The engine and the logarithm write a
+chunk's values straight into the stores' columns, seen as a (k, F_b)
 view: no copy of the chunk (a transposing copy cost 15-20 ms a run).  Each
 reported figure is an increasing function of its stored value -- ``10 x``
 dB; ``(x + nominal unwrapped phase) 180/pi`` degrees; the delay itself -- so
@@ -34,8 +34,10 @@ A trial's phase is the nominal response's unwrapped phase plus the principal
 value of ``arg(H conj H_nominal)``: exact while the trial stays within +-180
 degrees of the nominal at every frequency (always, for part tolerances that
 keep the poles and zeros near their nominal places), and free of branch jumps
-between trials, so percentiles compare like with like.  The arctangent is
-taken in float32 (the store's precision) of the product formed in float64.
+between trials, so percentiles compare like with like.  The engine turns each
+trial's parts by the nominal's unit phasor in float64 and takes the arctangent
+in float32 (the store's precision): the relative phase directly, to about
+1e-7 rad, with no subtraction and wrapping pass over the store.
 """
 
 from __future__ import annotations
@@ -46,7 +48,6 @@ from dataclasses import dataclass
 import numpy as np
 
 from service.circuit import Circuit, PolarResponse, prepare_ac
-from service.circuit import polarkernels
 from service.deadline import check as check_deadline
 from service.tolerance import figures as fig
 from service.tolerance.grids import Grids
@@ -160,15 +161,6 @@ def _log_power(p: np.ndarray, out: np.ndarray) -> None:
         out[bad] = np.log10(np.maximum(p[bad], fig.POWER_FLOOR))
 
 
-def _relative_phase(phase: np.ndarray, nominal: np.ndarray) -> None:
-    """Turn the principal phases ``phase`` (Tc, F), float32 rad, in place into their principal difference from
-    the nominal's principal phases ``nominal`` (F,) float32: ``arg(H conj H_nominal)``, in [-pi, pi].
-
-    In float32, element by element: ``d = phase - nominal``, then ``d - rint(d * float32(1/(2 pi))) *
-    float32(2 pi)`` (ties to even), one compiled pass (:func:`service.circuit.polarkernels.relative_phase`)."""
-    polarkernels.relative_phase(phase, nominal, np.float32(1.0 / (2.0 * np.pi)), np.float32(2.0 * np.pi))
-
-
 def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, nominal: np.ndarray,
                 phase_nominal_rad: np.ndarray, *, memory_limit_bytes: int, chunk_trials: int | None = None,
                 store_budget_bytes: int | None = None, phase: bool = True, figures: bool = True) -> Sweep:
@@ -236,7 +228,6 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
     nx = grids.extra_hz.size
     both = single and figs is not None                          # the caller's grid and the extra points together
     pool = _Pool(chunk, fb + nx if both else fb)
-    nominal_phase32 = np.angle(nominal).astype(np.float32)
     for b in range(nblocks):
         c0, c1 = b * fb, min(nf, (b + 1) * fb)
         w = c1 - c0
@@ -253,13 +244,12 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
             sl, k = slice(t0, t1), t1 - t0
             power = pool.take(k, w + nx if both else w)             # (k, F + X): figures; (k, F): the store
             rows = [st[:, sl].T for st in stores]                   # (k, F) views of the stores' columns
-            r = engine.polar(sl, phase=phase, delay=phase, out=PolarResponse(power[:, :w], *rows[1:]))
+            r = engine.polar(sl, phase=phase, delay=phase, phase_reference=nominal[c0:c1] if phase else None,
+                             out=PolarResponse(power[:, :w], *rows[1:]))
             if both:
                 extra.polar(sl, out=PolarResponse(power[:, w:]))
                 figs.add(sl, power)
             _log_power(r.power, rows[0])
-            if phase:
-                _relative_phase(rows[1], nominal_phase32[c0:c1])
             del r, rows
         picked = [row_percentiles(st) for st in stores]
         del stores, engine, full, extra

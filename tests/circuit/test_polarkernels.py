@@ -12,13 +12,13 @@ import pytest
 
 from service.circuit import OpAmpModel, PolarResponse, polarkernels, prepare_ac
 from service.circuit.polyeval import SAFE_MAX, SAFE_MIN, GridEvaluator
-from service.tolerance.montecarlo import _relative_phase
 
 from .builders import butterworth8_sallen_key, mfb_bandpass
 
 MC_GRID = np.geomspace(10.0, 1e5, 501)            # the reference Monte Carlo grid (log, 10 Hz ... 100 kHz)
 EXTRA = np.geomspace(200.0, 5e3, 130)             # a second grid of the same prepared circuit (metric points)
 BOUNDS = np.array([1e-290, 1e290, 1e-60, 1e60])
+NO_TURN = np.zeros((2, 1))                        # the reference phasors' placeholder (not read)
 
 
 @pytest.fixture
@@ -189,8 +189,8 @@ def test_constant_kernel_against_written_out_numpy_expressions():
     power = np.empty((9, 40))[:, :33]
     c32, ec32 = np.empty((9, 33), np.float32), np.empty((9, 33), np.float32)
     store = np.empty((33, 12), np.float32)
-    safe, narrow = polarkernels.polar_constant(c, ec, d_re, d_im, power, c32, ec32, store[:, 2:11].T, BOUNDS,
-                                               True, True)
+    safe, narrow = polarkernels.polar_constant(c, ec, d_re, d_im, power, c32, ec32, store[:, 2:11].T, NO_TURN,
+                                               BOUNDS, True, True, False)
     m = c * c + ec * ec
     r = 1.0 / m
     assert safe and narrow == bool(((m > 1e-60) & (m < 1e60)).all())
@@ -199,10 +199,11 @@ def test_constant_kernel_against_written_out_numpy_expressions():
     assert _same_bits(store[:, 2:11].T, ((c * d_im + ec * d_re) * r).astype(np.float32))
     c[4, 5] = 0.0
     ec[4, 5] = 1e-150                                                 # |D|^2 = 1e-300 < SAFE_MIN
-    assert polarkernels.polar_constant(c, ec, d_re, d_im, power, c32, ec32, store[:, 2:11].T, BOUNDS,
-                                       False, False) == (False, False)
+    assert polarkernels.polar_constant(c, ec, d_re, d_im, power, c32, ec32, store[:, 2:11].T, NO_TURN, BOUNDS,
+                                       False, False, False) == (False, False)
     c[4, 5] = np.nan
-    assert not polarkernels.polar_constant(c, ec, d_re, d_im, power, c32, ec32, power, BOUNDS, False, False)[0]
+    assert not polarkernels.polar_constant(c, ec, d_re, d_im, power, c32, ec32, power, NO_TURN, BOUNDS, False,
+                                           False, False)[0]
 
 
 def test_general_kernel_against_written_out_numpy_expressions():
@@ -211,8 +212,8 @@ def test_general_kernel_against_written_out_numpy_expressions():
     c, ec, n_re, n_im, sd_re, sd_im, sn_re, sn_im = a
     n_re[2, 3] = n_im[2, 3] = 0.0                                     # N = 0: Re(N'/N) taken as 0
     power, u, v, delay = (np.empty((5, 21)) for _ in range(4))
-    assert polarkernels.polar_general(c, ec, n_re, n_im, sd_re, sd_im, sn_re, sn_im, power, u, v, delay, BOUNDS,
-                                      True, True)
+    assert polarkernels.polar_general(c, ec, n_re, n_im, sd_re, sd_im, sn_re, sn_im, power, u, v, delay, NO_TURN,
+                                      BOUNDS, True, True, False)
     r = 1.0 / (c * c + ec * ec)
     nn = n_re * n_re + n_im * n_im
     assert _same_bits(power, nn * r)
@@ -222,35 +223,57 @@ def test_general_kernel_against_written_out_numpy_expressions():
     assert _same_bits(delay, (c * sd_im + ec * sd_re) * r - ls)
     n_re[2, 3] = 1e-200                                               # |N|^2 = 1e-400: out of range, N != 0
     assert not polarkernels.polar_general(c, ec, n_re, n_im, sd_re, sd_im, sn_re, sn_im, power, u, v, delay,
-                                          BOUNDS, True, True)
+                                          NO_TURN, BOUNDS, True, True, False)
     assert polarkernels.polar_general(c, ec, n_re, n_im, sd_re, sd_im, sn_re, sn_im, power, u, v, delay,
-                                      BOUNDS, True, False)             # without the delay |N|^2 is not used
+                                      NO_TURN, BOUNDS, True, False, False)   # without the delay |N|^2 is not used
 
 
-def _relative_phase_numpy(phase: np.ndarray, nominal: np.ndarray, inv_turn, turn) -> None:
-    """The five float32 numpy passes the kernel replaces."""
-    phase -= nominal
-    turns = phase * inv_turn
-    np.rint(turns, out=turns)
-    turns *= turn
-    phase -= turns
+def test_kernels_turn_the_phase_parts_by_the_reference_as_the_written_out_expressions():
+    """With a reference: the float32 parts (constant numerator) and the float64 parts of N conj D turned by
+    conj r, ``x cr + y sr`` and ``y cr - x sr``, the bits of the numpy expressions."""
+    rng = np.random.default_rng(10)
+    c, ec, n_re, n_im = (rng.standard_normal((6, 25)) for _ in range(4))
+    angle = rng.uniform(-np.pi, np.pi, 25)
+    rot = np.stack([np.cos(angle), np.sin(angle)])
+    power = np.empty((6, 25))
+    c32, ec32 = np.empty((6, 25), np.float32), np.empty((6, 25), np.float32)
+    assert polarkernels.polar_constant(c, ec, c, c, power, c32, ec32, power, rot, BOUNDS, True, False, True)[0]
+    assert _same_bits(c32, (c * rot[0] + ec * rot[1]).astype(np.float32))
+    assert _same_bits(ec32, (ec * rot[0] - c * rot[1]).astype(np.float32))
+    u, v = np.empty((6, 25)), np.empty((6, 25))
+    assert polarkernels.polar_general(c, ec, n_re, n_im, c, c, c, c, power, u, v, power, rot, BOUNDS, True, False,
+                                      True)
+    pu, pv = n_re * c - n_im * ec, n_re * ec + n_im * c
+    assert _same_bits(u, pu * rot[0] + pv * rot[1]) and _same_bits(v, pv * rot[0] - pu * rot[1])
 
 
-def test_relative_phase_gives_the_bits_of_the_numpy_passes():
-    rng = np.random.default_rng(9)
-    inv_turn, turn = np.float32(1.0 / (2.0 * np.pi)), np.float32(2.0 * np.pi)
-    nominal = rng.uniform(-np.pi, np.pi, 40).astype(np.float32)
-    store = rng.uniform(-np.pi, np.pi, (40, 300)).astype(np.float32)
-    store[:, :5] = nominal[:, None] + np.float32(np.pi)               # near the wrap
-    want = store[:, 17:290].T.copy()
-    _relative_phase_numpy(want, nominal, inv_turn, turn)
-    _relative_phase(store[:, 17:290].T, nominal)
-    assert _same_bits(store[:, 17:290].T, want)
-    # ties go to even, as numpy's rint: with a unit turn, d * 1 = k + 1/2 exactly
-    d = np.array([[0.5, 1.5, 2.5, -0.5, -1.5, 3.25, -2.5, 1e-45]], np.float32)
-    want = d.copy()
-    _relative_phase_numpy(want, np.zeros(8, np.float32), np.float32(1), np.float32(1))
-    got = d.copy()
-    polarkernels.relative_phase(got, np.zeros(8, np.float32), np.float32(1), np.float32(1))
-    assert _same_bits(got, want)
-    assert got[0].tolist()[:5] == [0.5, -0.5, 0.5, -0.5, 0.5]
+@pytest.mark.parametrize("kind", ["constant", "general"])
+@pytest.mark.parametrize("dtype", [np.float32, np.float64])
+def test_phase_relative_to_a_reference_is_the_principal_angle_of_h_conj_r(kind, dtype, monkeypatch):
+    """``arg(H conj r)`` against numpy's complex arithmetic on ``N/D`` (numpy.polynomial values), the kernel
+    path and the numpy path the same bits, and a reference of zeros (no direction) leaving ``arg H``."""
+    rng = np.random.default_rng(11)
+    t = 90
+    den = _stable_denominators(rng, t, 6)
+    num = NUMERATORS[kind](rng, t)
+    omega = np.geomspace(0.01, 100.0, 200)
+    pv = np.polynomial.polynomial.polyval
+    h = pv(1j * omega, num.T) / pv(1j * omega, den.T)
+    reference = 3.0 * np.exp(1j * rng.uniform(-np.pi, np.pi, omega.size))   # any modulus: its unit phasor
+    ev = GridEvaluator(omega, 1.0)
+    ev.block = 64
+    got = [np.empty((t, omega.size)), np.empty((t, omega.size), dtype)]
+    ev.ratio_polar(num, den, *got, reference=reference)
+    want = np.angle(h * np.conj(reference))
+    err = np.abs(np.angle(np.exp(1j * (got[1].astype(float) - want))))
+    assert np.max(err) < (3e-7 if dtype == np.float32 else 1e-9)
+    assert np.all(np.abs(got[1]) <= np.pi)
+    monkeypatch.setattr(GridEvaluator, "_compiled_polar_block", lambda self, *a: False)
+    ref = [np.empty_like(a) for a in got]
+    ev.ratio_polar(num, den, *ref, reference=reference)
+    assert all(_same_bits(g, w) for g, w in zip(got, ref))
+    plain = np.empty((t, omega.size), dtype)
+    ev.ratio_polar(num, den, np.empty((t, omega.size)), plain, reference=np.zeros(omega.size))
+    absolute = np.empty((t, omega.size), dtype)
+    ev.ratio_polar(num, den, np.empty((t, omega.size)), absolute)
+    assert _same_bits(plain, absolute)
