@@ -12,6 +12,7 @@ ENV PYTHONDONTWRITEBYTECODE=1 \
     PATH=/opt/rolloff/bin:$PATH \
     MPLCONFIGDIR=/tmp/matplotlib \
     PROMETHEUS_MULTIPROC_DIR=/tmp/rolloff-metrics \
+    NUMBA_CACHE_DIR=/tmp/numba-cache \
     ROLLOFF_HOST=0.0.0.0 \
     ROLLOFF_PORT=8000 \
     ROLLOFF_WORKERS=2
@@ -32,7 +33,11 @@ RUN --mount=type=secret,id=pip-ca \
 
 COPY pyproject.toml README.md /app/
 COPY service /app/service
+# The compiled loops (service/compiled.py) are compiled here, once, into /opt/rolloff/numba-cache; the
+# container copies them to its writable NUMBA_CACHE_DIR at start (a host with another CPU recompiles
+# them there, once, before the workers fork).
 RUN /opt/rolloff/bin/pip install --no-cache-dir --no-deps --no-build-isolation /app \
+    && NUMBA_CACHE_DIR=/opt/rolloff/numba-cache /opt/rolloff/bin/python -c "from service.compiled import warm; warm()" \
     && groupadd --system --gid 10001 rolloff \
     && useradd --system --uid 10001 --gid 10001 --no-create-home --shell /usr/sbin/nologin rolloff
 
@@ -47,7 +52,8 @@ HEALTHCHECK --interval=30s --timeout=5s --start-period=20s --retries=3 \
 
 # Run read-only: `docker run --read-only --tmpfs /tmp ...`. Every write goes to /tmp: matplotlib's
 # cache (MPLCONFIGDIR), the metrics files (PROMETHEUS_MULTIPROC_DIR, emptied at start by the gunicorn
-# config) and gunicorn's worker heartbeat files (worker_tmp_dir); no control socket is made.
+# config), the compiled loops (NUMBA_CACHE_DIR) and gunicorn's worker heartbeat files (worker_tmp_dir);
+# no control socket is made.
 # Workers, threads, timeouts and limits come from ROLLOFF_* variables (see README). SIGTERM drains
 # in-flight requests for ROLLOFF_GRACEFUL_TIMEOUT_S seconds (give `docker stop -t` more than that).
-CMD ["sh", "-c", "mkdir -p \"$PROMETHEUS_MULTIPROC_DIR\" && exec gunicorn --config python:service.gunicorn_conf service.wsgi:app"]
+CMD ["sh", "-c", "mkdir -p \"$PROMETHEUS_MULTIPROC_DIR\" && if [ -n \"$NUMBA_CACHE_DIR\" ] && [ -d /opt/rolloff/numba-cache ]; then mkdir -p \"$NUMBA_CACHE_DIR\" && cp -R /opt/rolloff/numba-cache/. \"$NUMBA_CACHE_DIR\"/; fi && exec gunicorn --config python:service.gunicorn_conf service.wsgi:app"]

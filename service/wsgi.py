@@ -3,8 +3,8 @@
 Loaded once in the gunicorn master (``preload_app``), which then forks the
 workers: everything imported or initialised here is shared, copy-on-write,
 by every worker. :func:`warm_up` therefore loads what the views otherwise
-load on first use (scipy.signal, the tolerance engine, matplotlib and its
-fonts) and runs the readiness checks once. In a worker, a first import under
+load on first use (scipy.signal, the tolerance engine and its compiled
+loops, matplotlib and its fonts) and runs the readiness checks once. In a worker, a first import under
 load holds the interpreter lock for seconds, during which that worker's
 /healthz and /readyz could not answer.
 """
@@ -21,6 +21,8 @@ def warm_up() -> None:
     import service.tolerance  # noqa: F401
     from matplotlib.figure import Figure
 
+    from service.compiled import warm
+
     from service.api.views.operations import readiness_checks
 
     figure = Figure(figsize=(2, 1))
@@ -30,6 +32,7 @@ def warm_up() -> None:
     axes.legend()
     figure.savefig(io.BytesIO(), format="svg")
     readiness_checks()
+    warm()  # compiled loops: loaded from the disk cache, or compiled once here (seconds), never in a request
 
 
 # Checked before the app is built, so that a WSGI server loading this module with an invalid
