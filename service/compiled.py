@@ -1,12 +1,13 @@
 """Compiled loops: the one place that configures numba for the service.
 
-Two inner loops of the Monte Carlo analysis are compiled with numba (LLVM,
-ahead of their first call): the exact order-statistic selection of the
-percentile stores (:mod:`service.tolerance.selection`) and the element-wise
-steps of the polar evaluation (:mod:`service.circuit.polarkernels`).  Each
-replaces a chain of numpy passes over memory by one loop over a row held in
-cache; both were measured against their numpy forms before adoption (see
-DEVELOPERS.md, "Compiled loops") and give the same bits.
+Three inner loops of the Monte Carlo analysis are compiled with numba (LLVM,
+before their first call): the exact order-statistic selection of the
+percentile stores (:mod:`service.tolerance.selection`), the element-wise
+steps of the polar evaluation (:mod:`service.circuit.polarkernels`) and the
+scan for each trial's half-power crossing (:mod:`service.tolerance.figures`).
+Each replaces a chain of numpy passes over memory by one loop over a row held
+in cache; each was measured against its numpy form before adoption (see
+DEVELOPERS.md, "Compiled loops") and gives the same bits.
 
 Why numba: its wheels carry their own LLVM, so a fresh Debian with its
 system Python installs it without a compiler or Python headers (a C
