@@ -101,6 +101,7 @@ class GridEvaluator:
         self.block = tiles * TILE_ROWS
         self._tables: dict[int, tuple[np.ndarray, np.ndarray]] = {}
         self._scratch: dict[str, np.ndarray] = {}
+        self._reference: tuple[np.ndarray, np.ndarray] | None = None     # (reference array, its unit phasors)
 
     def _buffer(self, name: str, shape: tuple[int, ...]) -> np.ndarray:
         """A scratch array of ``shape`` (float64, uninitialized), kept between calls.
@@ -114,6 +115,14 @@ class GridEvaluator:
         if buf is None or buf.size < size:
             buf = self._scratch[name] = np.empty(size)
         return buf[:size].reshape(shape)
+
+    def _unit_phasors(self, reference: np.ndarray) -> np.ndarray:
+        """:func:`unit_phasors` of ``reference``, kept for the next call with the same array object (a caller
+        evaluating chunk after chunk against one reference; an array changed in place in between is not
+        seen)."""
+        if self._reference is None or self._reference[0] is not reference:
+            self._reference = (reference, unit_phasors(reference))
+        return self._reference[1]
 
     def _table(self, half: int) -> tuple[np.ndarray, np.ndarray]:
         """Powers of the grid for ``half`` even and odd coefficients: ``v^m`` and ``x v^m``, each (half, F)."""
@@ -261,7 +270,7 @@ class GridEvaluator:
         nbuf = None if const else self._buffer("num", (2, nb, self.size))
         slope = None if delay is None else self._buffer("slope", (2 if const else 4, nb, self.size))
         tmp = self._buffer("tmp", (4, nb, self.size))
-        rot = None if reference is None or phase is None else unit_phasors(reference)
+        rot = None if reference is None or phase is None else self._unit_phasors(reference)
         for t0 in range(0, t, self.block):
             t1 = min(t, t0 + self.block)
             k = t1 - t0

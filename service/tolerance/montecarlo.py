@@ -238,13 +238,14 @@ def monte_carlo(circuit: Circuit, samples: Samples, trials: int, grids: Grids, n
         engine = full.on_grid(f[c0:c1]) if single else full
         extra = full.on_grid(grids.extra_hz) if both else None
         stores = [np.empty((w, trials), dtype=np.float32) for _ in keys]      # frequency-major: rows selected
+        reference = nominal[c0:c1] if phase else None                 # one array: its unit phasors computed once
         for t0 in range(0, trials, chunk):
             check_deadline("tolerance.montecarlo")
             t1 = min(trials, t0 + chunk)
             sl, k = slice(t0, t1), t1 - t0
             power = pool.take(k, w + nx if both else w)             # (k, F + X): figures; (k, F): the store
             rows = [st[:, sl].T for st in stores]                   # (k, F) views of the stores' columns
-            r = engine.polar(sl, phase=phase, delay=phase, phase_reference=nominal[c0:c1] if phase else None,
+            r = engine.polar(sl, phase=phase, delay=phase, phase_reference=reference,
                              out=PolarResponse(power[:, :w], *rows[1:]))
             if both:
                 extra.polar(sl, out=PolarResponse(power[:, w:]))
