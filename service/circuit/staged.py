@@ -325,13 +325,9 @@ def block_coefficients(system: MnaSystem, plan: _BlockPlan, w_ref: float, sl: sl
 
 
 def _polymul(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Per-row product of coefficient arrays (Tc, na) and (Tc, nb) -> (Tc, na+nb-1)."""
-    if a.shape[1] > b.shape[1]:
-        a, b = b, a
-    out = np.zeros((a.shape[0], a.shape[1] + b.shape[1] - 1))
-    for i in range(a.shape[1]):
-        out[:, i : i + b.shape[1]] += a[:, i : i + 1] * b
-    return out
+    """Per-row product of coefficient arrays (Tc, na) and (Tc, nb) -> (Tc, na+nb-1): :func:`_poly_mul` on the
+    transposes (the same operations), returned C-contiguous."""
+    return np.ascontiguousarray(_poly_mul(a.T, b.T).T)
 
 
 def _trim(c: np.ndarray) -> np.ndarray:
